@@ -1,0 +1,411 @@
+"""ASET engine: times to untenability at every location, raw and corrected, fast.
+
+Given one scenario's histories (internal units) and a criteria set, this module finds
+for each location and criterion the time the limit is first reached, for the raw
+predictions and for every Monte Carlo sample of the model-error factors.
+
+How it stays fast (no loop over samples x time in Python):
+
+* A criterion on one series scaled by one factor (temperature rise, heat flux,
+  extinction, layer height) is exact: the sample's factor moves the *level* instead of the
+  series, and the first crossing of many levels on one series is one ``searchsorted`` on
+  its running maximum (:func:`~egressmargin.tenability.crossing.crossing_times_for_levels`).
+* A dose (FED) depends on several factors. The cumulative dose is computed on a grid of
+  factor values (G nodes per uncertain quantity, spanning the samples) and interpolated
+  multilinearly between nodes for each sample; its crossing is found by a vectorised
+  bisection over the time index. Every dose rate is nondecreasing in every factor, so the
+  true crossing lies between the crossings at the lower and upper corners of the
+  sample's grid cell: that bracket is computed too and reported as ``grid_bound_s``, an
+  upper bound of the interpolation error.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from itertools import product
+
+import numpy as np
+
+from .criteria import CriteriaSet, Criterion
+from .histories import O2_AMBIENT, ScenarioData
+from .study import SMOKE_KEYS
+from .tenability import heat, layer, toxicity, visibility
+from .tenability.crossing import crossing_times_for_levels, cumulative_trapezoid
+
+#: Grid nodes per uncertain quantity for dose interpolation, by number of quantities
+#: (project choice: memory G**k * L * N kept moderate; the bound is reported).
+GRID_NODES = {1: 33, 2: 12, 3: 6, 4: 5}
+#: Cap on the bytes of one dose grid; locations are processed in chunks below it.
+GRID_BYTES = 160e6
+
+#: Which factor each criterion's inputs use, for the validated-range check and reporting.
+CRITERION_QUANTITIES = {
+    "temperature": ("temperature",),
+    "heat_flux": ("heat_flux",),
+    "visibility": ("smoke",),
+    "layer_height": ("layer_height",),
+    "fed_toxic": ("co", "hcn", "co2", "o2"),
+    "fed_heat": ("temperature", "heat_flux"),
+}
+
+
+@dataclass
+class Prepared:
+    """Per-scenario arrays derived once from the histories, in validated form.
+
+    ``rise`` is the temperature rise above ambient (the validated temperature),
+    ``o2_depletion`` the depletion below ambient, ``extinction`` the natural-log
+    extinction coefficient from whichever smoke series a location has.
+    """
+
+    t_s: np.ndarray
+    ids: list[str]
+    amb_c: np.ndarray
+    rise: np.ndarray | None
+    temp_present: np.ndarray
+    extinction: np.ndarray | None
+    smoke_kind: list[str | None]
+    flux: np.ndarray | None
+    layer: np.ndarray | None
+    layer_source: list[str | None]
+    gases: dict[str, np.ndarray]          # co, hcn, co2 fractions; NaN rows where absent
+    o2_amb: float
+    o2_depletion: np.ndarray | None
+    velocity: np.ndarray | None
+    present: dict[str, np.ndarray] = field(default_factory=dict)
+
+    @property
+    def n_loc(self) -> int:
+        return len(self.ids)
+
+
+def prepare(data: ScenarioData, criteria: CriteriaSet, ambient_c: float | None = None,
+            ambient_o2: float | None = None) -> Prepared:
+    """Derive the validated quantities of every location once."""
+    L = len(data.location_ids)
+    t = data.t_s
+    present = {k: data.has(k) for k in ("temperature", "co", "co2", "o2", "hcn", "heat_flux", "layer_height",
+                                         "velocity", *SMOKE_KEYS)}
+    temp = data.series.get("temperature")
+    if temp is not None:
+        amb = np.where(present["temperature"], temp[:, 0] if ambient_c is None else ambient_c, np.nan)
+        rise = temp - amb[:, None]
+    else:
+        amb, rise = np.full(L, np.nan), None
+    vis = criteria.items.get("visibility")
+    c_sign = vis.params.get("sign_constant", visibility.SIGN_CONSTANT_LIGHT_EMITTING) if vis else \
+        visibility.SIGN_CONSTANT_LIGHT_EMITTING
+    k_m = vis.params.get("mass_extinction", visibility.MASS_EXTINCTION_FLAMING_M2_KG) if vis else \
+        visibility.MASS_EXTINCTION_FLAMING_M2_KG
+    ext = np.full((L, len(t)), np.nan)
+    kind: list[str | None] = [None] * L
+    for li in range(L):
+        for key in SMOKE_KEYS:
+            if present[key][li]:
+                v = data.series[key][li]
+                if key == "extinction":
+                    k = v
+                elif key == "optical_density":
+                    k = visibility.extinction_from_optical_density(v)
+                elif key == "soot":
+                    k = visibility.extinction_from_soot(v, k_m)
+                else:
+                    k = visibility.extinction_from_visibility(v, c_sign)
+                ext[li] = k
+                kind[li] = key
+                break
+    lay = np.full((L, len(t)), np.nan)
+    lsrc: list[str | None] = [None] * L
+    for li in range(L):
+        if present["layer_height"][li]:
+            lay[li] = data.series["layer_height"][li]
+            lsrc[li] = "layer_height"
+        elif li in data.profiles:
+            heights, temps_c, ceiling = data.profiles[li]
+            lay[li] = layer.layer_height_integral(heights, temps_c + 273.15, ceiling)
+            lsrc[li] = "temperature_profile"
+    o2 = data.series.get("o2")
+    o2_amb = O2_AMBIENT if ambient_o2 is None else ambient_o2
+    return Prepared(
+        t_s=t, ids=list(data.location_ids), amb_c=amb, rise=rise, temp_present=present["temperature"],
+        extinction=ext if any(kind) else None, smoke_kind=kind,
+        flux=data.series.get("heat_flux"), layer=lay if any(lsrc) else None, layer_source=lsrc,
+        gases={g: data.series[g] for g in ("co", "hcn", "co2") if g in data.series},
+        o2_amb=o2_amb, o2_depletion=None if o2 is None else o2_amb - o2,
+        velocity=data.series.get("velocity"), present=present)
+
+
+# ----------------------------------------------------------------------------------------
+# applying factors to validated quantities
+# ----------------------------------------------------------------------------------------
+
+def corrected_inputs(prep: Prepared, names, factor: dict[str, float], rows=slice(None)) -> dict:
+    """The corrected series (internal units) that a dose needs, at one set of factors."""
+    out = {}
+    for q in names:
+        f = factor.get(q, 1.0)
+        if q == "temperature" and prep.rise is not None:
+            out[q] = prep.amb_c[rows, None] + prep.rise[rows] * f
+        elif q == "heat_flux" and prep.flux is not None:
+            out[q] = prep.flux[rows] * f
+        elif q in ("co", "hcn", "co2") and q in prep.gases:
+            out[q] = prep.gases[q][rows] * f
+        elif q == "o2" and prep.o2_depletion is not None:
+            out[q] = np.clip(prep.o2_amb - prep.o2_depletion[rows] * f, 0.0, None)
+    return out
+
+
+def dose_rate(criterion: Criterion, inputs: dict) -> np.ndarray:
+    """FED rate per minute for a dose criterion from corrected inputs."""
+    if criterion.id == "fed_toxic":
+        fn = toxicity.toxic_method(criterion.params.get("method", "iso13571"))
+        return fn(co=inputs.get("co"), hcn=inputs.get("hcn"), co2=inputs.get("co2"), o2=inputs.get("o2"))
+    return heat.fed_heat_rate(temperature_degc=inputs.get("temperature"), flux_kw_m2=inputs.get("heat_flux"),
+                              radiant_threshold_kw_m2=criterion.params.get(
+                                  "radiant_threshold", heat.RADIANT_THRESHOLD_KW_M2))
+
+
+def dose_quantities(criterion: Criterion) -> tuple[str, ...]:
+    if criterion.id == "fed_toxic":
+        gases = getattr(toxicity, "METHOD_GASES", {}).get(criterion.params.get("method", "iso13571"))
+        return tuple(gases) if gases else toxicity.TOXIC_GASES
+    return ("temperature", "heat_flux")
+
+
+# ----------------------------------------------------------------------------------------
+# assessment status
+# ----------------------------------------------------------------------------------------
+
+def status(prep: Prepared, criterion: Criterion) -> tuple[np.ndarray, list[list[str]]]:
+    """Which locations can be assessed for ``criterion``, and the series each lacks."""
+    L = prep.n_loc
+    p = prep.present
+    cid = criterion.id
+    if cid == "temperature":
+        return p["temperature"].copy(), [[] if p["temperature"][i] else ["temperature"] for i in range(L)]
+    if cid == "heat_flux":
+        return p["heat_flux"].copy(), [[] if p["heat_flux"][i] else ["heat_flux"] for i in range(L)]
+    if cid == "visibility":
+        ok = np.array([k is not None for k in prep.smoke_kind])
+        return ok, [[] if ok[i] else ["extinction (or optical_density, soot, visibility)"] for i in range(L)]
+    if cid == "layer_height":
+        ok = np.array([s is not None for s in prep.layer_source])
+        return ok, [[] if ok[i] else ["layer_height (or temperature_profile)"] for i in range(L)]
+    gases = dose_quantities(criterion)
+    missing = [[g for g in gases if not p[g][i]] for i in range(L)]
+    if cid == "fed_toxic":
+        dosing = [g for g in gases if g != "co2"]          # CO2 alone only multiplies a dose
+        ok = np.array([any(p[g][i] for g in dosing) for i in range(L)])
+    else:
+        ok = p["temperature"] | p["heat_flux"]
+    return ok, missing
+
+
+# ----------------------------------------------------------------------------------------
+# single scaled series: exact
+# ----------------------------------------------------------------------------------------
+
+def _scaled_crossings(t_s, base, levels, direction, ok) -> np.ndarray:
+    """(L, S) first crossings of ``levels[l, s]`` on ``base[l]``; NaN rows where not ok."""
+    out = np.full(levels.shape, np.nan)
+    for li in np.flatnonzero(ok):
+        out[li] = crossing_times_for_levels(t_s, base[li], levels[li], direction)
+    return out
+
+
+def single_series_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
+                        ok: np.ndarray) -> np.ndarray:
+    """Exact (L, S) crossing times of a criterion on one scaled series."""
+    cid, lim = criterion.id, criterion.limit
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if cid == "temperature":
+            f = factors.get("temperature", np.ones(S))
+            levels = (lim - prep.amb_c)[:, None] / f[None, :]
+            return _scaled_crossings(prep.t_s, prep.rise, levels, "above", ok)
+        if cid == "heat_flux":
+            f = factors.get("heat_flux", np.ones(S))
+            levels = np.broadcast_to(lim / f[None, :], (prep.n_loc, S))
+            return _scaled_crossings(prep.t_s, prep.flux, levels, "above", ok)
+        if cid == "visibility":
+            k_lim = visibility.extinction_limit(lim, criterion.params.get("sign_constant", 8.0))
+            levels = np.vstack([k_lim / factors.get(smoke_factor_key(k), np.ones(S)) for k in prep.smoke_kind])
+            return _scaled_crossings(prep.t_s, prep.extinction, levels, "above", ok)
+        if cid == "layer_height":
+            f = factors.get("layer_height", np.ones(S))
+            levels = np.broadcast_to(lim / f[None, :], (prep.n_loc, S))
+            return _scaled_crossings(prep.t_s, prep.layer, levels, "below", ok)
+    raise ValueError(f"not a single-series criterion: {cid}")
+
+
+def smoke_factor_key(kind: str | None) -> str:
+    """The factor that corrects a location's smoke series (all scale the extinction coefficient)."""
+    return f"smoke:{kind}" if kind else "smoke:extinction"
+
+
+# ----------------------------------------------------------------------------------------
+# doses: grid over factors, multilinear interpolation, vectorised bisection
+# ----------------------------------------------------------------------------------------
+
+@dataclass
+class DoseField:
+    """Cumulative dose on a grid of factors, for a set of locations, and per-sample weights."""
+
+    t_s: np.ndarray
+    grid: np.ndarray          # (M, Lc, N) cumulative dose
+    corners: np.ndarray       # (S, C) node indices
+    weights: np.ndarray       # (S, C)
+    low: np.ndarray           # (S,) node index of the lower corner
+    high: np.ndarray          # (S,) node index of the upper corner
+
+    def values(self, idx: np.ndarray, which: str = "interp") -> np.ndarray:
+        """Dose at time index ``idx`` (S, Lc) for every sample."""
+        lc = np.arange(self.grid.shape[1])[None, :]
+        if which == "low":
+            return self.grid[self.low[:, None], lc, idx]
+        if which == "high":
+            return self.grid[self.high[:, None], lc, idx]
+        g = self.grid[self.corners[:, :, None], lc[:, None, :], idx[:, None, :]]
+        return np.einsum("sc,scl->sl", self.weights, g)
+
+    def crossing(self, limit: float, which: str = "interp") -> np.ndarray:
+        """(S, Lc) first time the dose reaches ``limit`` (linear between samples); NaN if never."""
+        n = self.grid.shape[2]
+        S, Lc = self.corners.shape[0], self.grid.shape[1]
+        last = self.values(np.full((S, Lc), n - 1), which)
+        first = self.values(np.zeros((S, Lc), int), which)
+        lo = np.zeros((S, Lc), int)
+        hi = np.full((S, Lc), n - 1)
+        while True:
+            active = hi - lo > 1
+            if not active.any():
+                break
+            mid = (lo + hi) // 2
+            hit = self.values(mid, which) >= limit
+            hi = np.where(active & hit, mid, hi)
+            lo = np.where(active & ~hit, mid, lo)
+        d_lo, d_hi = self.values(lo, which), self.values(hi, which)
+        t = self.t_s
+        with np.errstate(divide="ignore", invalid="ignore"):
+            frac = np.where(d_hi > d_lo, (limit - d_lo) / (d_hi - d_lo), 1.0)
+        tc = t[lo] + np.clip(frac, 0.0, 1.0) * (t[hi] - t[lo])
+        tc = np.where(first >= limit, t[0], tc)
+        return np.where(last >= limit, tc, np.nan)
+
+    def at_times(self, times_s: np.ndarray) -> np.ndarray:
+        """Dose at times (S, Lc) [s], linear between samples, held at the end value after the end."""
+        t = self.t_s
+        x = np.clip(times_s, t[0], t[-1])
+        i = np.clip(np.searchsorted(t, x, side="right") - 1, 0, len(t) - 2)
+        w = (x - t[i]) / (t[i + 1] - t[i])
+        return self.values(i) * (1 - w) + self.values(i + 1) * w
+
+
+def dose_field(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
+               rows: np.ndarray) -> DoseField:
+    """Build the cumulative dose grid of ``criterion`` at locations ``rows``."""
+    names = [q for q in dose_quantities(criterion) if _has(prep, q)]
+    fac = {q: np.asarray(factors.get(q, np.ones(S)), float) for q in names}
+    varying = [q for q in names if np.ptp(fac[q]) > 0]
+    k = len(varying)
+    G = GRID_NODES.get(k, 4) if k else 1
+    nodes = {q: np.linspace(fac[q].min(), fac[q].max(), G) for q in varying}
+    fixed = {q: float(fac[q][0]) for q in names if q not in varying}
+    M = G ** k
+    grid = np.empty((M, len(rows), len(prep.t_s)))
+    for m, combo in enumerate(product(range(G), repeat=k)):
+        f = dict(fixed)
+        f.update({q: nodes[q][j] for q, j in zip(varying, combo)})
+        rate = dose_rate(criterion, corrected_inputs(prep, names, f, rows))
+        grid[m] = cumulative_trapezoid(prep.t_s, np.broadcast_to(rate, grid.shape[1:]))
+    if k == 0:
+        corners = np.zeros((S, 1), int)
+        weights = np.ones((S, 1))
+        return DoseField(prep.t_s, grid, corners, weights, corners[:, 0], corners[:, 0])
+    pos = np.empty((S, k))
+    for j, q in enumerate(varying):
+        lo, hi = nodes[q][0], nodes[q][-1]
+        pos[:, j] = (fac[q] - lo) / (hi - lo) * (G - 1)
+    i0 = np.clip(np.floor(pos).astype(int), 0, G - 2)
+    w = pos - i0
+    strides = G ** np.arange(k - 1, -1, -1)
+    bits = np.array(list(product((0, 1), repeat=k)))                      # (C, k)
+    corners = ((i0[:, None, :] + bits[None, :, :]) * strides).sum(-1)      # (S, C)
+    weights = np.prod(np.where(bits[None, :, :] == 1, w[:, None, :], 1 - w[:, None, :]), axis=-1)
+    return DoseField(prep.t_s, grid, corners, weights, (i0 * strides).sum(-1), ((i0 + 1) * strides).sum(-1))
+
+
+def _has(prep: Prepared, q: str) -> bool:
+    if q == "temperature":
+        return prep.rise is not None
+    if q == "heat_flux":
+        return prep.flux is not None
+    if q == "o2":
+        return prep.o2_depletion is not None
+    return q in prep.gases
+
+
+def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int, ok: np.ndarray,
+               with_bound: bool = True) -> tuple[np.ndarray, np.ndarray | None]:
+    """(L, S) dose crossing times and, per location, the largest interpolation bracket [s].
+
+    The bracket is None when the dose grid has a single node (no interpolation: exact).
+    """
+    out = np.full((prep.n_loc, S), np.nan)
+    rows_all = np.flatnonzero(ok)
+    if rows_all.size == 0:
+        return out, None
+    bound = np.full(prep.n_loc, np.nan)
+    exact = True
+    k = len(dose_quantities(criterion))
+    per_loc = 8 * len(prep.t_s) * GRID_NODES.get(k, 4) ** k
+    chunk = max(1, int(GRID_BYTES // per_loc))
+    for start in range(0, rows_all.size, chunk):
+        rows = rows_all[start:start + chunk]
+        field_ = dose_field(prep, criterion, factors, S, rows)
+        out[rows] = field_.crossing(criterion.limit).T
+        if with_bound and field_.grid.shape[0] > 1:
+            exact = False
+            t_lo = field_.crossing(criterion.limit, "low")     # lower factors: later crossing
+            t_hi = field_.crossing(criterion.limit, "high")
+            end = prep.t_s[-1]
+            width = np.where(np.isfinite(t_hi), np.where(np.isfinite(t_lo), t_lo, end) - t_hi, 0.0)
+            bound[rows] = width.max(axis=0)
+    return out, (None if exact else bound)
+
+
+# ----------------------------------------------------------------------------------------
+# all criteria
+# ----------------------------------------------------------------------------------------
+
+@dataclass
+class CriterionResult:
+    times: np.ndarray                 # (L, S)
+    assessed: np.ndarray              # (L,)
+    missing: list[list[str]]
+    grid_bound_s: np.ndarray | None = None   # (L,) per-location bracket [s]
+
+
+def criterion_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
+                    with_bound: bool = True) -> CriterionResult:
+    ok, missing = status(prep, criterion)
+    if criterion.id in ("fed_toxic", "fed_heat"):
+        times, bound = dose_times(prep, criterion, factors, S, ok, with_bound)
+        return CriterionResult(times, ok, missing, bound)
+    return CriterionResult(single_series_times(prep, criterion, factors, S, ok), ok, missing)
+
+
+def evaluate(prep: Prepared, criteria: CriteriaSet, factors: dict[str, np.ndarray], S: int,
+             with_bound: bool = True) -> dict[str, CriterionResult]:
+    """Every criterion's (L, S) times for the given factor samples."""
+    return {cid: criterion_times(prep, c, factors, S, with_bound) for cid, c in criteria.items.items()}
+
+
+def location_aset(results: dict[str, CriterionResult]) -> np.ndarray:
+    """(L, S) earliest crossing over assessed criteria; +inf where none is reached."""
+    stack = np.stack([np.where(np.isnan(r.times), np.inf, r.times) for r in results.values()])
+    return stack.min(axis=0)
+
+
+def unit_factors(S: int = 1) -> dict[str, np.ndarray]:
+    """Factors of one for the raw (uncorrected) evaluation."""
+    return {}

@@ -1,0 +1,206 @@
+"""Command line only: parse, call the pipeline, print, exit codes.
+
+Exit status: 0 done (a failing design is a result, not an error); 2 a problem with the
+input, printed without a traceback; 1 an internal error (a bug, with its traceback).
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from . import __version__
+from .errors import InputError
+
+
+def _positive_int(text: str) -> int:
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, found '{text}'") from None
+    if v < 1:
+        raise argparse.ArgumentTypeError(f"expected a whole number of at least 1, found '{text}'")
+    return v
+
+
+def _seed(text: str) -> int:
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, found '{text}'") from None
+    if v < 0:
+        raise argparse.ArgumentTypeError(f"expected a seed of 0 or more, found '{text}'")
+    return v
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # usage mistakes are input problems: exit 2, as argparse does
+        self.print_usage(sys.stderr)
+        self.exit(2, f"{self.prog}: error: {message}\n")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="egressmargin", description="Compare available and required safe egress times (ASET/RSET) "
+                "from fire-simulation histories, with model-uncertainty bands, and write a submittal report.")
+    p.add_argument("--version", action="version", version=f"egressmargin {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    def run_opts(sp):
+        sp.add_argument("--out", type=Path, help="output folder")
+        sp.add_argument("--samples", type=_positive_int, help="Monte Carlo draws (overrides the study)")
+        sp.add_argument("--seed", type=_seed, help="random seed (overrides the study)")
+        sp.add_argument("--no-pdf", action="store_true", help="write results.json and report.html, no PDF")
+        sp.add_argument("--quiet", action="store_true", help="no progress messages")
+
+    r = sub.add_parser("run", help="run the whole pipeline on a study")
+    r.add_argument("study", type=Path)
+    run_opts(r)
+    r.add_argument("--uncertainty", type=Path, help="use this model-uncertainty file instead of the study's")
+    r.add_argument("--raw-only", action="store_true",
+                   help="ignore any model-uncertainty file: assess the uncorrected predictions only")
+    d = sub.add_parser("demo", help="run the bundled demo study (an invented building, illustrative data)")
+    d.add_argument("--out", type=Path, default=Path("egressmargin-demo"))
+    d.add_argument("--samples", type=_positive_int)
+    d.add_argument("--no-pdf", action="store_true")
+    d.add_argument("--quiet", action="store_true")
+    v = sub.add_parser("validate", help="check a study and every file it names, without computing")
+    v.add_argument("study", type=Path)
+    f = sub.add_parser("fit-uncertainty", help="derive a model-uncertainty table from measured/predicted pairs")
+    f.add_argument("pairs", type=Path)
+    f.add_argument("--out", type=Path, help="YAML table to write (default: print it)")
+    f.add_argument("--plot", type=Path, help="predicted-vs-measured plot (.svg, .png or .pdf)")
+    f.add_argument("--source", default=None, help="the table's source line (default: names the pairs file)")
+    f.add_argument("--sigma-exp", type=float, default=None,
+                   help="experimental relative standard deviation for rows without a sigma_exp column")
+    c = sub.add_parser("criteria", help="list the bundled criteria sets, or print one with its sources")
+    c.add_argument("name", nargs="?")
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return 2
+    try:
+        return {"run": _run, "demo": _demo, "validate": _validate, "fit-uncertainty": _fit,
+                "criteria": _criteria}[args.command](args)
+    except InputError as exc:
+        print(str(exc), file=sys.stderr)
+        return 2
+
+
+def _progress(quiet: bool):
+    if quiet or not sys.stderr.isatty():
+        return None
+    return lambda msg: print(f"egressmargin: {msg} …", file=sys.stderr, flush=True)
+
+
+def _run(args) -> int:
+    from .pipeline import RunOptions, run
+    opts = RunOptions(out=args.out, samples=args.samples, seed=args.seed, pdf=not args.no_pdf,
+                      uncertainty=args.uncertainty, raw_only=args.raw_only, progress=_progress(args.quiet))
+    out = run(args.study, opts)
+    _summary(out)
+    return 0
+
+
+def _demo(args) -> int:
+    from .pipeline import RunOptions, run
+    from .resources import resource_dir
+    study = resource_dir("demo") / "study.yaml"
+    out = run(study, RunOptions(out=args.out, samples=args.samples, pdf=not args.no_pdf,
+                                progress=_progress(args.quiet)))
+    _summary(out)
+    return 0
+
+
+def _summary(out: Path) -> None:
+    import json
+    res = json.loads((out / "results.json").read_text(encoding="utf-8"))
+
+    def t(x):
+        return "> end" if x is None else f"{x:.0f}"
+    rows = [("scenario", "route", "RSET p50", "ASET p50", "margin p05", "p_fail", "verdict")]
+    for sc in res["scenarios"]:
+        for r in sc["routes"]:
+            rows.append((sc["id"], r["id"], t(r["rset_s"]["p50"]), t(r["aset_s"]["p50"]),
+                         t(r["margin_s"]["p05"]), f"{r['p_fail']:.3f}", r["verdict"].upper()))
+        if not sc["routes"]:
+            for loc in sc["locations"]:
+                rows.append((sc["id"], f"[{loc['id']}]", "", t(loc["aset_s"]["p50"]), "", "", loc["governing"] or ""))
+    widths = [max(len(str(r[i])) for r in rows) for i in range(len(rows[0]))]
+    for r in rows:
+        print("  ".join(str(x).ljust(w) for x, w in zip(r, widths)))
+    pdf = out / "report.pdf"
+    print(f"\nresults: {out / 'results.json'}")
+    if pdf.exists():
+        print(f"report:  {pdf}")
+    print("The analysis supports, and does not replace, the judgment of a qualified fire engineer; "
+          "local codes and the approving authority govern.")
+
+
+def _validate(args) -> int:
+    from .pipeline import load
+    loaded = load(args.study)
+    for w in loaded.warnings:
+        print(str(w), file=sys.stderr)
+    n_loc = sum(len(s.locations) for s in loaded.study.scenarios)
+    print(f"{args.study}: OK — {len(loaded.study.scenarios)} scenario(s), {n_loc} location(s), "
+          f"{len(loaded.study.routes)} route(s), criteria '{loaded.study.criteria.name}', "
+          f"{'model uncertainty from ' + str(loaded.table.path) if loaded.table else 'no model-uncertainty table'}")
+    return 0
+
+
+def _fit(args) -> int:
+    from datetime import date
+
+    from . import uncertainty_fit as uf
+    pairs = uf.read_pairs(args.pairs, default_sigma_exp=args.sigma_exp)
+    source = args.source or f"fitted from the measured/predicted pairs in {args.pairs.name}"
+    table = uf.fit_table(pairs, source, date.today().isoformat())
+    for q, ws in (table.get("fitted", {}).get("warnings") or {}).items():
+        for w in ws:
+            print(f"{args.pairs}: warning: {q}: {w}", file=sys.stderr)
+    if args.out:
+        uf.write_table(table, args.out)
+        print(f"wrote {args.out}")
+    else:
+        import yaml
+        print(yaml.safe_dump(table, sort_keys=False), end="")
+    if args.plot:
+        uf.plot_fit(pairs, table, args.plot)
+        print(f"wrote {args.plot}")
+    return 0
+
+
+def _criteria(args) -> int:
+    from .criteria import bundled_names, bundled_path, load_criteria_file
+    from .errors import Problem
+    names = bundled_names()
+    if not args.name:
+        for n in names:
+            cs = load_criteria_file(bundled_path(n))
+            print(f"{n:24s} {cs.description.split('.')[0].strip()}.")
+        print("\nShow one with: egressmargin criteria NAME")
+        return 0
+    if args.name not in names:
+        from .study import did_you_mean
+        raise InputError([Problem("criteria", f"no bundled set '{args.name}'; expected one of {', '.join(names)}"
+                                  f"{did_you_mean(args.name, names)}")])
+    cs = load_criteria_file(bundled_path(args.name))
+    print(f"{cs.name}\n\n{cs.description}\n\nCriteria:")
+    for cid, c in cs.items.items():
+        extra = ", ".join(f"{k} {v}" for k, v in c.params.items())
+        print(f"  {cid:13s} limit {c.limit_text}{' (' + extra + ')' if extra else ''}"
+              f"{' — ' + c.source if c.source else ''}")
+    print("\nSources:")
+    for s in cs.sources:
+        print(f"  - {s}")
+    return 0
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

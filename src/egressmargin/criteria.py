@@ -1,0 +1,258 @@
+"""Tenability criteria sets: bundled YAML files, user files, inline overrides.
+
+A criteria set maps criterion ids to a limit in the internal unit of its quantity plus
+the parameters the method needs. Loading checks every key and collects every problem.
+"""
+
+from __future__ import annotations
+
+import difflib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .errors import InputError, Problem
+from .resources import resource_dir
+from .units import UnitProblem, parse_quantity
+from .yamlfile import Located, load_located
+
+#: criterion id -> (quantity of its limit for unit parsing, display unit, direction, words)
+CRITERIA: dict[str, tuple[str | None, str, str, str]] = {
+    "temperature": ("temperature", "degC", "above", "gas temperature reaches the limit"),
+    "visibility": ("length", "m", "below", "visibility falls to the limit"),
+    "heat_flux": ("heat_flux", "kW/m^2", "above", "radiant heat flux reaches the limit"),
+    "fed_toxic": (None, "-", "above", "fractional effective dose of asphyxiant gases reaches the limit"),
+    "fed_heat": (None, "-", "above", "fractional effective dose of heat reaches the limit"),
+    "layer_height": ("length", "m", "below", "smoke layer falls to the limit"),
+}
+
+#: Optional parameters each criterion accepts, with the quantity used to parse them
+#: (None: a plain value). Defaults and their sources live with the formulas.
+PARAMETERS: dict[str, dict[str, str | None]] = {
+    "temperature": {},
+    "visibility": {"sign_constant": None, "mass_extinction": "mass_extinction"},
+    "heat_flux": {},
+    "fed_toxic": {"method": None},
+    "fed_heat": {"radiant_threshold": "heat_flux"},
+    "layer_height": {},
+}
+
+TOXIC_METHODS = ("iso13571", "purser")
+
+
+@dataclass(frozen=True)
+class Criterion:
+    """One tenability criterion as applied."""
+
+    id: str
+    limit: float                 # internal unit of the quantity (degC, m, kW/m^2, FED -)
+    limit_text: str              # as written, e.g. "60 degC"
+    unit: str                    # display unit
+    params: dict = field(default_factory=dict)
+    source: str = ""
+
+    @property
+    def direction(self) -> str:
+        return CRITERIA[self.id][2]
+
+
+@dataclass
+class CriteriaSet:
+    name: str
+    description: str
+    sources: list[str]
+    items: dict[str, Criterion]
+    path: Path | None = None
+
+    def as_results(self) -> dict:
+        applied = {}
+        for cid, c in self.items.items():
+            entry = {"limit": _plain(c.limit_text), "unit": c.unit, "source": c.source}
+            entry.update({k: _plain(v) for k, v in c.params.items()})
+            applied[cid] = entry
+        return {"name": self.name, "description": self.description, "sources": list(self.sources),
+                "applied": applied, **{cid: {"limit": _plain(c.limit_text), "unit": c.unit}
+                                       for cid, c in self.items.items()}}
+
+
+def _plain(v):
+    return v if isinstance(v, (int, float, str, bool)) or v is None else str(v)
+
+
+def bundled_names() -> list[str]:
+    """Names of the bundled criteria sets (file stems in ``criteria/``)."""
+    return sorted(p.stem for p in resource_dir("criteria").glob("*.yaml"))
+
+
+def bundled_path(name: str) -> Path:
+    return resource_dir("criteria") / f"{name}.yaml"
+
+
+def _did_you_mean(word: str, options) -> str:
+    close = difflib.get_close_matches(str(word), [str(o) for o in options], n=1)
+    return f"; did you mean '{close[0]}'?" if close else ""
+
+
+def parse_criterion(cid: str, spec, where, problems: list[Problem], inherited: Criterion | None = None
+                    ) -> Criterion | None:
+    """Check one criterion mapping and return it in internal units (None if broken)."""
+    if not isinstance(spec, dict):
+        problems.append(Problem(where(()), f"found {spec!r}; expected a mapping such as {{limit: ...}}"))
+        return None
+    quantity, unit, _, _ = CRITERIA[cid]
+    allowed = {"limit", "source", *PARAMETERS[cid]}
+    for key in spec:
+        if key not in allowed:
+            problems.append(Problem(where((key,)), f"unknown key '{key}' for criterion '{cid}'; expected one of "
+                                    f"{', '.join(sorted(allowed))}{_did_you_mean(key, allowed)}"))
+    limit_raw = spec.get("limit", inherited.limit_text if inherited else None)
+    if limit_raw is None:
+        problems.append(Problem(where(()), f"criterion '{cid}' has no 'limit'; expected e.g. limit: "
+                                f"{'0.3' if quantity is None else '60 degC' if cid == 'temperature' else '10 m'}"))
+        return None
+    try:
+        if quantity is None:
+            if isinstance(limit_raw, bool) or not isinstance(limit_raw, (int, float)):
+                raise UnitProblem(f"found {limit_raw!r}; expected a plain number (a dose fraction, e.g. 0.3)")
+            limit = float(limit_raw)
+        else:
+            limit = parse_quantity(limit_raw, quantity)
+    except UnitProblem as exc:
+        problems.append(Problem(where(("limit",)), str(exc)))
+        return None
+    if quantity is None and not limit > 0:
+        problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a dose limit above 0"))
+        return None
+    params = dict(inherited.params) if inherited else {}
+    for key, pq in PARAMETERS[cid].items():
+        if key not in spec:
+            continue
+        value = spec[key]
+        if key == "method":
+            if value not in TOXIC_METHODS:
+                problems.append(Problem(where((key,)), f"found '{value}'; expected one of "
+                                        f"{', '.join(TOXIC_METHODS)}{_did_you_mean(value, TOXIC_METHODS)}"))
+                continue
+            params[key] = value
+        elif key == "sign_constant":
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or value <= 0:
+                problems.append(Problem(where((key,)), f"found {value!r}; expected a positive number "
+                                        "(8 for light-emitting, 3 for light-reflecting signs)"))
+                continue
+            params[key] = float(value)
+        else:
+            try:
+                params[key] = parse_quantity(value, pq)
+            except UnitProblem as exc:
+                problems.append(Problem(where((key,)), str(exc)))
+    if cid == "fed_toxic":
+        params.setdefault("method", "iso13571")
+    if cid == "visibility":
+        params.setdefault("sign_constant", 8.0)
+    source = spec.get("source", inherited.source if inherited else "")
+    return Criterion(cid, limit, str(limit_raw), unit, params, str(source))
+
+
+def load_criteria_file(path: Path) -> CriteriaSet:
+    doc = load_located(path)
+    problems: list[Problem] = []
+    cset = criteria_from_document(doc, problems)
+    if problems or cset is None:
+        raise InputError(problems)
+    return cset
+
+
+def criteria_from_document(doc: Located, problems: list[Problem]) -> CriteriaSet | None:
+    data = doc.data
+    if not isinstance(data, dict):
+        problems.append(Problem(doc.where(()), "expected a mapping with name, description, sources, criteria"))
+        return None
+    allowed = {"name", "description", "sources", "criteria"}
+    for key in data:
+        if key not in allowed:
+            problems.append(Problem(doc.where((key,)), f"unknown key '{key}'; expected one of "
+                                    f"{', '.join(sorted(allowed))}{_did_you_mean(key, allowed)}"))
+    sources = data.get("sources")
+    if not isinstance(sources, list) or not sources:
+        problems.append(Problem(doc.where(("sources",)), "expected a non-empty list of sources "
+                                "(published documents, or 'common practice')"))
+        sources = []
+    crit = data.get("criteria")
+    if not isinstance(crit, dict) or not crit:
+        problems.append(Problem(doc.where(("criteria",)), "expected a mapping of criterion ids to "
+                                f"{{limit: ...}}; ids: {', '.join(CRITERIA)}"))
+        return None
+    items = {}
+    for cid, spec in crit.items():
+        if cid not in CRITERIA:
+            problems.append(Problem(doc.where(("criteria", cid)), f"unknown criterion '{cid}'; expected one of "
+                                    f"{', '.join(CRITERIA)}{_did_you_mean(cid, CRITERIA)}"))
+            continue
+        c = parse_criterion(cid, spec, lambda kp, cid=cid: doc.where(("criteria", cid) + tuple(kp)), problems)
+        if c:
+            items[cid] = c
+    return CriteriaSet(str(data.get("name", doc.path.stem)), str(data.get("description", "")),
+                       [str(s) for s in sources], items, doc.path)
+
+
+def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> CriteriaSet | None:
+    """The study's ``criteria:`` value: a bundled name, a file path, or an inline mapping.
+
+    ``where(key_path)`` locates keys below ``criteria`` for messages.
+    """
+    names = bundled_names()
+    if isinstance(value, str):
+        return _named_or_file(value, where(()), base_dir, names, problems)
+    if not isinstance(value, dict):
+        problems.append(Problem(where(()), f"found {value!r}; expected a bundled set name "
+                                f"({', '.join(names)}), a file path, or a mapping with 'base'"))
+        return None
+    allowed = {"base", "only", *CRITERIA}
+    for key in value:
+        if key not in allowed:
+            problems.append(Problem(where((key,)), f"unknown key '{key}'; expected 'base', 'only' or a criterion id "
+                                    f"({', '.join(CRITERIA)}){_did_you_mean(key, allowed)}"))
+    base = None
+    if "base" in value:
+        base = _named_or_file(str(value["base"]), where(("base",)), base_dir, names, problems)
+        if base is None:
+            return None
+    items = dict(base.items) if base else {}
+    for cid in CRITERIA:
+        if cid in value:
+            c = parse_criterion(cid, value[cid], lambda kp, cid=cid: where((cid,) + tuple(kp)), problems,
+                                inherited=items.get(cid))
+            if c:
+                if c.source == "" or (base and c.limit_text != base.items.get(cid, c).limit_text):
+                    c = Criterion(c.id, c.limit, c.limit_text, c.unit, c.params,
+                                  "set in the study file" + (f" (overrides {base.name})" if base else ""))
+                items[cid] = c
+    if "only" in value:
+        only = value["only"]
+        if not isinstance(only, list) or not all(isinstance(x, str) for x in only):
+            problems.append(Problem(where(("only",)), f"found {only!r}; expected a list of criterion ids"))
+        else:
+            for i, cid in enumerate(only):
+                if cid not in items:
+                    problems.append(Problem(where(("only", i)), f"'{cid}' is not a criterion of this set; expected "
+                                            f"one of {', '.join(items)}{_did_you_mean(cid, items)}"))
+            items = {k: v for k, v in items.items() if k in only}
+    name = base.name + " (modified in the study)" if base else "set in the study file"
+    return CriteriaSet(name, base.description if base else "Criteria given in the study file.",
+                       list(base.sources) if base else ["as stated in the study file"], items,
+                       base.path if base else None)
+
+
+def _named_or_file(text: str, where: str, base_dir: Path, names: list[str], problems) -> CriteriaSet | None:
+    if text in names:
+        path = bundled_path(text)
+    else:
+        path = (base_dir / text)
+        if not path.is_file():
+            problems.append(Problem(where, f"'{text}' is neither a bundled criteria set ({', '.join(names)}) nor an "
+                                    f"existing file{_did_you_mean(text, names)}"))
+            return None
+    try:
+        return load_criteria_file(path)
+    except InputError as exc:
+        problems.extend(exc.problems)
+        return None

@@ -1,0 +1,38 @@
+"""Percentile summaries of Monte Carlo samples, with 'not reached' kept as such."""
+
+from __future__ import annotations
+
+import numpy as np
+
+PERCENTILES = (("p05", 5.0), ("p50", 50.0), ("p95", 95.0))
+
+
+def percentile_or_none(samples, q: float) -> float | None:
+    """The q-th percentile (linear interpolation, numpy's default) of ``samples``.
+
+    NaN and +inf both mean "not reached by the end of the histories". A percentile whose
+    interpolation touches such a sample is None ("> end"), never clipped to the end time.
+    """
+    x = np.sort(np.where(np.isnan(samples), np.inf, np.asarray(samples, float)).ravel())
+    if x.size == 0:
+        return None
+    pos = (x.size - 1) * q / 100.0
+    lo, hi = int(np.floor(pos)), int(np.ceil(pos))
+    if not (np.isfinite(x[lo]) and np.isfinite(x[hi])):
+        return None
+    return float(x[lo] + (x[hi] - x[lo]) * (pos - lo))
+
+
+def summarise(samples, ndigits: int = 3) -> dict:
+    """``{p05, p50, p95}`` of the samples, None where not reached."""
+    out = {}
+    for name, q in PERCENTILES:
+        v = percentile_or_none(samples, q)
+        out[name] = None if v is None else round(v, ndigits)
+    return out
+
+
+def share(mask) -> float:
+    """Fraction of True in ``mask``."""
+    mask = np.asarray(mask, bool)
+    return float(mask.mean()) if mask.size else 0.0

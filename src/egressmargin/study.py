@@ -1,0 +1,685 @@
+"""The study file: schema, loading, and every validation error, located.
+
+:func:`load_study` reads the YAML, checks every key against the schema of the contract
+(plus the documented extensions), converts every quantity to internal units and returns
+a :class:`Study` of plain values. It collects all problems before raising one
+:class:`~egressmargin.errors.InputError`.
+"""
+
+from __future__ import annotations
+
+import difflib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .criteria import CriteriaSet, resolve_criteria
+from .errors import InputError, Problem
+from .units import UnitProblem, check_unit, parse_quantity
+from .yamlfile import Located, load_located
+
+#: Location series keys (contract) plus `velocity` (for detector response).
+SERIES_KEYS = ("temperature", "co", "co2", "o2", "hcn", "extinction", "optical_density", "soot",
+               "visibility", "heat_flux", "layer_height", "velocity")
+SMOKE_KEYS = ("extinction", "optical_density", "soot", "visibility")
+DISTRIBUTIONS = {"lognormal": ("median", "p95"), "normal": ("mean", "sd"), "uniform": ("low", "high"),
+                 "triangular": ("low", "mode", "high")}
+ELEMENTS = {"corridor": ("length", "width"), "door": ("width",), "stair": ("length", "width", "riser", "tread"),
+            "ramp": ("length", "width")}
+ELEMENT_OPTIONAL = {"boundary", "length"}
+TOP_KEYS = {"title", "criteria", "uncertainty", "samples", "seed", "acceptance", "scenarios", "egress",
+            "reference", "prepared_by", "prepared_for", "paper"}
+SCENARIO_KEYS = {"id", "title", "histories", "time", "units_row", "locations", "ambient", "resolutions"}
+LOCATION_KEYS = {"id", "title", "temperature_profile", *SERIES_KEYS}
+ROUTE_KEYS = {"id", "title", "scenarios", "occupants", "detection", "alarm", "premovement", "path",
+              "exposed_at", "movement", "exposure"}
+DEFAULT_SAMPLES = 2000
+DEFAULT_SEED = 1
+
+
+@dataclass
+class SeriesRef:
+    """A column of a histories file mapped to a series key; unit None: from the header."""
+
+    key: str
+    column: str
+    unit: str | None
+    where: str
+
+
+@dataclass
+class ProfileRef:
+    columns: list[str]
+    heights_m: list[float]
+    ceiling_m: float
+    unit: str | None
+    where: str
+
+
+@dataclass
+class LocationSpec:
+    id: str
+    title: str
+    series: dict[str, SeriesRef]
+    profile: ProfileRef | None
+    where: str
+
+
+@dataclass
+class ResolutionSpec:
+    cell_m: float
+    histories: Path
+    where: str
+
+
+@dataclass
+class ScenarioSpec:
+    id: str
+    title: str
+    histories: Path
+    time: SeriesRef
+    units_row: bool
+    locations: list[LocationSpec]
+    ambient_temperature_c: float | None = None
+    ambient_o2: float | None = None
+    resolutions: list[ResolutionSpec] = field(default_factory=list)
+    where: str = ""
+
+
+@dataclass
+class DetectorRule:
+    kind: str                       # "heat" | "smoke"
+    location: str
+    rti: float = 0.0                # m^0.5 s^0.5
+    activation_c: float = 0.0       # degC
+    velocity_m_s: float | None = None
+    extinction_per_m: float = 0.0   # smoke threshold as natural-log extinction coefficient
+    threshold_text: str = ""
+    where: str = ""
+
+
+@dataclass
+class RouteSpec:
+    id: str
+    title: str
+    scenarios: list[str] | None
+    occupants: int
+    detection: dict | DetectorRule
+    alarm: dict
+    premovement: dict
+    path: list[dict]
+    exposed_at: list[str]
+    movement_mode: str = "sum"
+    along_route: bool = False
+    where: str = ""
+
+
+@dataclass
+class Study:
+    path: Path
+    title: str
+    criteria: CriteriaSet
+    scenarios: list[ScenarioSpec]
+    routes: list[RouteSpec]
+    uncertainty_path: Path | None = None
+    samples: int = DEFAULT_SAMPLES
+    seed: int = DEFAULT_SEED
+    max_p_fail: float = 0.05
+    reference: str = ""
+    prepared_by: str = ""
+    prepared_for: str = ""
+    paper: str = "A4"
+    warnings: list[Problem] = field(default_factory=list)
+
+    @property
+    def base_dir(self) -> Path:
+        return self.path.parent
+
+
+def did_you_mean(word, options) -> str:
+    close = difflib.get_close_matches(str(word), [str(o) for o in options], n=1)
+    return f"; did you mean '{close[0]}'?" if close else ""
+
+
+class _Checker:
+    """Walks the located document and collects problems."""
+
+    def __init__(self, doc: Located):
+        self.doc = doc
+        self.problems: list[Problem] = []
+
+    def err(self, kp, message):
+        self.problems.append(Problem(self.doc.where(kp), message))
+
+    def warn(self, kp, message):
+        self.problems.append(Problem(self.doc.where(kp), message, warning=True))
+
+    def keys(self, value, kp, allowed, what):
+        if not isinstance(value, dict):
+            self.err(kp, f"found {_show(value)}; expected a mapping ({what})")
+            return False
+        for key in value:
+            if key not in allowed:
+                self.err(kp + (key,), f"unknown key '{key}' in {what}; expected one of "
+                         f"{', '.join(sorted(allowed))}{did_you_mean(key, allowed)}")
+        return True
+
+    def require(self, value: dict, kp, key, expected):
+        if key not in value:
+            self.err(kp, f"missing key '{key}'; expected {expected}")
+            return False
+        return True
+
+    def text(self, value, kp, default=""):
+        if value is None:
+            return default
+        if not isinstance(value, (str, int, float)) or isinstance(value, bool):
+            self.err(kp, f"found {_show(value)}; expected text")
+            return default
+        return str(value)
+
+    def ident(self, value, kp):
+        if not isinstance(value, (str, int)) or isinstance(value, bool) or str(value).strip() == "":
+            self.err(kp, f"found {_show(value)}; expected a short identifier such as 'atrium-l1'")
+            return None
+        return str(value)
+
+    def quantity(self, value, kp, quantity, positive=False, default_unit=None):
+        try:
+            v = parse_quantity(value, quantity, default_unit)
+        except UnitProblem as exc:
+            self.err(kp, str(exc))
+            return None
+        if positive and not v > 0:
+            self.err(kp, f"found {_show(value)}; expected a value above zero")
+            return None
+        return v
+
+    def distribution(self, value, kp, what):
+        """A time: fixed ('60 s') or a distribution mapping, returned in seconds."""
+        if isinstance(value, dict) and len(value) == 1 and next(iter(value)) in DISTRIBUTIONS:
+            name, params = next(iter(value.items()))
+            needed = DISTRIBUTIONS[name]
+            if not self.keys(params, kp + (name,), set(needed), f"a {name} distribution ({', '.join(needed)})"):
+                return None
+            out = {}
+            for p in needed:
+                if p not in params:
+                    self.err(kp + (name,), f"missing '{p}' for the {name} distribution; expected "
+                             f"{', '.join(needed)} as times, e.g. '90 s'")
+                    continue
+                v = self.quantity(params[p], kp + (name, p), "duration")
+                if v is not None:
+                    out[p] = v
+            if len(out) != len(needed):
+                return None
+            spec = {name: out}
+            from .egress.distributions import check_spec
+            for msg in check_spec(spec):
+                self.err(kp + (name,), msg)
+            return spec
+        if isinstance(value, dict):
+            self.err(kp, f"found {_show(value)}; expected {what}: a time such as '60 s' or one of "
+                     f"{', '.join('{' + k + ': {...}}' for k in DISTRIBUTIONS)}"
+                     f"{did_you_mean(next(iter(value), ''), DISTRIBUTIONS) if value else ''}")
+            return None
+        v = self.quantity(value, kp, "duration")
+        if v is None:
+            return None
+        if v < 0:
+            self.err(kp, f"found {_show(value)}; expected a time of zero or more")
+            return None
+        return {"fixed": v}
+
+
+def _show(value) -> str:
+    text = repr(value)
+    return text if len(text) < 60 else text[:57] + "..."
+
+
+def load_study(path: str | Path) -> Study:
+    """Load and check a study file; raise InputError listing every problem."""
+    path = Path(path)
+    doc = load_located(path)
+    ck = _Checker(doc)
+    data = doc.data
+    if not ck.keys(data, (), TOP_KEYS, "the study file"):
+        raise InputError(ck.problems)
+    base = path.parent
+    title = ck.text(data.get("title"), ("title",), default=path.stem)
+    if "title" not in data:
+        ck.warn((), "no 'title'; the report will use the file name")
+
+    criteria = None
+    if ck.require(data, (), "criteria", "a bundled set name, a criteria file, or a mapping with 'base'"):
+        criteria = resolve_criteria(data["criteria"], lambda kp: doc.where(("criteria",) + tuple(kp)),
+                                    base, ck.problems)
+
+    unc_path = None
+    if data.get("uncertainty") is not None:
+        unc = data["uncertainty"]
+        if not isinstance(unc, str):
+            ck.err(("uncertainty",), f"found {_show(unc)}; expected the path of a model-uncertainty YAML file")
+        else:
+            unc_path = base / unc
+            if not unc_path.is_file():
+                ck.err(("uncertainty",), f"file '{unc}' not found (looked at {unc_path}); expected a "
+                       "model-uncertainty YAML file relative to the study file")
+
+    samples = _int(ck, data.get("samples", DEFAULT_SAMPLES), ("samples",), low=1, what="a number of Monte Carlo samples")
+    seed = _int(ck, data.get("seed", DEFAULT_SEED), ("seed",), low=0, what="a seed (whole number >= 0)")
+    max_p_fail = 0.05
+    if "acceptance" in data:
+        acc = data["acceptance"]
+        if ck.keys(acc, ("acceptance",), {"max_p_fail"}, "acceptance"):
+            if "max_p_fail" in acc:
+                v = acc["max_p_fail"]
+                if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 <= v < 1:
+                    ck.err(("acceptance", "max_p_fail"), f"found {_show(v)}; expected a probability in [0, 1)")
+                else:
+                    max_p_fail = float(v)
+    paper = ck.text(data.get("paper"), ("paper",), default="A4")
+    if paper.lower() not in ("a4", "letter"):
+        ck.err(("paper",), f"found '{paper}'; expected A4 or letter")
+
+    scenarios = _scenarios(ck, data.get("scenarios"), base)
+    loc_ids = {s.id: {loc.id: loc for loc in s.locations} for s in scenarios}
+    routes = _routes(ck, data.get("egress", []), loc_ids)
+
+    errors = [p for p in ck.problems if not p.warning]
+    if errors or criteria is None:
+        raise InputError(ck.problems)
+    return Study(path=path, title=title, criteria=criteria, scenarios=scenarios, routes=routes,
+                 uncertainty_path=unc_path, samples=samples, seed=seed, max_p_fail=max_p_fail,
+                 reference=ck.text(data.get("reference"), ("reference",)),
+                 prepared_by=ck.text(data.get("prepared_by"), ("prepared_by",)),
+                 prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),
+                 paper="letter" if paper.lower() == "letter" else "A4",
+                 warnings=[p for p in ck.problems if p.warning])
+
+
+def _int(ck, value, kp, low, what):
+    if isinstance(value, bool) or not isinstance(value, int) or value < low:
+        ck.err(kp, f"found {_show(value)}; expected {what}")
+        return low if low > 0 else 0
+    return value
+
+
+def _series_ref(ck, key, value, kp) -> SeriesRef | None:
+    where = ck.doc.where(kp)
+    if isinstance(value, str) and value.strip():
+        return SeriesRef(key, value.strip(), None, where)
+    if isinstance(value, dict):
+        if not ck.keys(value, kp, {"column", "unit"}, f"the '{key}' series"):
+            return None
+        col = value.get("column")
+        if not isinstance(col, str) or not col.strip():
+            ck.err(kp, f"missing 'column' for '{key}'; expected {{column: <CSV column name>, unit: <unit>}}")
+            return None
+        unit = value.get("unit")
+        if unit is not None:
+            quantity = "time" if key == "time" else key
+            msg = check_unit(str(unit), quantity)
+            if msg:
+                ck.err(kp + ("unit",), msg)
+                return None
+            unit = str(unit)
+        return SeriesRef(key, col.strip(), unit, where)
+    ck.err(kp, f"found {_show(value)}; expected a column name or {{column: ..., unit: ...}}")
+    return None
+
+
+def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
+    if value is None:
+        ck.err((), "missing key 'scenarios'; expected a list of scenarios with histories and locations")
+        return []
+    if not isinstance(value, list) or not value:
+        ck.err(("scenarios",), f"found {_show(value)}; expected a non-empty list of scenarios")
+        return []
+    out, seen = [], {}
+    for i, sc in enumerate(value):
+        kp = ("scenarios", i)
+        if not ck.keys(sc, kp, SCENARIO_KEYS, "a scenario"):
+            continue
+        sid = ck.ident(sc.get("id"), kp + ("id",)) if "id" in sc else None
+        if sid is None:
+            if "id" not in sc:
+                ck.err(kp, "missing key 'id'; expected a short scenario identifier")
+            continue
+        if sid in seen:
+            ck.err(kp + ("id",), f"duplicate scenario id '{sid}' (first at scenarios[{seen[sid]}]); "
+                   "expected unique ids")
+        seen[sid] = i
+        resolutions = _resolutions(ck, sc.get("resolutions"), kp + ("resolutions",), base)
+        hist = None
+        if "histories" in sc:
+            if not isinstance(sc["histories"], str):
+                ck.err(kp + ("histories",), f"found {_show(sc['histories'])}; expected a CSV path")
+            else:
+                hist = base / sc["histories"]
+                if not hist.is_file():
+                    ck.err(kp + ("histories",), f"file '{sc['histories']}' not found (looked at {hist}); "
+                           "expected a CSV file relative to the study file")
+        if resolutions:
+            finest = min(resolutions, key=lambda r: r.cell_m)
+            if hist is None:
+                hist = finest.histories
+            elif hist.resolve() != finest.histories.resolve():
+                ck.err(kp + ("histories",), f"'{sc['histories']}' is not the finest resolution's histories "
+                       f"({finest.histories.name}); expected the assessed histories to be the finest grid")
+        elif hist is None and "histories" not in sc:
+            ck.err(kp, "missing key 'histories'; expected the path of the scenario's CSV time histories")
+        time = _series_ref(ck, "time", sc.get("time", "Time") if "time" in sc else None, kp + ("time",)) \
+            if "time" in sc else None
+        if "time" not in sc:
+            ck.err(kp, "missing key 'time'; expected the name of the time column, e.g. time: Time")
+        units_row = sc.get("units_row", False)
+        if not isinstance(units_row, bool):
+            ck.err(kp + ("units_row",), f"found {_show(units_row)}; expected true or false")
+            units_row = False
+        amb_t = amb_o2 = None
+        if "ambient" in sc and ck.keys(sc["ambient"], kp + ("ambient",), {"temperature", "o2"}, "ambient"):
+            if "temperature" in sc["ambient"]:
+                amb_t = ck.quantity(sc["ambient"]["temperature"], kp + ("ambient", "temperature"), "temperature")
+            if "o2" in sc["ambient"]:
+                amb_o2 = ck.quantity(sc["ambient"]["o2"], kp + ("ambient", "o2"), "o2")
+                if amb_o2 is not None and not 0 < amb_o2 <= 1:
+                    ck.err(kp + ("ambient", "o2"), "expected an oxygen fraction in (0, 100] percent")
+        locations = _locations(ck, sc.get("locations"), kp + ("locations",))
+        out.append(ScenarioSpec(sid, ck.text(sc.get("title"), kp + ("title",), default=sid), hist, time,
+                                units_row, locations, amb_t, amb_o2, resolutions, ck.doc.where(kp)))
+    return out
+
+
+def _resolutions(ck, value, kp, base) -> list[ResolutionSpec]:
+    if value is None:
+        return []
+    if not isinstance(value, list) or len(value) < 2:
+        ck.err(kp, f"found {_show(value)}; expected a list of 2 or 3 {{cell: <size>, histories: <csv>}}")
+        return []
+    out = []
+    for j, r in enumerate(value):
+        if not ck.keys(r, kp + (j,), {"cell", "histories"}, "a resolution"):
+            continue
+        cell = ck.quantity(r.get("cell"), kp + (j, "cell"), "length", positive=True) if "cell" in r else None
+        if "cell" not in r:
+            ck.err(kp + (j,), "missing 'cell'; expected the grid cell size, e.g. cell: 0.1 m")
+        h = r.get("histories")
+        if not isinstance(h, str):
+            ck.err(kp + (j,), "missing 'histories'; expected the CSV of this resolution")
+            continue
+        path = base / h
+        if not path.is_file():
+            ck.err(kp + (j, "histories"), f"file '{h}' not found (looked at {path}); expected a CSV file")
+            continue
+        if cell is not None:
+            out.append(ResolutionSpec(cell, path, ck.doc.where(kp + (j,))))
+    if len(out) == len(value):
+        from .credibility import refinement_problems
+        for msg in refinement_problems([r.cell_m for r in out]):
+            ck.err(kp, msg)
+    return out
+
+
+def _locations(ck, value, kp) -> list[LocationSpec]:
+    if not isinstance(value, list) or not value:
+        ck.err(kp, f"found {_show(value)}; expected a non-empty list of locations")
+        return []
+    out, seen = [], {}
+    for j, loc in enumerate(value):
+        lkp = kp + (j,)
+        if not ck.keys(loc, lkp, LOCATION_KEYS, "a location"):
+            continue
+        if "id" not in loc:
+            ck.err(lkp, "missing key 'id'; expected a short location identifier")
+            continue
+        lid = ck.ident(loc["id"], lkp + ("id",))
+        if lid is None:
+            continue
+        if lid in seen:
+            ck.err(lkp + ("id",), f"duplicate location id '{lid}' (first at locations[{seen[lid]}]); "
+                   "expected unique ids within a scenario")
+            continue
+        seen[lid] = j
+        series = {}
+        for key in SERIES_KEYS:
+            if key in loc:
+                ref = _series_ref(ck, key, loc[key], lkp + (key,))
+                if ref:
+                    series[key] = ref
+        smoke = [k for k in SMOKE_KEYS if k in series]
+        if len(smoke) > 1:
+            ck.warn(lkp, f"several smoke series given ({', '.join(smoke)}); the visibility criterion uses "
+                    f"'{smoke[0]}' (order of preference: {', '.join(SMOKE_KEYS)})")
+        profile = None
+        if "temperature_profile" in loc:
+            profile = _profile(ck, loc["temperature_profile"], lkp + ("temperature_profile",))
+            if profile and "layer_height" in series:
+                ck.warn(lkp, "both 'layer_height' and 'temperature_profile' given; the given layer_height is used")
+        if not series and profile is None:
+            ck.warn(lkp, "no series mapped at this location; every criterion will be 'not assessed' here")
+        out.append(LocationSpec(lid, ck.text(loc.get("title"), lkp + ("title",), default=lid), series, profile,
+                                ck.doc.where(lkp)))
+    return out
+
+
+def _profile(ck, value, kp) -> ProfileRef | None:
+    if not ck.keys(value, kp, {"columns", "heights", "ceiling", "unit"}, "a temperature profile"):
+        return None
+    ok = all(ck.require(value, kp, k, e) for k, e in
+             (("columns", "a list of temperature column names, lowest first"),
+              ("heights", "a list of sensor heights, e.g. [0.5 m, 1.0 m]"),
+              ("ceiling", "the ceiling height, e.g. 4.0 m")))
+    if not ok:
+        return None
+    cols, heights = value["columns"], value["heights"]
+    if not isinstance(cols, list) or len(cols) < 2 or not all(isinstance(c, str) for c in cols):
+        ck.err(kp + ("columns",), f"found {_show(cols)}; expected a list of two or more column names")
+        return None
+    if not isinstance(heights, list) or len(heights) != len(cols):
+        ck.err(kp + ("heights",), f"found {_show(heights)}; expected {len(cols)} heights, one per column")
+        return None
+    hs = [ck.quantity(h, kp + ("heights", i), "length") for i, h in enumerate(heights)]
+    ceiling = ck.quantity(value["ceiling"], kp + ("ceiling",), "length", positive=True)
+    if any(h is None for h in hs) or ceiling is None:
+        return None
+    if any(b <= a for a, b in zip(hs, hs[1:])) or hs[0] < 0 or hs[-1] > ceiling:
+        ck.err(kp + ("heights",), f"found heights {heights}; expected strictly increasing heights between the "
+               f"floor and the ceiling ({value['ceiling']})")
+        return None
+    unit = value.get("unit")
+    if unit is not None:
+        msg = check_unit(str(unit), "temperature")
+        if msg:
+            ck.err(kp + ("unit",), msg)
+            return None
+        unit = str(unit)
+    return ProfileRef([c.strip() for c in cols], hs, ceiling, unit, ck.doc.where(kp))
+
+
+def _routes(ck, value, loc_ids: dict[str, dict]) -> list[RouteSpec]:
+    if value is None or value == []:
+        return []
+    if not isinstance(value, list):
+        ck.err(("egress",), f"found {_show(value)}; expected a list of escape routes")
+        return []
+    out, seen = [], {}
+    all_scen = list(loc_ids)
+    for i, r in enumerate(value):
+        kp = ("egress", i)
+        if not ck.keys(r, kp, ROUTE_KEYS, "an escape route"):
+            continue
+        if "id" not in r:
+            ck.err(kp, "missing key 'id'; expected a short route identifier")
+            continue
+        rid = ck.ident(r["id"], kp + ("id",))
+        if rid is None:
+            continue
+        if rid in seen:
+            ck.err(kp + ("id",), f"duplicate route id '{rid}' (first at egress[{seen[rid]}]); expected unique ids")
+        seen[rid] = i
+        scen = r.get("scenarios")
+        if scen is not None:
+            if not isinstance(scen, list) or not scen:
+                ck.err(kp + ("scenarios",), f"found {_show(scen)}; expected a list of scenario ids")
+                scen = None
+            else:
+                for j, s in enumerate(scen):
+                    if s not in loc_ids:
+                        ck.err(kp + ("scenarios", j), f"no scenario '{s}'; expected one of "
+                               f"{', '.join(all_scen)}{did_you_mean(s, all_scen)}")
+                scen = [str(s) for s in scen]
+        occ = r.get("occupants")
+        if isinstance(occ, bool) or not isinstance(occ, int) or occ <= 0:
+            ck.err(kp + ("occupants",), f"found {_show(occ)}; expected a positive whole number of occupants")
+            occ = 1
+        for key in ("detection", "alarm", "premovement", "path", "exposed_at"):
+            if key not in r:
+                ck.err(kp, f"missing key '{key}' for route '{rid}'")
+        covered = scen or all_scen
+        exposed = []
+        if "exposed_at" in r:
+            ex = r["exposed_at"]
+            if not isinstance(ex, list) or not ex:
+                ck.err(kp + ("exposed_at",), f"found {_show(ex)}; expected a list of location ids the occupants pass")
+            else:
+                for j, lid in enumerate(ex):
+                    missing = [s for s in covered if s in loc_ids and lid not in loc_ids[s]]
+                    if missing:
+                        known = sorted({x for s in covered if s in loc_ids for x in loc_ids[s]})
+                        ck.err(kp + ("exposed_at", j), f"location '{lid}' does not exist in scenario "
+                               f"{', '.join(missing)}; expected one of {', '.join(known)}{did_you_mean(lid, known)}")
+                    exposed.append(str(lid))
+        detection = _detection(ck, r.get("detection"), kp + ("detection",), covered, loc_ids) \
+            if "detection" in r else None
+        alarm = ck.distribution(r["alarm"], kp + ("alarm",), "an alarm delay") if "alarm" in r else None
+        pre = ck.distribution(r["premovement"], kp + ("premovement",), "a pre-movement time") \
+            if "premovement" in r else None
+        path = _path(ck, r.get("path"), kp + ("path",)) if "path" in r else []
+        mode = r.get("movement", "sum")
+        if mode not in ("sum", "max"):
+            ck.err(kp + ("movement",), f"found {_show(mode)}; expected 'sum' (travel plus queue) or 'max' "
+                   "(the larger of the two)")
+        exposure = r.get("exposure")
+        if exposure not in (None, "along-route", "location"):
+            ck.err(kp + ("exposure",), f"found {_show(exposure)}; expected 'along-route'")
+        out.append(RouteSpec(rid, ck.text(r.get("title"), kp + ("title",), default=rid), scen, occ, detection,
+                             alarm, pre, path, exposed, mode if mode in ("sum", "max") else "sum",
+                             exposure == "along-route", ck.doc.where(kp)))
+    return out
+
+
+def _detection(ck, value, kp, covered, loc_ids):
+    if isinstance(value, dict) and len(value) == 1 and next(iter(value)) in ("heat", "smoke"):
+        kind, spec = next(iter(value.items()))
+        allowed = {"location", "rti", "activation", "velocity"} if kind == "heat" else \
+            {"location", "extinction", "optical_density", "obscuration"}
+        if not ck.keys(spec, kp + (kind,), allowed, f"a {kind}-detection rule"):
+            return None
+        lid = spec.get("location")
+        if lid is None:
+            ck.err(kp + (kind,), "missing 'location'; expected the id of the location at the detector")
+            return None
+        rule = DetectorRule(kind, str(lid), where=ck.doc.where(kp + (kind,)))
+        for s in covered:
+            if s not in loc_ids:
+                continue
+            loc = loc_ids[s].get(str(lid))
+            if loc is None:
+                known = sorted(loc_ids[s])
+                ck.err(kp + (kind, "location"), f"location '{lid}' does not exist in scenario {s}; expected one "
+                       f"of {', '.join(known)}{did_you_mean(lid, known)}")
+                continue
+            need = ["temperature"] if kind == "heat" else []
+            if kind == "heat" and "velocity" not in spec and "velocity" not in loc.series:
+                ck.err(kp + (kind,), f"location '{lid}' in scenario {s} has no 'velocity' series and the rule "
+                       "gives no constant 'velocity'; expected one of them for the RTI model")
+            if kind == "smoke" and not any(k in loc.series for k in SMOKE_KEYS):
+                ck.err(kp + (kind, "location"), f"location '{lid}' in scenario {s} has no smoke series "
+                       f"({', '.join(SMOKE_KEYS)}); expected one for smoke detection")
+            for k in need:
+                if k not in loc.series:
+                    ck.err(kp + (kind, "location"), f"location '{lid}' in scenario {s} has no '{k}' series; "
+                           f"expected one for {kind} detection")
+        if kind == "heat":
+            for k in ("rti", "activation"):
+                if k not in spec:
+                    ck.err(kp + (kind,), f"missing '{k}'; expected rti (m^0.5 s^0.5) and activation temperature")
+            if "rti" in spec:
+                rule.rti = ck.quantity(spec["rti"], kp + (kind, "rti"), "rti", positive=True,
+                                       default_unit="m^0.5*s^0.5") or 0.0
+            if "activation" in spec:
+                rule.activation_c = ck.quantity(spec["activation"], kp + (kind, "activation"), "temperature") or 0.0
+            if "velocity" in spec:
+                rule.velocity_m_s = ck.quantity(spec["velocity"], kp + (kind, "velocity"), "velocity", positive=True)
+        else:
+            given = [k for k in ("extinction", "optical_density", "obscuration") if k in spec]
+            if len(given) != 1:
+                ck.err(kp + (kind,), "expected exactly one threshold: extinction (1/m), optical_density (1/m) or "
+                       "obscuration (percent per metre)")
+                return rule
+            k = given[0]
+            rule.threshold_text = f"{k} {spec[k]}"
+            if k == "obscuration":
+                frac = ck.quantity(spec[k], kp + (kind, k), "fraction", positive=True)
+                if frac is not None and frac >= 1:
+                    ck.err(kp + (kind, k), f"found {spec[k]!r}; expected an obscuration below 100 percent per metre")
+                    frac = None
+                if frac is not None:
+                    from .egress.detection import optical_density_from_obscuration
+                    from .tenability.visibility import extinction_from_optical_density
+                    rule.extinction_per_m = float(extinction_from_optical_density(
+                        optical_density_from_obscuration(frac)))
+            else:
+                v = ck.quantity(spec[k], kp + (kind, k), k, positive=True)
+                if v is not None:
+                    if k == "optical_density":
+                        from .tenability.visibility import extinction_from_optical_density
+                        v = float(extinction_from_optical_density(v))
+                    rule.extinction_per_m = v
+        return rule
+    return ck.distribution(value, kp, "a detection time, a distribution, or a {heat: ...} / {smoke: ...} rule")
+
+
+def _path(ck, value, kp) -> list[dict]:
+    if not isinstance(value, list) or not value:
+        ck.err(kp, f"found {_show(value)}; expected a list of path elements ({', '.join(ELEMENTS)})")
+        return []
+    out = []
+    for j, el in enumerate(value):
+        ekp = kp + (j,)
+        if not isinstance(el, dict) or len(el) != 1:
+            ck.err(ekp, f"found {_show(el)}; expected one element such as {{door: {{width: 0.9 m}}}}")
+            continue
+        kind, spec = next(iter(el.items()))
+        if kind not in ELEMENTS:
+            ck.err(ekp + (kind,), f"unknown path element '{kind}'; expected one of {', '.join(ELEMENTS)}"
+                   f"{did_you_mean(kind, ELEMENTS)}")
+            continue
+        needed = ELEMENTS[kind]
+        if not ck.keys(spec, ekp + (kind,), set(needed) | ELEMENT_OPTIONAL, f"a {kind}"):
+            continue
+        vals = {}
+        for p in needed:
+            if p not in spec:
+                ck.err(ekp + (kind,), f"missing '{p}' for the {kind}; expected {', '.join(needed)} with units")
+                continue
+            vals[p] = ck.quantity(spec[p], ekp + (kind, p), "length", positive=True)
+        for p in ELEMENT_OPTIONAL - set(needed):
+            if p in spec:
+                vals[p] = ck.quantity(spec[p], ekp + (kind, p), "length", positive=(p != "boundary"))
+        if any(v is None for v in vals.values()) or len(vals) < len(needed):
+            continue
+        element = {"type": kind, "length_m": vals.get("length", 0.0), "width_m": vals["width"],
+                   "riser_m": vals.get("riser"), "tread_m": vals.get("tread"), "boundary_m": vals.get("boundary")}
+        from .egress.movement import effective_width
+        try:
+            we = effective_width(element["width_m"], kind, element["boundary_m"])
+            if we <= 0:
+                raise ValueError("no effective width")
+        except ValueError as exc:
+            ck.err(ekp + (kind, "width"), f"width {spec['width']} leaves no effective width after the boundary "
+                   f"layers ({exc}); expected a wider element")
+            continue
+        element["where"] = ck.doc.where(ekp)
+        out.append(element)
+    return out

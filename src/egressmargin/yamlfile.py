@@ -1,0 +1,101 @@
+"""YAML reading that remembers the line of every key, for located error messages."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import yaml
+
+from .errors import InputError, Problem
+
+Path_ = tuple  # a key path: ("scenarios", 0, "locations", 1, "co")
+
+
+@dataclass
+class Located:
+    """A YAML document as plain Python objects with the line of each key path (1-based)."""
+
+    data: object
+    lines: dict = field(default_factory=dict)
+    path: Path = Path(".")
+
+    def line(self, key_path: Path_) -> int | None:
+        """Line of ``key_path`` or of its nearest located parent."""
+        kp = tuple(key_path)
+        while kp:
+            if kp in self.lines:
+                return self.lines[kp]
+            kp = kp[:-1]
+        return self.lines.get((), None)
+
+    def where(self, key_path: Path_) -> str:
+        """``file:line key.path[0].sub`` for messages."""
+        line = self.line(key_path)
+        loc = f"{self.path}:{line}" if line else f"{self.path}"
+        dotted = format_key_path(key_path)
+        return f"{loc} {dotted}" if dotted else loc
+
+
+def format_key_path(key_path: Path_) -> str:
+    out = ""
+    for part in key_path:
+        if isinstance(part, int):
+            out += f"[{part}]"
+        else:
+            out += ("." if out else "") + str(part)
+    return out
+
+
+def _build(node, key_path, lines):
+    lines.setdefault(key_path, node.start_mark.line + 1)
+    if isinstance(node, yaml.MappingNode):
+        out = {}
+        for knode, vnode in node.value:
+            key = _construct_scalar(knode)
+            kp = key_path + (key,)
+            lines[kp] = knode.start_mark.line + 1
+            out[key] = _build(vnode, kp, lines)
+        return out
+    if isinstance(node, yaml.SequenceNode):
+        return [_build(v, key_path + (i,), lines) for i, v in enumerate(node.value)]
+    return _construct_scalar(node)
+
+
+def _construct_scalar(node):
+    loader = yaml.SafeLoader("")
+    try:
+        return loader.construct_object(node, deep=True)
+    finally:
+        loader.dispose()
+
+
+def load_located(path: Path) -> Located:
+    """Read a YAML file safely, keeping key lines. Raises InputError on unreadable YAML."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise InputError([Problem(str(path), "file not found; expected a YAML file at this path")]) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError([Problem(str(path), f"cannot read the file ({exc}); expected UTF-8 YAML text")]) from None
+    return load_located_text(text, path)
+
+
+def load_located_text(text: str, path: Path) -> Located:
+    try:
+        node = yaml.compose(text, Loader=yaml.SafeLoader)
+    except yaml.YAMLError as exc:
+        mark = getattr(exc, "problem_mark", None)
+        where = f"{path}:{mark.line + 1}" if mark else str(path)
+        what = getattr(exc, "problem", None) or str(exc)
+        col = f" (column {mark.column + 1})" if mark else ""
+        raise InputError([Problem(where, f"YAML syntax error{col}: {what}; expected valid YAML")]) from None
+    if node is None:
+        return Located({}, {(): 1}, path)
+    lines: dict = {}
+    try:
+        data = _build(node, (), lines)
+    except yaml.YAMLError as exc:
+        raise InputError([Problem(str(path), f"YAML error: {exc}")]) from None
+    return Located(data, lines, path)
