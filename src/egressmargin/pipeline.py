@@ -320,61 +320,66 @@ def _outside_range(table, prep, data, cid, li, raw_t, times, factors) -> str | N
 
 
 def _plot_locations(prep, crit, factors, corr) -> dict:
-    out = {}
+    out = {lid: {} for lid in prep.ids}
     sub = {k: v[:BAND_SAMPLES] for k, v in factors.items()}
     S = len(next(iter(sub.values()))) if sub else 0
     labels = {"temperature": ("Gas temperature", "degC"), "visibility": ("Visibility", "m"),
               "heat_flux": ("Radiant heat flux", "kW/m^2"), "layer_height": ("Smoke layer height", "m"),
               "fed_toxic": ("FED, asphyxiant gases", "-"), "fed_heat": ("FED, heat", "-")}
-    for li, lid in enumerate(prep.ids):
-        entry = {}
-        for cid, c in crit.items.items():
-            if not corr[cid].assessed[li]:
-                continue
-            raw, band = _curves(prep, c, li, sub, S)
-            label, unit = labels[cid]
-            entry[cid] = {"label": label, "unit": unit, "raw": raw, "band": band, "limit": c.limit,
-                          "direction": c.direction}
-        out[lid] = entry
+    for cid, c in crit.items.items():
+        rows = np.flatnonzero(corr[cid].assessed)
+        if rows.size == 0:
+            continue
+        if cid in ("fed_toxic", "fed_heat"):
+            curves = _dose_curves(prep, c, rows, sub, S)
+        else:
+            curves = {li: _series_curves(prep, c, li, sub, S) for li in rows}
+        label, unit = labels[cid]
+        for li in rows:
+            raw, band = curves[li]
+            out[prep.ids[li]][cid] = {"label": label, "unit": unit, "raw": raw, "band": band, "limit": c.limit,
+                                      "direction": c.direction}
     return out
 
 
-def _curves(prep, c, li, sub, S):
-    """Raw curve and corrected p05/p95 band of one criterion's quantity at one location."""
+def _dose_curves(prep, c, rows, sub, S) -> dict:
+    """Raw cumulative dose and the corrected p05/p95 band at each of ``rows``, from one dose grid each."""
+    raw_field = aset.dose_field(prep, c, {}, 1, rows)
+    fld = aset.dose_field(prep, c, sub, S, rows) if S else None
+    out = {}
+    for j, li in enumerate(rows):
+        raw = raw_field.grid[0, j]
+        if fld is None:
+            out[li] = (raw, None)
+            continue
+        curves = np.einsum("sc,scn->sn", fld.weights, fld.grid[fld.corners, j, :])
+        out[li] = (raw, (np.percentile(curves, 5, axis=0), np.percentile(curves, 95, axis=0)))
+    return out
+
+
+def _series_curves(prep, c, li, sub, S):
+    """Raw curve and corrected p05/p95 band of one single-series criterion at one location."""
     cid = c.id
-    if cid in ("fed_toxic", "fed_heat"):
-        rows = np.array([li])
-        f1 = aset.dose_field(prep, c, {}, 1, rows)
-        raw = f1.grid[0, 0]
-        if not S:
-            return raw, None
-        fld = aset.dose_field(prep, c, sub, S, rows)
-        curves = np.einsum("sc,scn->sn", fld.weights, fld.grid[fld.corners, 0, :])
+    if cid == "temperature":
+        base, amb = prep.rise[li], prep.amb_c[li]
+        raw = amb + base
+        fk = "temperature"
+        fn = (lambda f: amb + base[None, :] * f[:, None])
+    elif cid in ("heat_flux", "layer_height"):
+        raw = prep.flux[li] if cid == "heat_flux" else prep.layer[li]
+        fk = cid
+        fn = (lambda f: raw[None, :] * f[:, None])
     else:
-        if cid == "temperature":
-            base, amb = prep.rise[li], prep.amb_c[li]
-            raw = amb + base
-            fk = "temperature"
-            fn = (lambda f: amb + base[None, :] * f[:, None])
-        elif cid == "heat_flux":
-            raw = prep.flux[li]
-            fk = "heat_flux"
-            fn = (lambda f: raw[None, :] * f[:, None])
-        elif cid == "layer_height":
-            raw = prep.layer[li]
-            fk = "layer_height"
-            fn = (lambda f: raw[None, :] * f[:, None])
-        else:
-            from .tenability.visibility import visibility_from_extinction
-            cs = c.params.get("sign_constant", 8.0)
-            k = prep.extinction[li]
-            cap = max(30.0, 3 * c.limit)
-            raw = np.minimum(visibility_from_extinction(k, cs), cap)
-            fk = aset.smoke_factor_key(prep.smoke_kind[li])
-            fn = (lambda f: np.minimum(visibility_from_extinction(k[None, :] * f[:, None], cs), cap))
-        if not S or fk not in sub:
-            return raw, None
-        curves = fn(sub[fk])
+        from .tenability.visibility import visibility_from_extinction
+        cs = c.params.get("sign_constant", 8.0)
+        k = prep.extinction[li]
+        cap = max(30.0, 3 * c.limit)          # plotting cap only: clear air has infinite visibility
+        raw = np.minimum(visibility_from_extinction(k, cs), cap)
+        fk = aset.smoke_factor_key(prep.smoke_kind[li])
+        fn = (lambda f: np.minimum(visibility_from_extinction(k[None, :] * f[:, None], cs), cap))
+    if not S or fk not in sub:
+        return raw, None
+    curves = fn(sub[fk])
     return raw, (np.percentile(curves, 5, axis=0), np.percentile(curves, 95, axis=0))
 
 
