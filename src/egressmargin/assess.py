@@ -227,6 +227,10 @@ def sensitivity(route: RouteSpec, prep, sweep_factors, sweep_index, sweep_loc_as
     R = len(next(iter(sweep_factors.values()))) if sweep_factors else 1
     draws = EgressDraws(np.full(R, 0.5), np.full(R, 0.5), np.full(R, 0.5))
     a = route_aset(sweep_loc_aset, prep.ids, route.exposed_at)
+    # Where no limit is reached before the histories end, the margin is at least the
+    # time left: use the end time, and say that these margins are lower bounds.
+    censored = ~np.isfinite(a)
+    a = np.where(censored, prep.t_s[-1], a)
     rset, _, _ = route_rset(route, prep, sweep_factors, draws)
     margin = a - rset
     base = float(margin[0])
@@ -251,7 +255,7 @@ def sensitivity(route: RouteSpec, prep, sweep_factors, sweep_index, sweep_loc_as
             m.append(float((a0 - r)[0]))
         rows.append(_swing(label, "-10 %", "+10 %", *m))
     rows.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
-    return [dict(r, base_margin_s=_finite(base)) for r in rows]
+    return [dict(r, base_margin_s=_finite(base), lower_bound=bool(censored.any())) for r in rows]
 
 
 def _finite(x) -> float | None:

@@ -64,13 +64,14 @@ class CriteriaSet:
     path: Path | None = None
 
     def as_results(self) -> dict:
+        """The set as applied: limits as numbers in their display unit, with the text as written."""
         applied = {}
         for cid, c in self.items.items():
-            entry = {"limit": _plain(c.limit_text), "unit": c.unit, "source": c.source}
+            entry = {"limit": round(c.limit, 6), "unit": c.unit, "limit_text": c.limit_text, "source": c.source}
             entry.update({k: _plain(v) for k, v in c.params.items()})
             applied[cid] = entry
         return {"name": self.name, "description": self.description, "sources": list(self.sources),
-                "applied": applied, **{cid: {"limit": _plain(c.limit_text), "unit": c.unit}
+                "applied": applied, **{cid: {"limit": round(c.limit, 6), "unit": c.unit}
                                        for cid, c in self.items.items()}}
 
 
