@@ -87,8 +87,11 @@ def _split_header(name: str) -> tuple[str, str | None]:
     return str(name).strip(), None
 
 
-def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> ScenarioData:
-    """Read and check the histories of ``spec`` (or of ``path``, a resolution's CSV with the same map)."""
+def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[ScenarioData, list[Problem]]:
+    """Read and check the histories of ``spec`` (or of ``path``, a resolution's CSV with the same map).
+
+    Returns the data and the warnings (likely unit slips); raises InputError with every error.
+    """
     import pandas as pd
 
     path = Path(path or spec.histories)
@@ -145,7 +148,7 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> ScenarioData:
             i = int(np.argmax(bad))
             found = text.iloc[i]
             problems.append(Problem(f"{fname}:{line0 + i} column '{header}' row {i + 1}",
-                                    f"found {'a blank' if found in ('', 'nan', 'NaN') else repr(found)}"
+                                    f"found {'a blank' if found == '' else repr(found)}"
                                     f"{f' (and {int(bad.sum()) - 1} more)' if bad.sum() > 1 else ''}; "
                                     "expected a number"))
             return None, None
@@ -201,6 +204,8 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> ScenarioData:
 def _plausible(key, values, ref, info, fname, line0, problems):
     """Check physical plausibility of one converted column; append problems; return cleaned values."""
     header, unit = info
+    if values.size == 0:
+        return values
 
     def at(i):
         return f"{fname}:{line0 + i} column '{header}' row {i + 1}"

@@ -524,6 +524,9 @@ def _routes(ck, value, loc_ids: dict[str, dict]) -> list[RouteSpec]:
                 scen = None
             else:
                 for j, s in enumerate(scen):
+                    if not isinstance(s, (str, int)) or isinstance(s, bool):
+                        ck.err(kp + ("scenarios", j), f"found {_show(s)}; expected a scenario id")
+                        continue
                     if s not in loc_ids:
                         ck.err(kp + ("scenarios", j), f"no scenario '{s}'; expected one of "
                                f"{', '.join(all_scen)}{did_you_mean(s, all_scen)}")
@@ -543,6 +546,9 @@ def _routes(ck, value, loc_ids: dict[str, dict]) -> list[RouteSpec]:
                 ck.err(kp + ("exposed_at",), f"found {_show(ex)}; expected a list of location ids the occupants pass")
             else:
                 for j, lid in enumerate(ex):
+                    if not isinstance(lid, (str, int)) or isinstance(lid, bool):
+                        ck.err(kp + ("exposed_at", j), f"found {_show(lid)}; expected a location id")
+                        continue
                     missing = [s for s in covered if s in loc_ids and lid not in loc_ids[s]]
                     if missing:
                         known = sorted({x for s in covered if s in loc_ids for x in loc_ids[s]})

@@ -47,18 +47,39 @@ def format_key_path(key_path: Path_) -> str:
     return out
 
 
-def _build(node, key_path, lines):
-    lines.setdefault(key_path, node.start_mark.line + 1)
+#: Most YAML nodes a study may expand to (guards against alias bombs; a study has far fewer).
+MAX_NODES = 200_000
+
+
+class _Bad(Exception):
+    def __init__(self, line, message):
+        super().__init__(message)
+        self.line, self.message = line, message
+
+
+def _build(node, key_path, lines, ancestors=(), count=None):
+    count = count if count is not None else [0]
+    count[0] += 1
+    line = node.start_mark.line + 1
+    if count[0] > MAX_NODES:
+        raise _Bad(line, f"the document expands to more than {MAX_NODES} values (aliases?); expected a plain study")
+    if id(node) in ancestors:
+        raise _Bad(line, "an alias refers to itself; expected a document without recursive aliases")
+    lines.setdefault(key_path, line)
     if isinstance(node, yaml.MappingNode):
         out = {}
+        inner = ancestors + (id(node),)
         for knode, vnode in node.value:
+            if not isinstance(knode, yaml.ScalarNode):
+                raise _Bad(knode.start_mark.line + 1, "a list or mapping is used as a key; expected a plain key")
             key = _construct_scalar(knode)
             kp = key_path + (key,)
             lines[kp] = knode.start_mark.line + 1
-            out[key] = _build(vnode, kp, lines)
+            out[key] = _build(vnode, kp, lines, inner, count)
         return out
     if isinstance(node, yaml.SequenceNode):
-        return [_build(v, key_path + (i,), lines) for i, v in enumerate(node.value)]
+        inner = ancestors + (id(node),)
+        return [_build(v, key_path + (i,), lines, inner, count) for i, v in enumerate(node.value)]
     return _construct_scalar(node)
 
 
@@ -96,6 +117,8 @@ def load_located_text(text: str, path: Path) -> Located:
     lines: dict = {}
     try:
         data = _build(node, (), lines)
+    except _Bad as exc:
+        raise InputError([Problem(f"{path}:{exc.line}", exc.message)]) from None
     except yaml.YAMLError as exc:
         raise InputError([Problem(str(path), f"YAML error: {exc}")]) from None
     return Located(data, lines, path)
