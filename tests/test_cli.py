@@ -242,7 +242,7 @@ def test_route_results_of_the_small_study(good_study):
 
 def test_run_writes_results_json(cli, good_study, tmp_path, stub_report):
     out = tmp_path / "out"
-    status, text, err = cli(["run", good_study, "--no-pdf", "--out", out, "--samples", "50", "--seed", "7"])
+    status, text, err = cli(["run", good_study, "--no-pdf", "--html", "--out", out, "--samples", "50", "--seed", "7"])
     assert status == 0, err  # the design fails its check: still exit 0 (contract)
     res = json.loads((out / "results.json").read_text(encoding="utf-8"))
     check_contract_keys(res, good_study)
@@ -257,7 +257,7 @@ def test_run_default_output_folder(cli, good_study, tmp_path, monkeypatch, stub_
     cwd = tmp_path / "cwd"
     cwd.mkdir()
     monkeypatch.chdir(cwd)
-    status, out, err = cli(["run", good_study, "--no-pdf", "--samples", "20"])
+    status, out, err = cli(["run", good_study, "--no-pdf", "--html", "--samples", "20"])
     assert status == 0, err
     assert os.listdir(cwd) == ["study-out"]
     assert (cwd / "study-out" / "results.json").is_file()
@@ -267,7 +267,7 @@ def test_run_replaces_an_earlier_output(cli, good_study, tmp_path, stub_report):
     out = tmp_path / "out"
     out.mkdir()
     (out / "old.txt").write_text("from an earlier run", encoding="utf-8")
-    status, _, err = cli(["run", good_study, "--no-pdf", "--out", out, "--samples", "20"])
+    status, _, err = cli(["run", good_study, "--no-pdf", "--html", "--out", out, "--samples", "20"])
     assert status == 0, err
     assert sorted(os.listdir(out)) == ["report.html", "results.json"]
     assert sorted(os.listdir(tmp_path)) == ["out", "study"]
@@ -278,7 +278,7 @@ def test_failed_run_leaves_an_earlier_output_untouched(cli, kit, make_study, tmp
     out.mkdir()
     (out / "results.json").write_text("{}", encoding="utf-8")
     study = make_study(kit.study.replace("occupants: 120", "occupants: 0"))
-    status, _, err = cli(["run", study, "--no-pdf", "--out", out])
+    status, _, err = cli(["run", study, "--no-pdf", "--html", "--out", out])
     assert status == 2 and "egress[0].occupants" in err
     assert os.listdir(out) == ["results.json"] and (out / "results.json").read_text() == "{}"
     assert stub_report == []
@@ -296,7 +296,7 @@ def test_report_failure_leaves_no_output(good_study, tmp_path, monkeypatch):
     monkeypatch.setitem(sys.modules, "egressmargin.report", module)
     out = tmp_path / "out"
     with pytest.raises(RuntimeError, match="report failed"):
-        main(["run", str(good_study), "--no-pdf", "--out", str(out), "--samples", "20"])
+        main(["run", str(good_study), "--no-pdf", "--html", "--out", str(out), "--samples", "20"])
     assert sorted(os.listdir(tmp_path)) == ["study"]
 
 
@@ -304,7 +304,7 @@ def test_run_with_the_real_report(cli, good_study, tmp_path):
     """The one end-to-end ``run --no-pdf`` with the real report module (in progress elsewhere)."""
     out = tmp_path / "out"
     try:
-        status, text, err = cli(["run", good_study, "--no-pdf", "--out", out])
+        status, text, err = cli(["run", good_study, "--no-pdf", "--html", "--out", out])
     except Exception as exc:  # tolerated only when raised inside the report module
         files, tb = [], exc.__traceback__
         while tb is not None:
@@ -318,3 +318,11 @@ def test_run_with_the_real_report(cli, good_study, tmp_path):
     check_contract_keys(res, good_study)
     assert (out / "report.html").is_file()
     assert not (out / "report.pdf").exists()
+
+
+def test_no_pdf_alone_writes_numbers_only(cli, good_study, tmp_path):
+    """``--no-pdf`` is the fast path: results.json only; ``--html`` adds report.html."""
+    out = tmp_path / "numbers"
+    status, _, err = cli(["run", good_study, "--no-pdf", "--out", out, "--samples", "20"])
+    assert status == 0, err
+    assert sorted(os.listdir(out)) == ["results.json"]

@@ -50,7 +50,9 @@ def build_parser() -> argparse.ArgumentParser:
         sp.add_argument("--out", type=Path, help="output folder")
         sp.add_argument("--samples", type=_positive_int, help="Monte Carlo draws (overrides the study)")
         sp.add_argument("--seed", type=_seed, help="random seed (overrides the study)")
-        sp.add_argument("--no-pdf", action="store_true", help="write results.json and report.html, no PDF")
+        sp.add_argument("--no-pdf", action="store_true",
+                        help="numbers only: write results.json, no report (add --html for report.html)")
+        sp.add_argument("--html", action="store_true", help="with --no-pdf: still write report.html")
         sp.add_argument("--quiet", action="store_true", help="no progress messages")
 
     r = sub.add_parser("run", help="run the whole pipeline on a study")
@@ -62,7 +64,7 @@ def build_parser() -> argparse.ArgumentParser:
     d = sub.add_parser("demo", help="run the bundled demo study (an invented building, illustrative data)")
     d.add_argument("--out", type=Path, default=Path("egressmargin-demo"))
     d.add_argument("--samples", type=_positive_int)
-    d.add_argument("--no-pdf", action="store_true")
+    d.add_argument("--no-pdf", action="store_true", help="write results.json and report.html, no PDF")
     d.add_argument("--quiet", action="store_true")
     v = sub.add_parser("validate", help="check a study and every file it names, without computing")
     v.add_argument("study", type=Path)
@@ -101,7 +103,7 @@ def _progress(quiet: bool):
 def _run(args) -> int:
     from .pipeline import RunOptions, run
     opts = RunOptions(out=args.out, samples=args.samples, seed=args.seed, pdf=not args.no_pdf,
-                      uncertainty=args.uncertainty, raw_only=args.raw_only, progress=_progress(args.quiet))
+                      html=not args.no_pdf or args.html, uncertainty=args.uncertainty, raw_only=args.raw_only, progress=_progress(args.quiet))
     out = run(args.study, opts)
     _summary(out)
     return 0

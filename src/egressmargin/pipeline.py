@@ -156,7 +156,7 @@ def _t(x) -> float | None:
     return round(x, 3) if np.isfinite(x) else None
 
 
-def assess_scenario(loaded: Loaded, index: int, S: int, seed: int):
+def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool = True):
     """Everything about one scenario: location criteria, routes, credibility; plus plot data."""
     study, table = loaded.study, loaded.table
     spec = study.scenarios[index]
@@ -266,7 +266,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int):
     cred, cred_plot = credibility(loaded, index, crit)
     if cred is not None:
         scenario["credibility"] = cred
-    plot = {"t_s": data.t_s, "locations": _plot_locations(prep, crit, factors, corr),
+    plot = {"t_s": data.t_s, "locations": _plot_locations(prep, crit, factors, corr) if plots else {},
             "routes": route_plots, "credibility": cred_plot}
     return scenario, plot
 
@@ -432,15 +432,12 @@ def build_results(loaded: Loaded, options: RunOptions):
     study = loaded.study
     S = options.samples or study.samples
     seed = study.seed if options.seed is None else options.seed
-    if loaded.table is None:
-        S_eff = S
-    else:
-        S_eff = S
+    want_plots = options.html or options.pdf      # curves and bands are only for the report
     scenarios, plots = [], {}
     for i, spec in enumerate(study.scenarios):
         if options.progress:
             options.progress(f"scenario {spec.id}")
-        sc, pl = assess_scenario(loaded, i, S_eff, seed)
+        sc, pl = assess_scenario(loaded, i, S, seed, want_plots)
         scenarios.append(sc)
         plots[spec.id] = pl
     inputs = [{"path": str(study.path), "sha256": sha256_of(study.path), "role": "study"}]
