@@ -23,6 +23,8 @@ U = np.linspace(0.001, 0.999, 41)
 def test_z95_is_the_standard_normal_95th_percentile():
     # Standard normal tables: z_0.95 = 1.6449 (e.g. Abramowitz & Stegun, 1964, table 26.5).
     assert dist.Z_95 == pytest.approx(1.6449, abs=5e-5)
+    # and the reference library agrees to machine precision (scipy.stats.norm.ppf)
+    assert dist.Z_95 == pytest.approx(stats.norm.ppf(0.95), rel=1e-12)
 
 
 def test_lognormal_by_median_and_p95_matches_scipy_lognorm():

@@ -175,3 +175,13 @@ def test_sensitivity_puts_all_distribution_swing_on_the_one_uncertain_input(tmp_
     assert "detection time" not in sens and "alarm time" not in sens  # fixed inputs
     ranked = [s["input"] for s in res["scenarios"][0]["routes"][0]["sensitivity"]]
     assert ranked[0] == "premovement time"
+
+
+def test_truncated_normal_quantile_matches_scipy_truncnorm():
+    """stats.truncated_normal_ppf against scipy.stats.truncnorm (the reference library)."""
+    from egressmargin.stats import truncated_normal_ppf
+
+    u = np.linspace(0.001, 0.999, 57)
+    for mean, sd in ((100.0, 10.0), (5.0, 10.0), (0.0, 3.0), (1.0 / 1.1, 0.2 / 1.1)):
+        ref = stats.truncnorm.ppf(u, -mean / sd, np.inf, loc=mean, scale=sd)
+        np.testing.assert_allclose(truncated_normal_ppf(u, mean, sd), ref, rtol=1e-9, atol=1e-12)

@@ -11,12 +11,13 @@ How it stays fast (no loop over samples x time in Python):
   series, and the first crossing of many levels on one series is one ``searchsorted`` on
   its running maximum (:func:`~egressmargin.tenability.crossing.crossing_times_for_levels`).
 * A dose (FED) depends on several factors. The cumulative dose is computed on a grid of
-  factor values (G nodes per uncertain quantity, spanning the samples) and interpolated
-  multilinearly between nodes for each sample; its crossing is found by a vectorised
-  bisection over the time index. Every dose rate is nondecreasing in every factor, so the
-  true crossing lies between the crossings at the lower and upper corners of the
-  sample's grid cell: that bracket is computed too and reported as ``grid_bound_s``, an
-  upper bound of the interpolation error.
+  factor values (G nodes per uncertain quantity, spanning the samples), its crossing found
+  on every node, and the crossing time interpolated multilinearly in the factors for each
+  sample (near the edge of reaching the limit at all, the sample is solved on the
+  interpolated dose curve by a vectorised bisection instead). Every dose rate is
+  nondecreasing in every factor, so crossing times are monotone and the true crossing lies
+  between the crossings at the lower and upper corners of the sample's grid cell: that
+  bracket is reported as ``grid_bound_s``, an upper bound of the interpolation error.
 """
 
 from __future__ import annotations
@@ -73,6 +74,7 @@ class Prepared:
     o2_depletion: np.ndarray | None
     velocity: np.ndarray | None
     present: dict[str, np.ndarray] = field(default_factory=dict)
+    dose_grids: dict = field(default_factory=dict)   # reused across calls with factors in range
 
     @property
     def n_loc(self) -> int:
@@ -300,33 +302,57 @@ class DoseField:
         return self.values(i) * (1 - w) + self.values(i + 1) * w
 
 
-def dose_field(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
-               rows: np.ndarray) -> DoseField:
-    """Build the cumulative dose grid of ``criterion`` at locations ``rows``."""
-    names = [q for q in dose_quantities(criterion) if _has(prep, q)]
-    fac = {q: np.asarray(factors.get(q, np.ones(S)), float) for q in names}
-    varying = [q for q in names if np.ptp(fac[q]) > 0]
+def _dose_grid(prep: Prepared, criterion: Criterion, names, fac: dict, varying: list, rows: np.ndarray):
+    """Cumulative dose on a grid of factor values, reused while later factors stay inside it.
+
+    The grid spans the Monte Carlo samples; the sensitivity rows (medians, 5th and 95th
+    percentiles) and the along-route dose fall inside that span and reuse it.
+    """
+    key = (criterion.id, tuple(sorted(criterion.params.items())), rows.tobytes())
+    cached = prep.dose_grids.get(key)
+    if cached is not None:
+        grid, c_vary, c_nodes, c_fixed = cached
+        fits = True
+        for q in names:
+            lo, hi = float(fac[q].min()), float(fac[q].max())
+            if q in c_nodes:
+                fits &= c_nodes[q][0] <= lo and hi <= c_nodes[q][-1]
+            else:
+                fits &= lo == hi == c_fixed[q]
+        if fits:
+            return cached
     k = len(varying)
     G = GRID_NODES.get(k, 4) if k else 1
     nodes = {q: np.linspace(fac[q].min(), fac[q].max(), G) for q in varying}
     fixed = {q: float(fac[q][0]) for q in names if q not in varying}
-    M = G ** k
-    grid = np.empty((M, len(rows), len(prep.t_s)))
+    grid = np.empty((G ** k, len(rows), len(prep.t_s)))
     for m, combo in enumerate(product(range(G), repeat=k)):
         f = dict(fixed)
         f.update({q: nodes[q][j] for q, j in zip(varying, combo)})
         rate = dose_rate(criterion, corrected_inputs(prep, names, f, rows))
         grid[m] = cumulative_trapezoid(prep.t_s, np.broadcast_to(rate, grid.shape[1:]))
+    prep.dose_grids[key] = (grid, varying, nodes, fixed)
+    return prep.dose_grids[key]
+
+
+def dose_field(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
+               rows: np.ndarray) -> DoseField:
+    """The cumulative dose of ``criterion`` at locations ``rows`` for each of S factor samples."""
+    names = [q for q in dose_quantities(criterion) if _has(prep, q)]
+    fac = {q: np.broadcast_to(np.asarray(factors.get(q, 1.0), float), (S,)) for q in names}
+    varying = [q for q in names if np.ptp(fac[q]) > 0]
+    grid, g_vary, nodes, _ = _dose_grid(prep, criterion, names, fac, varying, rows)
+    k = len(g_vary)
     if k == 0:
         corners = np.zeros((S, 1), int)
-        weights = np.ones((S, 1))
-        return DoseField(prep.t_s, grid, corners, weights, corners[:, 0], corners[:, 0])
+        return DoseField(prep.t_s, grid, corners, np.ones((S, 1)), corners[:, 0], corners[:, 0])
+    G = len(nodes[g_vary[0]])
     pos = np.empty((S, k))
-    for j, q in enumerate(varying):
+    for j, q in enumerate(g_vary):
         lo, hi = nodes[q][0], nodes[q][-1]
         pos[:, j] = (fac[q] - lo) / (hi - lo) * (G - 1)
     i0 = np.clip(np.floor(pos).astype(int), 0, G - 2)
-    w = pos - i0
+    w = np.clip(pos - i0, 0.0, 1.0)
     strides = G ** np.arange(k - 1, -1, -1)
     bits = np.array(list(product((0, 1), repeat=k)))                      # (C, k)
     corners = ((i0[:, None, :] + bits[None, :, :]) * strides).sum(-1)      # (S, C)
@@ -344,11 +370,36 @@ def _has(prep: Prepared, q: str) -> bool:
     return q in prep.gases
 
 
+def node_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float) -> np.ndarray:
+    """(M, Lc) first time each grid curve (nondecreasing cumulative dose) reaches ``limit``.
+
+    Linear interpolation between the bracketing samples, as for any crossing; +inf where
+    the curve never reaches the limit.
+    """
+    hit = grid >= limit
+    reached = hit.any(axis=-1)
+    i = np.argmax(hit, axis=-1)
+    i0 = np.maximum(i - 1, 0)
+    d0 = np.take_along_axis(grid, i0[..., None], -1)[..., 0]
+    d1 = np.take_along_axis(grid, i[..., None], -1)[..., 0]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frac = np.where(d1 > d0, (limit - d0) / (d1 - d0), 1.0)
+    t = t_s[i0] + np.clip(frac, 0.0, 1.0) * (t_s[i] - t_s[i0])
+    t = np.where(i == 0, t_s[0], t)
+    return np.where(reached, t, np.inf)
+
+
 def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int, ok: np.ndarray,
                with_bound: bool = True) -> tuple[np.ndarray, np.ndarray | None]:
     """(L, S) dose crossing times and, per location, the largest interpolation bracket [s].
 
-    The bracket is None when the dose grid has a single node (no interpolation: exact).
+    The crossing time is found on every node of the factor grid, then interpolated
+    multilinearly in the factors for each sample. Crossing times are monotone in every
+    factor, so the result and the truth both lie between the times at the lower and the
+    upper corner of the sample's grid cell: that bracket is the reported bound. Where only
+    some corners reach the limit, the sample is solved on the interpolated dose curve
+    instead (vectorised bisection, :meth:`DoseField.crossing`). The bracket is None when
+    the grid has a single node (exact).
     """
     out = np.full((prep.n_loc, S), np.nan)
     rows_all = np.flatnonzero(ok)
@@ -359,15 +410,28 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
     k = len(dose_quantities(criterion))
     per_loc = 8 * len(prep.t_s) * GRID_NODES.get(k, 4) ** k
     chunk = max(1, int(GRID_BYTES // per_loc))
+    end = prep.t_s[-1]
     for start in range(0, rows_all.size, chunk):
         rows = rows_all[start:start + chunk]
-        field_ = dose_field(prep, criterion, factors, S, rows)
-        out[rows] = field_.crossing(criterion.limit).T
-        if with_bound and field_.grid.shape[0] > 1:
+        fld = dose_field(prep, criterion, factors, S, rows)
+        t_nodes = node_crossings(prep.t_s, fld.grid, criterion.limit)            # (M, Lc)
+        t_corner = t_nodes[fld.corners]                                           # (S, C, Lc)
+        finite = np.isfinite(t_corner)
+        all_f, any_f = finite.all(axis=1), finite.any(axis=1)                     # (S, Lc)
+        with np.errstate(invalid="ignore"):
+            t = np.einsum("sc,scl->sl", fld.weights, np.where(finite, t_corner, 0.0))
+        t = np.where(all_f, t, np.nan)
+        mixed = any_f & ~all_f
+        if mixed.any():
+            cols = np.flatnonzero(mixed.any(axis=0))
+            sub = DoseField(fld.t_s, fld.grid[:, cols, :], fld.corners, fld.weights, fld.low, fld.high)
+            t_mixed = sub.crossing(criterion.limit)
+            t[:, cols] = np.where(mixed[:, cols], t_mixed, t[:, cols])
+        out[rows] = t.T
+        if with_bound and fld.grid.shape[0] > 1:
             exact = False
-            t_lo = field_.crossing(criterion.limit, "low")     # lower factors: later crossing
-            t_hi = field_.crossing(criterion.limit, "high")
-            end = prep.t_s[-1]
+            t_lo = t_nodes[fld.low]      # lower factors: later crossing
+            t_hi = t_nodes[fld.high]
             width = np.where(np.isfinite(t_hi), np.where(np.isfinite(t_lo), t_lo, end) - t_hi, 0.0)
             bound[rows] = width.max(axis=0)
     return out, (None if exact else bound)

@@ -97,38 +97,64 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
     path = Path(path or spec.histories)
     problems: list[Problem] = []
     fname = str(path)
+    read_opts = {"skipinitialspace": True}
     try:
-        raw = pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True)
+        head = pd.read_csv(path, nrows=1, dtype=str, keep_default_na=False, **read_opts)
     except FileNotFoundError:
         raise InputError([Problem(fname, "file not found; expected the scenario's CSV histories")]) from None
     except Exception as exc:  # pandas raises many parser types; all are the user's file
         raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected a "
                                   "comma-separated file with one header row")]) from None
-    if raw.shape[1] == 0:
+    if head.shape[1] == 0:
         raise InputError([Problem(fname, "no columns found; expected a header row naming the columns")])
+    _check_field_counts(path, fname)
+    all_headers = list(head.columns)
     headers = {}
-    for h in raw.columns:
+    for h in all_headers:
         base, unit = _split_header(h)
         headers.setdefault(base, (h, unit))
         headers.setdefault(str(h).strip(), (h, unit))
     units_row = {}
     first_data = 0
     if spec.units_row:
-        if len(raw) == 0:
+        if len(head) == 0:
             problems.append(Problem(fname, "units_row is true but the file has no rows; expected a units row"))
         else:
-            units_row = {h: str(raw[h].iloc[0]).strip() for h in raw.columns}
+            units_row = {h: str(head[h].iloc[0]).strip() for h in all_headers}
             first_data = 1
-    data = raw.iloc[first_data:]
-    n = len(data)
     # CSV line of data row i (1-based file lines: header is line 1)
     line0 = 2 + first_data
+    wanted = [spec.time.column] if spec.time is not None else []
+    for loc in spec.locations:
+        wanted += [ref.column for ref in loc.series.values()]
+        wanted += loc.profile.columns if loc.profile is not None else []
+    needed = sorted({headers[c][0] for c in wanted if c in headers}, key=all_headers.index)
+    skip = [1] if first_data else None
+    # Fast path: the C parser straight to floats. Any column it cannot parse cleanly is
+    # read again as text, so that the message can quote the offending cell.
+    try:
+        num = pd.read_csv(path, usecols=needed, skiprows=skip, dtype=float, **read_opts) if needed else None
+    except Exception:  # a non-numeric cell or a ragged row: fall back to the text path
+        num = None
+    text_frame = []
+
+    def as_text():
+        if not text_frame:
+            try:
+                text_frame.append(pd.read_csv(path, usecols=needed, skiprows=skip, dtype=str,
+                                              keep_default_na=False, **read_opts))
+            except Exception as exc:
+                raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected "
+                                          "a comma-separated file with one header row")]) from None
+        return text_frame[0]
+
+    n = len(num) if num is not None else (len(as_text()) if needed else max(len(head) - first_data, 0))
 
     def column(ref: SeriesRef, quantity: str, what: str):
         if ref.column not in headers:
             problems.append(Problem(f"{fname} column '{ref.column}'", f"not in the file (mapped at {ref.where}); "
-                                    f"expected one of {', '.join(map(str, raw.columns[:12]))}"
-                                    f"{' …' if raw.shape[1] > 12 else ''}{did_you_mean(ref.column, headers)}"))
+                                    f"expected one of {', '.join(map(str, all_headers[:12]))}"
+                                    f"{' …' if len(all_headers) > 12 else ''}{did_you_mean(ref.column, headers)}"))
             return None, None
         header, header_unit = headers[ref.column]
         unit = ref.unit or header_unit or (units_row.get(header) or None)
@@ -141,17 +167,19 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
         if msg:
             problems.append(Problem(f"{fname} column '{header}'", f"{what}: {msg}"))
             return None, None
-        text = data[header].astype(str).str.strip()
-        values = pd.to_numeric(text, errors="coerce").to_numpy(dtype=float)
-        bad = ~np.isfinite(values)
-        if bad.any():
-            i = int(np.argmax(bad))
-            found = text.iloc[i]
-            problems.append(Problem(f"{fname}:{line0 + i} column '{header}' row {i + 1}",
-                                    f"found {'a blank' if found == '' else repr(found)}"
-                                    f"{f' (and {int(bad.sum()) - 1} more)' if bad.sum() > 1 else ''}; "
-                                    "expected a number"))
-            return None, None
+        values = num[header].to_numpy(dtype=float) if num is not None else None
+        if values is None or not np.isfinite(values).all():
+            text = as_text()[header].astype(str).str.strip()
+            values = pd.to_numeric(text, errors="coerce").to_numpy(dtype=float)
+            bad = ~np.isfinite(values)
+            if bad.any():
+                i = int(np.argmax(bad))
+                found = text.iloc[i]
+                problems.append(Problem(f"{fname}:{line0 + i} column '{header}' row {i + 1}",
+                                        f"found {'a blank' if found == '' else repr(found)}"
+                                        f"{f' (and {int(bad.sum()) - 1} more)' if bad.sum() > 1 else ''}; "
+                                        "expected a number"))
+                return None, None
         return to_internal(values, unit, quantity), (header, unit)
 
     columns: list[ColumnRead] = []
@@ -166,8 +194,9 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
             if (d <= 0).any():
                 i = int(np.argmax(d <= 0)) + 1
                 word = "repeats" if d[i - 1] == 0 else "goes backwards"
+                col_text = as_text()[info[0]]
                 problems.append(Problem(f"{fname}:{line0 + i} column '{info[0]}' row {i + 1}",
-                                        f"time {word} ({data[info[0]].iloc[i - 1]} then {data[info[0]].iloc[i]}); "
+                                        f"time {word} ({col_text.iloc[i - 1]} then {col_text.iloc[i]}); "
                                         "expected strictly increasing times"))
     L = len(spec.locations)
     series = {k: np.full((L, n), np.nan) for k in SERIES_KEYS}
@@ -199,6 +228,28 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
                         {k: v for k, v in series.items() if present[k].any()},
                         {k: v for k, v in present.items() if v.any()}, profiles, path, sha256_of(path), n,
                         columns), [p for p in problems if p.warning]
+
+
+def _check_field_counts(path: Path, fname: str) -> None:
+    """Raise InputError for a row with more or fewer fields than the header.
+
+    Reading only the mapped columns would otherwise let a ragged row shift values into the
+    wrong column silently. Counting separators is cheap; only when a count differs is the
+    file parsed in full, so that quoted fields holding commas are not mistaken for errors.
+    """
+    import pandas as pd
+
+    lines = path.read_bytes().splitlines()
+    if not lines:
+        return
+    n_sep = lines[0].count(b",")
+    if all(line.count(b",") == n_sep for line in lines[1:] if line.strip()):
+        return
+    try:
+        pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True)
+    except Exception as exc:
+        raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected a "
+                                  "comma-separated file with one header row")]) from None
 
 
 def _plausible(key, values, ref, info, fname, line0, problems):

@@ -167,14 +167,15 @@ def factor_ppf(table: UncertaintyTable | None, q: str, u) -> np.ndarray:
     stats = table.quantities.get(q) if table else None
     if stats is None:
         return np.ones_like(u)
-    from scipy import stats as st
-
     if stats.sigma_model == 0:
         return np.full_like(u, 1.0 / stats.bias)
     if table.distribution == "lognormal":
-        return np.exp(stats.sigma_model * st.norm.ppf(u)) / stats.bias
-    mean, sd = 1.0 / stats.bias, stats.sigma_model / stats.bias
-    return st.truncnorm.ppf(u, a=-mean / sd, b=np.inf, loc=mean, scale=sd)
+        from scipy.special import ndtri  # the standard normal quantile, as scipy.stats.norm.ppf
+
+        return np.exp(stats.sigma_model * ndtri(u)) / stats.bias
+    from .stats import truncated_normal_ppf  # = scipy.stats.truncnorm.ppf(u, -mean/sd, inf, mean, sd)
+
+    return truncated_normal_ppf(u, 1.0 / stats.bias, stats.sigma_model / stats.bias)
 
 
 def median_factor(table: UncertaintyTable | None, q: str) -> float:

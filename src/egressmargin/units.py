@@ -90,10 +90,10 @@ def _factor_offset(unit: str, target: str) -> tuple[float, float]:
         raise UnitProblem(f"unknown unit '{unit}'") from exc
     dst = ureg.Unit(target) if target != "dimensionless" else ureg.dimensionless
     q0 = ureg.Quantity(0.0, src)
-    q1 = ureg.Quantity(1.0, src)
+    q100 = ureg.Quantity(100.0, src)
     try:
         b = q0.to(dst).magnitude
-        a = q1.to(dst).magnitude - b
+        a = (q100.to(dst).magnitude - b) / 100.0   # a wide span keeps the slope exact to round-off
     except Exception as exc:
         raise UnitProblem(f"unit '{unit}' is not a unit of this quantity") from exc
     return float(a), float(b)
@@ -127,12 +127,9 @@ def to_internal(values, unit: str, quantity: str) -> np.ndarray:
     >>> round(float(to_internal(68.0, "degF", "temperature")), 6)
     20.0
     """
-    target = INTERNAL_UNITS[quantity]
-    _factor_offset(unit, target)  # raises UnitProblem with a message for the user
-    ureg = registry()
-    src = _clean(unit)
-    q = ureg.Quantity(np.asarray(values, dtype=float), src if src != "dimensionless" else "")
-    return np.asarray(q.to(target if target != "dimensionless" else "").magnitude, dtype=float)
+    a, b = _factor_offset(unit, INTERNAL_UNITS[quantity])  # raises UnitProblem with a message for the user
+    out = np.asarray(values, dtype=float) * a
+    return out + b if b else out
 
 
 _QTY = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")

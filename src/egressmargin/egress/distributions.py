@@ -28,7 +28,7 @@ import math
 from typing import Any
 
 import numpy as np
-from scipy import special, stats
+from statistics import NormalDist
 
 __all__ = [
     "PARAMETERS",
@@ -51,8 +51,9 @@ PARAMETERS: dict[str, tuple[str, ...]] = {
 }
 
 #: Standard normal quantile at 0.95, z = Phi^-1(0.95) = 1.6448536...
-#: (computed with scipy.stats.norm.ppf, not typed in).
-Z_95: float = float(stats.norm.ppf(0.95))
+#: (computed with the standard library's NormalDist, not typed in; scipy.stats.norm.ppf
+#: gives the same value — checked in the tests). scipy is imported only when sampling.
+Z_95: float = NormalDist().inv_cdf(0.95)
 
 
 def _fmt(value: float) -> str:
@@ -290,13 +291,15 @@ def ppf(spec: Any, u: Any) -> np.ndarray:
         sigma = lognormal_sigma(p["median"], p["p95"])
         if sigma == 0.0:
             return np.full(u.shape, p["median"])
+        from scipy import special
+
         return p["median"] * np.exp(sigma * special.ndtri(u))
     if kind == "normal":
         if p["sd"] == 0.0:
             return np.full(u.shape, p["mean"])
-        a = -p["mean"] / p["sd"]
-        out = stats.truncnorm.ppf(u, a, np.inf, loc=p["mean"], scale=p["sd"])
-        return np.asarray(out, dtype=float)
+        from ..stats import truncated_normal_ppf  # = scipy.stats.truncnorm.ppf(u, -mean/sd, inf, mean, sd)
+
+        return truncated_normal_ppf(u, p["mean"], p["sd"])
     if kind == "uniform":
         return p["low"] + u * (p["high"] - p["low"])
     # triangular
