@@ -130,6 +130,17 @@ def _result_shape(*arrays) -> tuple[int, ...]:
 # =====================================================================================
 
 
+def _exp_hcn_rate(hcn, scale_ppm: float, divisor_min: float, offset_per_min: float):
+    """HCN rate of the form exp(C/scale)/divisor - offset per minute, clipped at zero.
+
+    Both ISO 13571 and Purser state HCN in this form; each passes its own constants.
+    """
+    return _term(
+        hcn,
+        lambda c: np.maximum(np.exp(c * PPM_PER_MOL_MOL / scale_ppm) / divisor_min - offset_per_min, 0.0),
+    )
+
+
 def iso13571_co_rate(co):
     """ISO 13571 FED rate of carbon monoxide.
 
@@ -202,14 +213,7 @@ def iso13571_hcn_rate(hcn):
     >>> round(float(iso13571_hcn_rate(100e-6)), 5)
     0.04201
     """
-    return _term(
-        hcn,
-        lambda c: np.maximum(
-            np.exp(c * PPM_PER_MOL_MOL / ISO13571_HCN_SCALE_PPM) / ISO13571_HCN_DIVISOR_MIN
-            - ISO13571_HCN_OFFSET_PER_MIN,
-            0.0,
-        ),
-    )
+    return _exp_hcn_rate(hcn, ISO13571_HCN_SCALE_PPM, ISO13571_HCN_DIVISOR_MIN, ISO13571_HCN_OFFSET_PER_MIN)
 
 
 def iso13571_co2_multiplier(co2):
@@ -372,14 +376,7 @@ def purser_hcn_rate(hcn):
     >>> round(float(purser_hcn_rate(200e-6)), 4)
     0.4714
     """
-    return _term(
-        hcn,
-        lambda c: np.maximum(
-            np.exp(c * PPM_PER_MOL_MOL / PURSER_HCN_SCALE_PPM) / PURSER_HCN_DIVISOR_MIN
-            - PURSER_HCN_OFFSET_PER_MIN,
-            0.0,
-        ),
-    )
+    return _exp_hcn_rate(hcn, PURSER_HCN_SCALE_PPM, PURSER_HCN_DIVISOR_MIN, PURSER_HCN_OFFSET_PER_MIN)
 
 
 def purser_co2_multiplier(co2):
