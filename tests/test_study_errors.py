@@ -403,10 +403,7 @@ def test_validate_reports_ten_mistakes_at_once(kit, make_study, cli):
         assert "expected" in hits[0] or "did you mean" in hits[0]
 
 
-@pytest.mark.xfail(strict=True, reason="finding: pipeline.load reads no CSV when the study file has any error "
-                                       "(load_study raises first, pipeline.py:55), so validate does not report "
-                                       "every problem: a missing column is only shown after the study is fixed")
-def test_csv_problems_are_hidden_by_study_problems(kit, make_study, cli):
+def test_csv_problems_are_reported_with_study_problems(kit, make_study, cli):
     text = kit.study.replace("occupants: 120", "occupants: 0").replace("co: CO_hall", "co: CO_hal")
     status, out, err = cli(["validate", make_study(text)])
     assert status == 2
@@ -414,8 +411,6 @@ def test_csv_problems_are_hidden_by_study_problems(kit, make_study, cli):
     assert "column 'CO_hal'" in err
 
 
-@pytest.mark.xfail(strict=True, reason="finding: study.py:511-513 skips a route without 'id' entirely, so its "
-                                       "other mistakes (here occupants: 0) are not reported until the id is added")
 def test_route_without_id_still_has_its_other_mistakes_reported(kit, make_study, cli):
     text = kit.study.replace("  - id: north-stair\n", "  - title: North stair\n").replace("occupants: 120",
                                                                                          "occupants: 0")

@@ -20,7 +20,7 @@ from .credibility import flag_change, grid_convergence
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
 from .stats import share, summarise
-from .study import SERIES_KEYS, SMOKE_KEYS, Study, load_study
+from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
 
 #: Samples used to draw the corrected p05-p95 band on the report's time plots.
@@ -51,8 +51,17 @@ class Loaded:
 def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
     """Read and check the study and every file it names; raise InputError with all problems."""
     options = options or RunOptions()
-    problems: list[Problem] = []
-    study = load_study(study_path)
+    study, specs, problems = check_study(study_path)
+    if study is None:
+        # Report the CSV problems of every scenario that could be read, too.
+        for spec in specs:
+            if spec.histories is not None and spec.histories.is_file() and spec.time is not None:
+                try:
+                    read_scenario(spec)
+                except InputError as exc:
+                    problems.extend(exc.problems)
+        raise InputError(problems)
+    problems = []
     warnings = list(study.warnings)
     table = None
     unc_path = options.uncertainty or study.uncertainty_path
@@ -82,14 +91,6 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
             except InputError as exc:
                 problems.extend(exc.problems)
         res[spec.id] = runs
-    for route in study.routes:
-        for sid in route.scenarios or data:
-            if sid in data and isinstance(route.detection, dict) is False:
-                d = data[sid]
-                li = d.location_ids.index(route.detection.location)
-                if route.detection.kind == "heat" and not d.has("temperature")[li]:
-                    problems.append(Problem(route.detection.where, f"location '{route.detection.location}' has "
-                                            "no temperature series for heat detection"))
     if any(not p.warning for p in problems):
         raise InputError(problems + [w for w in warnings if w.warning])
     return Loaded(study, table, data, res, warnings)

@@ -238,12 +238,25 @@ def _show(value) -> str:
 
 def load_study(path: str | Path) -> Study:
     """Load and check a study file; raise InputError listing every problem."""
+    study, _, problems = check_study(path)
+    if study is None:
+        raise InputError(problems)
+    return study
+
+
+def check_study(path: str | Path) -> tuple[Study | None, list[ScenarioSpec], list[Problem]]:
+    """Check a study file without stopping at the first problem.
+
+    Returns the study (None when it has errors), the scenarios that could be read (so a
+    caller can go on to check their CSV files and report those problems too), and every
+    problem and warning found.
+    """
     path = Path(path)
     doc = load_located(path)
     ck = _Checker(doc)
     data = doc.data
     if not ck.keys(data, (), TOP_KEYS, "the study file"):
-        raise InputError(ck.problems)
+        return None, [], ck.problems
     base = path.parent
     title = ck.text(data.get("title"), ("title",), default=path.stem)
     if "title" not in data:
@@ -287,14 +300,14 @@ def load_study(path: str | Path) -> Study:
 
     errors = [p for p in ck.problems if not p.warning]
     if errors or criteria is None:
-        raise InputError(ck.problems)
+        return None, scenarios, ck.problems
     return Study(path=path, title=title, criteria=criteria, scenarios=scenarios, routes=routes,
                  uncertainty_path=unc_path, samples=samples, seed=seed, max_p_fail=max_p_fail,
                  reference=ck.text(data.get("reference"), ("reference",)),
                  prepared_by=ck.text(data.get("prepared_by"), ("prepared_by",)),
                  prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),
                  paper="letter" if paper.lower() == "letter" else "A4",
-                 warnings=[p for p in ck.problems if p.warning])
+                 warnings=[p for p in ck.problems if p.warning]), scenarios, ck.problems
 
 
 def _int(ck, value, kp, low, what):
@@ -510,10 +523,9 @@ def _routes(ck, value, loc_ids: dict[str, dict]) -> list[RouteSpec]:
             continue
         if "id" not in r:
             ck.err(kp, "missing key 'id'; expected a short route identifier")
-            continue
-        rid = ck.ident(r["id"], kp + ("id",))
+        rid = ck.ident(r["id"], kp + ("id",)) if "id" in r else None
         if rid is None:
-            continue
+            rid = f"egress[{i}]"          # keep checking the route's other keys
         if rid in seen:
             ck.err(kp + ("id",), f"duplicate route id '{rid}' (first at egress[{seen[rid]}]); expected unique ids")
         seen[rid] = i
