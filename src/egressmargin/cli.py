@@ -54,6 +54,7 @@ def build_parser() -> argparse.ArgumentParser:
                         help="numbers only: write results.json, no report (add --html for report.html)")
         sp.add_argument("--html", action="store_true", help="with --no-pdf: still write report.html")
         sp.add_argument("--quiet", action="store_true", help="no progress messages")
+        sp.add_argument("--jobs", type=_positive_int, help="processes over scenarios (default: automatic)")
 
     r = sub.add_parser("run", help="run the whole pipeline on a study")
     r.add_argument("study", type=Path)
@@ -103,7 +104,7 @@ def _progress(quiet: bool):
 def _run(args) -> int:
     from .pipeline import RunOptions, run
     opts = RunOptions(out=args.out, samples=args.samples, seed=args.seed, pdf=not args.no_pdf,
-                      html=not args.no_pdf or args.html, uncertainty=args.uncertainty, raw_only=args.raw_only, progress=_progress(args.quiet))
+                      html=not args.no_pdf or args.html, workers=args.jobs, uncertainty=args.uncertainty, raw_only=args.raw_only, progress=_progress(args.quiet))
     out = run(args.study, opts)
     _summary(out)
     return 0
