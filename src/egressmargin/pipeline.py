@@ -202,8 +202,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             else:
                 na.append(cid)
                 entry.update({"raw_s": None, "corrected_s": {"p05": None, "p50": None, "p95": None},
-                              "p_reached": None, "missing_series": r.missing[li],
-                              "note": "not assessed: missing " + ", ".join(r.missing[li])})
+                              "p_reached": None, "missing_series": r.missing[li]})
             crits[cid] = entry
         p50 = {cid: crits[cid]["corrected_s"]["p50"] for cid in crits if crits[cid]["status"] == "assessed"}
         reached = {k: v for k, v in p50.items() if v is not None}

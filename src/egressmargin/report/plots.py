@@ -248,8 +248,11 @@ def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
         if order:
             fig.legend([h for h, _ in order], [lab for _, lab in order], loc="upper center",
                        ncol=len(order), bbox_to_anchor=(0.5, 1.0))
-        fig.tight_layout(rect=(0, 0, 1, 1 - 0.32 / (1.95 * nrows + 0.45)), h_pad=0.8,
-                         w_pad=0.9)
+        # Fixed margins in inches instead of tight_layout, which costs about half of
+        # the report's plotting time; sizes fit the 7.5 pt labels used here.
+        height = 1.95 * nrows + 0.45
+        fig.subplots_adjust(left=0.085, right=0.985, bottom=0.40 / height, top=1 - 0.66 / height,
+                            wspace=0.42, hspace=0.62)
         return svg_from_figure(fig, uid)
 
 
