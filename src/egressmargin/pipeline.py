@@ -392,7 +392,7 @@ def credibility(loaded: Loaded, index: int, crit):
     runs = loaded.resolutions.get(spec.id) or []
     if len(runs) < 2:
         return None, {}
-    threshold = 0.10
+    threshold = loaded.study.max_grid_change
     per_run = []
     for cell, d in runs:
         p = aset.prepare(d, crit, spec.ambient_temperature_c, spec.ambient_o2)

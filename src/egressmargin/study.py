@@ -26,7 +26,7 @@ DISTRIBUTIONS = {"lognormal": ("median", "p95"), "normal": ("mean", "sd"), "unif
 ELEMENTS = {"corridor": ("length", "width"), "door": ("width",), "stair": ("length", "width", "riser", "tread"),
             "ramp": ("length", "width")}
 ELEMENT_OPTIONAL = {"boundary", "length"}
-TOP_KEYS = {"title", "criteria", "uncertainty", "samples", "seed", "acceptance", "scenarios", "egress",
+TOP_KEYS = {"title", "criteria", "uncertainty", "samples", "seed", "acceptance", "scenarios", "egress", "credibility",
             "reference", "prepared_by", "prepared_for", "paper"}
 SCENARIO_KEYS = {"id", "title", "histories", "time", "units_row", "locations", "ambient", "resolutions"}
 LOCATION_KEYS = {"id", "title", "temperature_profile", *SERIES_KEYS}
@@ -128,6 +128,9 @@ class Study:
     prepared_by: str = ""
     prepared_for: str = ""
     paper: str = "A4"
+    #: Relative change of a time to limit between the two finest grids above which it is
+    #: flagged (10 %: common practice, no single source).
+    max_grid_change: float = 0.10
     warnings: list[Problem] = field(default_factory=list)
 
     @property
@@ -290,6 +293,15 @@ def check_study(path: str | Path) -> tuple[Study | None, list[ScenarioSpec], lis
                     ck.err(("acceptance", "max_p_fail"), f"found {_show(v)}; expected a probability in [0, 1)")
                 else:
                     max_p_fail = float(v)
+    max_grid_change = 0.10
+    if "credibility" in data:
+        cred = data["credibility"]
+        if ck.keys(cred, ("credibility",), {"max_grid_change"}, "credibility"):
+            if "max_grid_change" in cred:
+                v = ck.quantity(cred["max_grid_change"], ("credibility", "max_grid_change"), "fraction",
+                                positive=True, default_unit="dimensionless")
+                if v is not None:
+                    max_grid_change = v
     paper = ck.text(data.get("paper"), ("paper",), default="A4")
     if paper.lower() not in ("a4", "letter"):
         ck.err(("paper",), f"found '{paper}'; expected A4 or letter")
@@ -306,7 +318,7 @@ def check_study(path: str | Path) -> tuple[Study | None, list[ScenarioSpec], lis
                  reference=ck.text(data.get("reference"), ("reference",)),
                  prepared_by=ck.text(data.get("prepared_by"), ("prepared_by",)),
                  prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),
-                 paper="letter" if paper.lower() == "letter" else "A4",
+                 paper="letter" if paper.lower() == "letter" else "A4", max_grid_change=max_grid_change,
                  warnings=[p for p in ck.problems if p.warning]), scenarios, ck.problems
 
 
