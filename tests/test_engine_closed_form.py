@@ -206,3 +206,51 @@ def test_process_pool_over_scenarios_gives_the_serial_results(tmp_path):
     # the scenarios draw their own model-error factors: same histories, different bands
     a, b = (location(serial, "a", i)["criteria"]["temperature"]["corrected_s"] for i in (0, 1))
     assert a != b
+
+
+def _detector_study(tmp_path, detection, unc=None, samples=200):
+    # gas at 120 degC from t = 0 (step from 20 degC ambient), 1.5 m/s; extinction ramp 0.001 1/m per s
+    t = np.arange(0.0, 1201.0, 1.0)
+    temp = np.where(t > 0, 120.0, 20.0)
+    cols = {"T": ("degC", temp), "U": ("m/s", np.full_like(t, 1.5)), "K": ("1/m", 0.001 * t)}
+    route = {"id": "r", "occupants": 10, "detection": detection, "alarm": "0 s", "premovement": "0 s",
+             "path": [{"door": {"width": "1.0 m"}}], "exposed_at": ["a"]}
+    return write_study(tmp_path, t, cols, [{"id": "a", "temperature": "T", "velocity": "U", "extinction": "K"}],
+                       routes=[route], criteria=ONLY_T, uncertainty=unc, samples=samples,
+                       extra={"scenarios": [{"id": "s1", "histories": "data.csv", "time": "Time",
+                                             "ambient": {"temperature": "20 degC"},
+                                             "locations": [{"id": "a", "temperature": "T", "velocity": "U",
+                                                            "extinction": "K"}]}]})
+
+
+def test_heat_detector_rule_matches_the_rti_step_response(tmp_path):
+    """Heskestad & Bill (1988) RTI model, step in gas temperature: activation at
+    t = (RTI / sqrt(u)) ln((Tg - Ta) / (Tg - Tact)). RTI 100, u 1.5 m/s, 120 degC gas, 68 degC link."""
+    path = _detector_study(tmp_path, {"heat": {"location": "a", "rti": 100, "activation": "68 degC"}})
+    res, _ = results_for(path)
+    det = res["scenarios"][0]["routes"][0]["rset_components_s"]["detection"]
+    expected = 100 / np.sqrt(1.5) * np.log((120 - 20) / (120 - 68))
+    assert det["p50"] == pytest.approx(expected, abs=0.6)   # 1 s steps, step applied over the first second
+
+
+def test_heat_detector_uses_the_same_temperature_factor_as_the_aset(tmp_path):
+    """With a temperature model-error factor f, the gas rise is f*100 K and the link activates at
+    t = tau ln(f*100 / (f*100 - 48)); its median follows the median factor 1/delta (closed form)."""
+    unc = {"source": "synthetic", "distribution": "lognormal",
+           "quantities": {"temperature": {"bias": 1.25, "sigma_model": 0.05}}}
+    path = _detector_study(tmp_path, {"heat": {"location": "a", "rti": 100, "activation": "68 degC"}}, unc, 2001)
+    res, _ = results_for(path)
+    det = res["scenarios"][0]["routes"][0]["rset_components_s"]["detection"]
+    tau, rise = 100 / np.sqrt(1.5), 100 / 1.25
+    assert det["p50"] == pytest.approx(tau * np.log(rise / (rise - 48)), abs=0.8)
+    assert det["p05"] < det["p50"] < det["p95"]
+
+
+def test_smoke_detector_rule_on_an_extinction_ramp(tmp_path):
+    """K = 0.001 t reaches a 0.15 1/m threshold at 150 s; given as optical density 0.15/ln 10 1/m
+    (K = ln(10) D) the answer is the same."""
+    res, _ = results_for(_detector_study(tmp_path, {"smoke": {"location": "a", "extinction": "0.15 1/m"}}))
+    assert res["scenarios"][0]["routes"][0]["rset_components_s"]["detection"]["p50"] == pytest.approx(150.0)
+    d = float(0.15 / np.log(10))
+    res, _ = results_for(_detector_study(tmp_path, {"smoke": {"location": "a", "optical_density": f"{d!r} 1/m"}}))
+    assert res["scenarios"][0]["routes"][0]["rset_components_s"]["detection"]["p50"] == pytest.approx(150.0)

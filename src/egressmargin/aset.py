@@ -469,7 +469,3 @@ def location_aset(results: dict[str, CriterionResult]) -> np.ndarray:
     stack = np.stack([np.where(np.isnan(r.times), np.inf, r.times) for r in results.values()])
     return stack.min(axis=0)
 
-
-def unit_factors(S: int = 1) -> dict[str, np.ndarray]:
-    """Factors of one for the raw (uncorrected) evaluation."""
-    return {}

@@ -54,10 +54,8 @@ def detection_times(rule, prep: aset.Prepared, factors: dict[str, np.ndarray], u
     li = prep.ids.index(rule.location)
     with np.errstate(divide="ignore", invalid="ignore"):
         if rule.kind == "heat":
-            vel = prep.velocity[li] if prep.velocity is not None and np.isfinite(prep.velocity[li]).all() \
-                else rule.velocity_m_s
-            if rule.velocity_m_s is not None and (prep.velocity is None or not np.isfinite(prep.velocity[li]).all()):
-                vel = rule.velocity_m_s
+            has_series = prep.velocity is not None and bool(prep.present["velocity"][li])
+            vel = prep.velocity[li] if has_series else rule.velocity_m_s   # the series wins
             link = rti_response(prep.t_s, prep.rise[li], vel, rule.rti)
             levels = (rule.activation_c - prep.amb_c[li]) / factors.get("temperature", np.ones(S))
             t = crossing_times_for_levels(prep.t_s, link, levels, "above")
