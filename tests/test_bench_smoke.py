@@ -6,9 +6,9 @@ uncertainty table; see bench/bench.py).
 
 The reference (``bench.brute_force_times``) loops over the Monte Carlo samples in
 Python, rebuilds each corrected series and applies the egressmargin.tenability
-functions directly, with no dose grid. The rules it applies are the outside contract's
-(docs: /work/shared/contract.md, "results.json": first crossing linearly interpolated
-between the bracketing samples; doses by the trapezoidal rule). The engine must agree
+functions directly, with no dose grid. The rules it applies are the project's outside contract
+(section "results.json": first crossing linearly interpolated between the bracketing
+samples; doses by the trapezoidal rule). The engine must agree
 within its own reported ``grid_bound_s`` plus, for visibility, the interpolation-rule
 gap derived in ``brute_force_times`` (engine interpolates extinction, reference
 visibility), plus the 0.001 s rounding of results.json.
@@ -81,7 +81,7 @@ def test_the_study_crosses_limits(bench, accuracy, tmp_path):
     # cross the limits at some locations and not at others (censoring is exercised too).
     folder = tmp_path / "s"
     loaded = bench.load_quiet(bench.write_study(folder, bench.Size(1, 4, 241, 80), routes=1))
-    results, _ = bench.pipeline.build_results(loaded, bench.RunOptions(pdf=False, html=False))
+    results, _ = bench.pipeline.build_results(loaded, bench.options(pdf=False, html=False))
     p50 = [loc["criteria"][cid]["corrected_s"]["p50"] for loc in results["scenarios"][0]["locations"]
            for cid in bench.CRITERIA]
     assert any(v is not None for v in p50)
