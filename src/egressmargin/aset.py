@@ -11,10 +11,9 @@ How it stays fast (no loop over samples x time in Python):
   series, and the first crossing of many levels on one series is one ``searchsorted`` on
   its running maximum (:func:`~egressmargin.tenability.crossing.crossing_times_for_levels`).
 * A dose (FED) depends on several factors. The cumulative dose is computed on a grid of
-  factor values (G nodes per uncertain quantity, spanning the samples), its crossing found
-  on every node, and the crossing time interpolated multilinearly in the factors for each
-  sample (near the edge of reaching the limit at all, the sample is solved on the
-  interpolated dose curve by a vectorised bisection instead). Every dose rate is
+  factor values (G nodes per uncertain quantity, spanning the samples) and interpolated
+  multilinearly in the factors for each sample; its crossing is found by a vectorised
+  bisection restricted to the bracket given by the crossings at the cell's corners. Every dose rate is
   nondecreasing in every factor, so crossing times are monotone and the true crossing lies
   between the crossings at the lower and upper corners of the sample's grid cell: that
   bracket is reported as ``grid_bound_s``, an upper bound of the interpolation error.
@@ -35,7 +34,7 @@ from .tenability.crossing import crossing_times_for_levels, cumulative_trapezoid
 
 #: Grid nodes per uncertain quantity for dose interpolation, by number of quantities
 #: (project choice: memory G**k * L * N kept moderate; the bound is reported).
-GRID_NODES = {1: 33, 2: 12, 3: 6, 4: 5}
+GRID_NODES = {1: 21, 2: 10, 3: 6, 4: 5}
 #: Cap on the bytes of one dose grid; locations are processed in chunks below it.
 GRID_BYTES = 160e6
 
@@ -258,15 +257,19 @@ class DoseField:
     weights: np.ndarray       # (S, C)
     low: np.ndarray           # (S,) node index of the lower corner
     high: np.ndarray          # (S,) node index of the upper corner
+    _base: np.ndarray | None = field(default=None, repr=False)
 
     def values(self, idx: np.ndarray, which: str = "interp") -> np.ndarray:
         """Dose at time index ``idx`` (S, Lc) for every sample."""
-        lc = np.arange(self.grid.shape[1])[None, :]
-        if which == "low":
-            return self.grid[self.low[:, None], lc, idx]
-        if which == "high":
-            return self.grid[self.high[:, None], lc, idx]
-        g = self.grid[self.corners[:, :, None], lc[:, None, :], idx[:, None, :]]
+        M, Lc, N = self.grid.shape
+        flat = self.grid.reshape(-1)
+        lc = np.arange(Lc)[None, :]
+        if which in ("low", "high"):
+            node = (self.low if which == "low" else self.high)[:, None]
+            return flat[(node * Lc + lc) * N + idx]
+        if self._base is None:   # flat offsets of every (sample, corner, location) curve, once
+            self._base = (self.corners[:, :, None] * Lc + lc[:, None, :]) * N
+        g = flat[self._base + idx[:, None, :]]
         return np.einsum("sc,scl->sl", self.weights, g)
 
     def crossing(self, limit: float, which: str = "interp") -> np.ndarray:
@@ -292,6 +295,27 @@ class DoseField:
         tc = t[lo] + np.clip(frac, 0.0, 1.0) * (t[hi] - t[lo])
         tc = np.where(first >= limit, t[0], tc)
         return np.where(last >= limit, tc, np.nan)
+
+    def bracketed_crossing(self, limit: float, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+        """First crossing of the interpolated dose when ``dose(lo) < limit <= dose(hi)`` is known.
+
+        Bisection inside the bracket only, then linear interpolation between the two
+        samples; the result is identical to :meth:`crossing` for those samples.
+        """
+        lo, hi = lo.copy(), hi.copy()
+        while True:
+            active = hi - lo > 1
+            if not active.any():
+                break
+            mid = (lo + hi) // 2
+            hit = self.values(mid) >= limit
+            hi = np.where(active & hit, mid, hi)
+            lo = np.where(active & ~hit, mid, lo)
+        d_lo, d_hi = self.values(lo), self.values(hi)
+        t = self.t_s
+        with np.errstate(divide="ignore", invalid="ignore"):
+            frac = np.where(d_hi > d_lo, (limit - d_lo) / (d_hi - d_lo), 1.0)
+        return t[lo] + np.clip(frac, 0.0, 1.0) * (t[hi] - t[lo])
 
     def at_times(self, times_s: np.ndarray) -> np.ndarray:
         """Dose at times (S, Lc) [s], linear between samples, held at the end value after the end."""
@@ -393,13 +417,13 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
                with_bound: bool = True) -> tuple[np.ndarray, np.ndarray | None]:
     """(L, S) dose crossing times and, per location, the largest interpolation bracket [s].
 
-    The crossing time is found on every node of the factor grid, then interpolated
-    multilinearly in the factors for each sample. Crossing times are monotone in every
-    factor, so the result and the truth both lie between the times at the lower and the
-    upper corner of the sample's grid cell: that bracket is the reported bound. Where only
-    some corners reach the limit, the sample is solved on the interpolated dose curve
-    instead (vectorised bisection, :meth:`DoseField.crossing`). The bracket is None when
-    the grid has a single node (exact).
+    The crossing time is first found on every node of the factor grid. Crossing times are
+    monotone in every factor, so for each sample both the truth and the crossing of the
+    multilinearly interpolated dose lie between the times at the upper and the lower
+    corner of its grid cell: that bracket is the reported bound, and a short bisection
+    inside it finds the interpolated crossing (exact where the dose is linear in the
+    factor, as the ISO 13571 CO term is). Where only the upper corner reaches the limit the
+    whole time axis is searched. The bracket is None when the grid has a single node.
     """
     out = np.full((prep.n_loc, S), np.nan)
     rows_all = np.flatnonzero(ok)
@@ -415,13 +439,21 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
         rows = rows_all[start:start + chunk]
         fld = dose_field(prep, criterion, factors, S, rows)
         t_nodes = node_crossings(prep.t_s, fld.grid, criterion.limit)            # (M, Lc)
-        t_corner = t_nodes[fld.corners]                                           # (S, C, Lc)
-        finite = np.isfinite(t_corner)
-        all_f, any_f = finite.all(axis=1), finite.any(axis=1)                     # (S, Lc)
-        with np.errstate(invalid="ignore"):
-            t = np.einsum("sc,scl->sl", fld.weights, np.where(finite, t_corner, 0.0))
-        t = np.where(all_f, t, np.nan)
-        mixed = any_f & ~all_f
+        t_early = t_nodes[fld.high]      # upper corner of each sample's cell: most dose, earliest
+        t_late = t_nodes[fld.low]        # lower corner: least dose, latest
+        t = np.full(t_early.shape, np.nan)
+        # Both corners reach the limit: the sample's crossing on the interpolated dose lies
+        # between theirs, so a bisection inside that bracket finds it.
+        both = np.isfinite(t_late)
+        if both.any():
+            n = len(prep.t_s)
+            lo = np.clip(np.searchsorted(prep.t_s, np.where(both, t_early, prep.t_s[0]), "left") - 1, 0, n - 1)
+            hi = np.clip(np.searchsorted(prep.t_s, np.where(both, t_late, prep.t_s[0]), "left"), 0, n - 1)
+            hi = np.maximum(hi, lo + 1)
+            t = np.where(both, fld.bracketed_crossing(criterion.limit, lo, np.minimum(hi, n - 1)), t)
+            t = np.where(both & (t_early <= prep.t_s[0]), prep.t_s[0], t)
+        # Only the upper corner reaches it: the sample may or may not; full search there.
+        mixed = np.isfinite(t_early) & ~both
         if mixed.any():
             cols = np.flatnonzero(mixed.any(axis=0))
             sub = DoseField(fld.t_s, fld.grid[:, cols, :], fld.corners, fld.weights, fld.low, fld.high)
@@ -430,9 +462,7 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
         out[rows] = t.T
         if with_bound and fld.grid.shape[0] > 1:
             exact = False
-            t_lo = t_nodes[fld.low]      # lower factors: later crossing
-            t_hi = t_nodes[fld.high]
-            width = np.where(np.isfinite(t_hi), np.where(np.isfinite(t_lo), t_lo, end) - t_hi, 0.0)
+            width = np.where(np.isfinite(t_early), np.where(np.isfinite(t_late), t_late, end) - t_early, 0.0)
             bound[rows] = width.max(axis=0)
     return out, (None if exact else bound)
 

@@ -7,13 +7,13 @@ import numpy as np
 PERCENTILES = (("p05", 5.0), ("p50", 50.0), ("p95", 95.0))
 
 
-def percentile_or_none(samples, q: float) -> float | None:
-    """The q-th percentile (linear interpolation, numpy's default) of ``samples``.
+def _sorted(samples) -> np.ndarray:
+    """Samples sorted, with NaN (not reached) as +inf."""
+    x = np.asarray(samples, float).ravel()
+    return np.sort(np.where(np.isnan(x), np.inf, x))
 
-    NaN and +inf both mean "not reached by the end of the histories". A percentile whose
-    interpolation touches such a sample is None ("> end"), never clipped to the end time.
-    """
-    x = np.sort(np.where(np.isnan(samples), np.inf, np.asarray(samples, float)).ravel())
+
+def _percentile_sorted(x: np.ndarray, q: float) -> float | None:
     if x.size == 0:
         return None
     pos = (x.size - 1) * q / 100.0
@@ -23,11 +23,28 @@ def percentile_or_none(samples, q: float) -> float | None:
     return float(x[lo] + (x[hi] - x[lo]) * (pos - lo))
 
 
+def percentile_or_none(samples, q: float) -> float | None:
+    """The q-th percentile (linear interpolation, numpy's default) of ``samples``.
+
+    NaN and +inf both mean "not reached by the end of the histories". A percentile whose
+    interpolation touches such a sample is None ("> end"), never clipped to the end time.
+
+    Examples
+    --------
+    >>> percentile_or_none([1.0, 2.0, 3.0, float("nan")], 50)
+    2.5
+    >>> percentile_or_none([1.0, float("nan")], 95) is None
+    True
+    """
+    return _percentile_sorted(_sorted(samples), q)
+
+
 def summarise(samples, ndigits: int = 3) -> dict:
     """``{p05, p50, p95}`` of the samples, None where not reached."""
+    x = _sorted(samples)
     out = {}
     for name, q in PERCENTILES:
-        v = percentile_or_none(samples, q)
+        v = _percentile_sorted(x, q)
         out[name] = None if v is None else round(v, ndigits)
     return out
 
