@@ -405,3 +405,18 @@ def test_plots_cope_with_degenerate_inputs():
                                                            "values_s": [None, 300.0],
                                                            "extrapolated_s": None}}}, uid="e")
     assert "Cell size [m]" in cred
+
+
+def test_every_figure_is_also_written_as_an_svg_file(tmp_path):
+    """The output folder carries the plots as files (contract: report.pdf, report.html,
+    results.json and plots), one per figure of the report, each a standalone SVG."""
+    import xml.etree.ElementTree as ET
+
+    from egressmargin.report import render_report
+    results, plotdata = make_fixture()
+    paths = render_report(results, plotdata, tmp_path, pdf=False)
+    html = paths["html"].read_text(encoding="utf-8")
+    files = sorted((tmp_path / "plots").glob("figure-*.svg"))
+    assert len(files) == html.count("<svg")
+    root = ET.parse(files[0]).getroot()
+    assert root.tag.endswith("svg")

@@ -129,8 +129,11 @@ def _summary(out: Path) -> None:
     rows = [("scenario", "route", "RSET p50", "ASET p50", "margin p05", "p_fail", "verdict")]
     for sc in res["scenarios"]:
         for r in sc["routes"]:
+            margin = r["margin_s"]["p05"]
+            at_least = (r.get("margin_at_least_s") or {}).get("p05")
+            margin_text = t(margin) if margin is not None or at_least is None else f">= {at_least:.0f}"
             rows.append((sc["id"], r["id"], t(r["rset_s"]["p50"]), t(r["aset_s"]["p50"]),
-                         t(r["margin_s"]["p05"]), f"{r['p_fail']:.3f}", r["verdict"].upper()))
+                         margin_text, f"{r['p_fail']:.3f}", r["verdict"].upper()))
         if not sc["routes"]:
             for loc in sc["locations"]:
                 rows.append((sc["id"], f"[{loc['id']}]", "", t(loc["aset_s"]["p50"]), "", "", loc["governing"] or ""))

@@ -495,6 +495,12 @@ def _environment():
 def render_html(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None = None,
                 paper: str = "A4") -> str:
     """The report as one self-contained HTML string (inline CSS and SVG plots)."""
+    return _render(results, plotdata, paper)[0]
+
+
+def _render(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None,
+            paper: str) -> tuple[str, list[dict[str, Any]]]:
+    """The HTML and the figures in it (number, svg, caption)."""
     from markupsafe import Markup
 
     ctx = build_context(results, plotdata, paper)
@@ -502,9 +508,10 @@ def render_html(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None =
     env = _environment()
     # The stylesheet and the SVG plots are ours (not user text): mark them safe.
     ctx["css"] = Markup(css)
-    for fig in _iter_figures(ctx):
+    figures = list(_iter_figures(ctx))
+    for fig in figures:
         fig["svg"] = Markup(fig["svg"])
-    return env.get_template("report.html.j2").render(**ctx)
+    return env.get_template("report.html.j2").render(**ctx), figures
 
 
 def _iter_figures(ctx: Mapping[str, Any]) -> Iterable[dict[str, Any]]:
@@ -566,13 +573,22 @@ def render_report(results: dict, plotdata: dict, out_dir: Path, paper: str = "A4
     Returns
     -------
     dict of str to Path
-        ``{"html": .../report.html}`` and, with ``pdf``, ``"pdf": .../report.pdf``.
+        ``{"html": .../report.html}``, ``"plots": .../plots`` (one SVG file a figure, numbered
+        as in the report) and, with ``pdf``, ``"pdf": .../report.pdf``.
     """
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
-    html = render_html(results, plotdata, paper)
+    html, figures = _render(results, plotdata, paper)
     paths = {"html": out_dir / "report.html"}
     paths["html"].write_text(html, encoding="utf-8")
+    if figures:
+        # Each figure also as its own SVG file, numbered as in the report.
+        plot_dir = out_dir / "plots"
+        plot_dir.mkdir(exist_ok=True)
+        for fig in figures:
+            (plot_dir / f"figure-{int(fig['number']):03d}.svg").write_text(
+                '<?xml version="1.0" encoding="utf-8"?>\n' + str(fig["svg"]), encoding="utf-8")
+        paths["plots"] = plot_dir
     if pdf:
         paths["pdf"] = write_pdf(html, out_dir / "report.pdf")
     return paths
