@@ -73,11 +73,16 @@ def test_series_with_no_unit(kit, make_study, expect_input_error):
     assert "units_row: true" in err  # says how to give one
 
 
-def test_time_column_with_no_unit(kit, make_study, expect_input_error):
+def test_time_column_without_a_unit_is_seconds(kit, make_study, cli):
+    """Contract: ``time: Time`` is in seconds unless ``{column: Time, unit: min}`` says otherwise."""
     text = kit.study.replace("time: {column: Time, unit: s}", "time: Time")
-    err = expect_input_error(make_study(text))
-    assert "fire-a.csv column 'Time'" in err and "no unit for time" in err
-    assert f"study.yaml:{kit.line_of(text, 'time: Time')} scenarios[0].time" in err
+    status, _, err = cli(["validate", make_study(text)])
+    assert status == 0, err
+    minutes = kit.study.replace("time: {column: Time, unit: s}", "time: {column: Time, unit: min}")
+    from egressmargin.pipeline import load
+    t_s = load(make_study(text)).data["fire-a"].t_s
+    t_min = load(make_study(minutes)).data["fire-a"].t_s
+    assert t_min[1] == pytest.approx(60.0 * t_s[1])
 
 
 @pytest.mark.parametrize("unit, words", [("degZ", "unknown unit 'degZ'"),

@@ -149,9 +149,11 @@ def test_read_pairs_good_file(tmp_path):
 
 def test_read_pairs_default_sigma_and_mixed_sigma(tmp_path):
     path = _write(tmp_path, "quantity,measured,predicted\nco2,1,1.1\nco2,2,2.1\n")
-    with pytest.raises(InputError) as info:
-        read_pairs(path)
-    assert "sigma_exp" in str(info.value)
+    # The contract makes sigma_exp optional: without it sigma_E is 0 (all scatter charged
+    # to the model, the conservative reading) and a warning says so.
+    pairs = read_pairs(path)
+    assert pairs["co2"]["sigma_exp"] == 0.0
+    assert any("sigma_exp" in w for w in pairs["co2"]["warnings"])
     assert read_pairs(path, default_sigma_exp=0.05)["co2"]["sigma_exp"] == 0.05
 
     # Rows disagree: root mean square of sigma_E, and a warning (documented choice).
@@ -172,7 +174,7 @@ def test_read_pairs_reports_every_problem_located(tmp_path):
         "temperature,100,-5,0.07\n"  # 4: non-positive predicted
         "temperature,100,120,0.07\n"  # 5: fine
         "temperature,150,160,0.07\n"  # 6: fine
-        "hcn,10,12,0\n"  # 7: sigma_exp not positive
+        "hcn,10,12,-0.1\n"  # 7: sigma_exp negative
         "visibility,10,12,0.1\n",  # 8: only one pair for visibility
     )
     with pytest.raises(InputError) as info:
@@ -184,7 +186,7 @@ def test_read_pairs_reports_every_problem_located(tmp_path):
     assert f"{path}:3 column 'measured'" in text
     assert "found 'abc', expected a positive number" in text
     assert f"{path}:4 column 'predicted'" in text and "found '-5'" in text
-    assert f"{path}:7 column 'sigma_exp'" in text and "found '0'" in text
+    assert f"{path}:7 column 'sigma_exp'" in text and "found '-0.1'" in text
     assert f"{path}:8 quantity 'visibility'" in text and "at least 2" in text
 
 

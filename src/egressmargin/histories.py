@@ -158,6 +158,8 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
             return None, None
         header, header_unit = headers[ref.column]
         unit = ref.unit or header_unit or (units_row.get(header) or None)
+        if not unit and quantity == "time":
+            unit = "s"   # contract: the time column is in seconds unless a unit is given
         if not unit:
             problems.append(Problem(f"{fname} column '{header}'", f"no unit for {what} (mapped at {ref.where}); "
                                     f"expected a unit: write the header as '{ref.column} [unit]', give "

@@ -259,11 +259,11 @@ def read_pairs(
 
     if default_sigma_exp is not None:
         d = float(default_sigma_exp)
-        if not math.isfinite(d) or d <= 0:
+        if not math.isfinite(d) or d < 0:
             problems.append(
                 Problem(
                     "default sigma_exp",
-                    f"found {default_sigma_exp!r}, expected a positive number "
+                    f"found {default_sigma_exp!r}, expected a number of 0 or more "
                     f"(a relative standard deviation, e.g. 0.07)",
                 )
             )
@@ -315,13 +315,20 @@ def read_pairs(
         raise_if_any(problems)
 
     has_sigma = "sigma_exp" in columns
+    file_warnings: list[str] = []
     if not has_sigma and default_sigma_exp is None and not problems:
+        # The contract makes sigma_exp optional. Without it every bit of scatter is
+        # charged to the model (sigma_E = 0): the conservative reading. Say so.
+        default_sigma_exp = 0.0
+        file_warnings.append("no sigma_exp given: taken as 0, all scatter attributed to the model "
+                             "(conservative)")
         problems.append(
             Problem(
                 f"{name}:{header_line}",
-                "no 'sigma_exp' column and no default sigma_exp given; add a 'sigma_exp' "
-                "column (the experiments' relative standard deviation, e.g. 0.07) or "
-                "give a default",
+                "no 'sigma_exp' column and no default given: the experiments' uncertainty is "
+                "taken as 0, so all scatter is attributed to the model (conservative); add a "
+                "'sigma_exp' column (e.g. 0.07) or pass --sigma-exp to change this",
+                warning=True,
             )
         )
 
@@ -365,12 +372,12 @@ def read_pairs(
         sigma: float | None = None
         raw_sigma = cell("sigma_exp") if has_sigma else ""
         if raw_sigma:
-            sigma = _parse_positive(raw_sigma)
+            sigma = 0.0 if _parse_zero(raw_sigma) else _parse_positive(raw_sigma)
             if sigma is None:
                 problems.append(
                     Problem(
                         f"{name}:{line} column 'sigma_exp'",
-                        f"found '{raw_sigma}', expected a positive number "
+                        f"found '{raw_sigma}', expected a number of 0 or more "
                         f"(a relative standard deviation, e.g. 0.07)",
                     )
                 )
@@ -428,7 +435,7 @@ def read_pairs(
                 )
             )
             continue
-        warnings: list[str] = []
+        warnings: list[str] = list(file_warnings)
         sigmas = np.array([s for s in entry["sigma"] if s is not None], dtype=float)
         sigma_used = float("nan")
         if sigmas.size:
@@ -455,6 +462,14 @@ def read_pairs(
         problems.append(Problem(name, "no data rows under the header"))
     raise_if_any(problems)
     return result
+
+
+def _parse_zero(text: str) -> bool:
+    """True when ``text`` is the number zero (an experiment taken as exact)."""
+    try:
+        return float(text) == 0.0
+    except ValueError:
+        return False
 
 
 def _round_sig(value: float, digits: int = _SIG_DIGITS) -> float:
