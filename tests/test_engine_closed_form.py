@@ -254,3 +254,20 @@ def test_smoke_detector_rule_on_an_extinction_ramp(tmp_path):
     d = float(0.15 / np.log(10))
     res, _ = results_for(_detector_study(tmp_path, {"smoke": {"location": "a", "optical_density": f"{d!r} 1/m"}}))
     assert res["scenarios"][0]["routes"][0]["rset_components_s"]["detection"]["p50"] == pytest.approx(150.0)
+
+
+def test_visibility_series_is_searched_as_given(tmp_path):
+    """A visibility series falling linearly from 30 m to 0 over 300 s reaches 10 m at 200 s,
+    interpolated on the series as given (not on C/V); with sigma 0 and bias delta on K the
+    corrected visibility is V*delta, reaching 10 m where V = 10/delta."""
+    t = np.arange(0.0, 301.0, 30.0)          # 30 s steps: 10 m is reached between 180 s and 210 s
+    vis = 30.0 - 0.1 * t
+    unc = {"source": "synthetic", "distribution": "lognormal",
+           "quantities": {"extinction": {"bias": 0.8, "sigma_model": 0.0}}}
+    path = write_study(tmp_path, t, {"V": ("m", vis)}, [{"id": "a", "visibility": "V"}],
+                       criteria={"base": "general-2m", "only": ["visibility"]}, uncertainty=unc)
+    res, _ = results_for(path)
+    c = location(res, "a")["criteria"]["visibility"]
+    assert c["raw_s"] == pytest.approx(200.0)
+    # K/delta: visibility V*delta = 0.8 V reaches 10 m where V = 12.5 m: t = (30 - 12.5)/0.1
+    assert c["corrected_s"]["p50"] == pytest.approx(175.0)

@@ -65,6 +65,7 @@ class Prepared:
     temp_present: np.ndarray
     extinction: np.ndarray | None
     smoke_kind: list[str | None]
+    visibility_given: np.ndarray | None   # the visibility series as given, where that is the smoke series
     flux: np.ndarray | None
     layer: np.ndarray | None
     layer_source: list[str | None]
@@ -129,7 +130,7 @@ def prepare(data: ScenarioData, criteria: CriteriaSet, ambient_c: float | None =
     o2_amb = O2_AMBIENT if ambient_o2 is None else ambient_o2
     return Prepared(
         t_s=t, ids=list(data.location_ids), amb_c=amb, rise=rise, temp_present=present["temperature"],
-        extinction=ext if any(kind) else None, smoke_kind=kind,
+        extinction=ext if any(kind) else None, smoke_kind=kind, visibility_given=data.series.get("visibility"),
         flux=data.series.get("heat_flux"), layer=lay if any(lsrc) else None, layer_source=lsrc,
         gases={g: data.series[g] for g in ("co", "hcn", "co2") if g in data.series},
         o2_amb=o2_amb, o2_depletion=None if o2 is None else o2_amb - o2,
@@ -228,9 +229,18 @@ def single_series_times(prep: Prepared, criterion: Criterion, factors: dict[str,
             levels = np.broadcast_to(lim / f[None, :], (prep.n_loc, S))
             return _scaled_crossings(prep.t_s, prep.flux, levels, "above", ok)
         if cid == "visibility":
+            # A visibility series given as such is searched as visibility (V / f falls to the
+            # limit: V <= limit * f), so the crossing is interpolated on the series the user
+            # gave; smoke given as K, D or soot is searched on K (K f reaches C / limit).
             k_lim = visibility.extinction_limit(lim, criterion.params.get("sign_constant", 8.0))
-            levels = np.vstack([k_lim / factors.get(smoke_factor_key(k), np.ones(S)) for k in prep.smoke_kind])
-            return _scaled_crossings(prep.t_s, prep.extinction, levels, "above", ok)
+            direct = np.array([k == "visibility" for k in prep.smoke_kind])
+            f = np.vstack([factors.get(smoke_factor_key(k), np.ones(S)) for k in prep.smoke_kind])
+            out = _scaled_crossings(prep.t_s, prep.extinction, k_lim / f, "above", ok & ~direct)
+            if direct.any():
+                given = prep.visibility_given
+                out_v = _scaled_crossings(prep.t_s, given, lim * f, "below", ok & direct)
+                out = np.where(direct[:, None], out_v, out)
+            return out
         if cid == "layer_height":
             f = factors.get("layer_height", np.ones(S))
             levels = np.broadcast_to(lim / f[None, :], (prep.n_loc, S))
