@@ -232,6 +232,10 @@ def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> C
         if not isinstance(only, list) or not all(isinstance(x, str) for x in only):
             problems.append(Problem(where(("only",)), f"found {only!r}; expected a list of criterion ids"))
         else:
+            if not items and not base:
+                problems.append(Problem(where(("only",)), "'only' needs criteria to choose from; expected a "
+                                        f"'base' set too, e.g. base: {names[0] if names else 'general-2m'}"))
+                only = []
             for i, cid in enumerate(only):
                 if cid not in items:
                     problems.append(Problem(where(("only", i)), f"'{cid}' is not a criterion of this set; expected "
