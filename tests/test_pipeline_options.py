@@ -131,3 +131,12 @@ def test_resolution_missing_a_column_names_the_file(tmp_path, capsys):
     assert main(["validate", str(tmp_path / "study.yaml")]) == 2
     err = capsys.readouterr().err
     assert files[1] in err and "T1" in err
+
+
+def test_only_without_a_base_asks_for_one(tmp_path, capsys):
+    t = np.arange(0.0, 61.0, 10.0)
+    path = write_study(tmp_path, t, {"T1": ("degC", 20 + t)}, [{"id": "a", "temperature": "T1"}],
+                       criteria={"only": ["temperature"]})
+    assert main(["validate", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "criteria.only" in err and "base" in err
