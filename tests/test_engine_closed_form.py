@@ -271,3 +271,23 @@ def test_visibility_series_is_searched_as_given(tmp_path):
     assert c["raw_s"] == pytest.approx(200.0)
     # K/delta: visibility V*delta = 0.8 V reaches 10 m where V = 12.5 m: t = (30 - 12.5)/0.1
     assert c["corrected_s"]["p50"] == pytest.approx(175.0)
+
+
+def test_smoke_kinds_corrected_by_one_table_row_are_swept_together(tmp_path):
+    """Two locations give smoke as extinction and as optical density; the table has one
+    extinction row, so both share one draw and the sensitivity sweeps them as one input."""
+    t = np.arange(0.0, 601.0, 5.0)
+    cols = {"K": ("1/m", 0.002 * t), "D": ("1/m", 0.002 * t / np.log(10))}
+    locs = [{"id": "a", "extinction": "K"}, {"id": "b", "optical_density": "D"}]
+    unc = {"source": "synthetic", "distribution": "lognormal",
+           "quantities": {"extinction": {"bias": 1.2, "sigma_model": 0.2}}}
+    route = {"id": "r", "occupants": 20, "detection": "10 s", "alarm": "0 s", "premovement": "30 s",
+             "path": [{"door": {"width": "1.0 m"}}], "exposed_at": ["a", "b"]}
+    path = write_study(tmp_path, t, cols, locs, routes=[route], uncertainty=unc, samples=500,
+                       criteria={"base": "general-2m", "only": ["visibility"]})
+    res, _ = results_for(path)
+    a, b = (location(res, x)["criteria"]["visibility"]["corrected_s"] for x in ("a", "b"))
+    assert a == b                                     # same series, same draw
+    names = [s["input"] for s in res["scenarios"][0]["routes"][0]["sensitivity"]]
+    assert names.count("model error: smoke (extinction)") == 1
+    assert not any("optical" in n for n in names)

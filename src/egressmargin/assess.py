@@ -203,20 +203,23 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
 # sensitivity
 # ----------------------------------------------------------------------------------------
 
-def factor_sweep_rows(factor_ppfs: dict[str, callable]) -> tuple[dict[str, np.ndarray], list[tuple[str, int, int]]]:
-    """Factor rows: row 0 all medians; then for each uncertain factor a low and a high row.
+def factor_sweep_rows(factor_ppfs: dict) -> tuple[dict[str, np.ndarray], list[tuple[str, int, int]]]:
+    """Factor rows: row 0 all medians; then for each uncertain input a low and a high row.
 
-    ``factor_ppfs`` maps a factor key to its inverse CDF. Returns the factor arrays and
-    (name, low row, high row) for each swept factor.
+    ``factor_ppfs`` maps an input name (a table row) to ``(inverse CDF, factor keys)``; the
+    factor keys of one input move together, as they share one draw in the Monte Carlo.
+    Returns the factor arrays by factor key and (input name, low row, high row) per input.
     """
-    keys = [k for k, f in factor_ppfs.items() if abs(float(f(SWEEP_HIGH)) - float(f(SWEEP_LOW))) > 0]
-    R = 1 + 2 * len(keys)
-    rows = {k: np.full(R, float(f(0.5))) for k, f in factor_ppfs.items()}
+    names = [n for n, (f, _) in factor_ppfs.items() if abs(float(f(SWEEP_HIGH)) - float(f(SWEEP_LOW))) > 0]
+    R = 1 + 2 * len(names)
+    rows = {k: np.full(R, float(f(0.5))) for f, keys in factor_ppfs.values() for k in keys}
     index = []
-    for i, k in enumerate(keys):
-        rows[k][1 + 2 * i] = float(factor_ppfs[k](SWEEP_LOW))
-        rows[k][2 + 2 * i] = float(factor_ppfs[k](SWEEP_HIGH))
-        index.append((k, 1 + 2 * i, 2 + 2 * i))
+    for i, n in enumerate(names):
+        f, keys = factor_ppfs[n]
+        for k in keys:
+            rows[k][1 + 2 * i] = float(f(SWEEP_LOW))
+            rows[k][2 + 2 * i] = float(f(SWEEP_HIGH))
+        index.append((n, 1 + 2 * i, 2 + 2 * i))
     return rows, index
 
 

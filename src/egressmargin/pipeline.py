@@ -136,23 +136,37 @@ def draw_scenario_factors(table, prep, S: int, seed: int, scenario_index: int) -
 
 
 def factor_ppfs(table, prep) -> dict:
-    out = {}
+    """Inverse CDF of each table row in use, with the factor keys that share its draw.
+
+    Smoke series of several kinds corrected by one row (extinction, say) share one draw in
+    the Monte Carlo, so the sensitivity sweep moves them together as one input.
+    """
+    out: dict[str, tuple] = {}
     for fk in _factor_keys(prep):
         sk = _stats_key(table, fk)
-        if sk is not None:
-            out[fk] = (lambda u, sk=sk: factor_ppf(table, sk, np.atleast_1d(u))[0])
+        if sk is None:
+            continue
+        if sk not in out:
+            out[sk] = ((lambda u, sk=sk: factor_ppf(table, sk, np.atleast_1d(u))[0]), [])
+        out[sk][1].append(fk)
     return out
 
 
 FACTOR_LABELS = {"temperature": "model error: temperature", "heat_flux": "model error: heat flux",
                  "co": "model error: CO", "hcn": "model error: HCN", "co2": "model error: CO2",
-                 "o2": "model error: O2 depletion", "layer_height": "model error: layer height"}
+                 "o2": "model error: O2 depletion", "layer_height": "model error: layer height",
+                 "extinction": "model error: smoke (extinction)",
+                 "optical_density": "model error: smoke (optical density)",
+                 "soot": "model error: smoke (soot)", "visibility": "model error: smoke (visibility)"}
+
+
+def si_keys(sweep_index) -> list[str]:
+    return [name for name, _, _ in sweep_index]
 
 
 def _label(key: str) -> str:
-    if key.startswith("smoke:"):
-        return f"model error: smoke ({key.split(':')[1]})"
-    return FACTOR_LABELS.get(key, key)
+    """Words for a table row swept in the sensitivity study."""
+    return FACTOR_LABELS.get(key, f"model error: {key}")
 
 
 def _t(x) -> float | None:
@@ -260,7 +274,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             entry["along_route"] = assess.along_route_dose(route, prep, crit, fac, S, out.components,
                                                            out.movement)
         sf, si, sa = sweep
-        labels = {k: _label(k) for k in sf}
+        labels = {k: _label(k) for k in si_keys(si)}
         entry["sensitivity"] = assess.sensitivity(route, prep, sf, si, sa, labels)
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}

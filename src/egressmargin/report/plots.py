@@ -462,7 +462,7 @@ def tornado_figure(sensitivity: Sequence[Mapping[str, Any]], base_margin_s: Any 
         ax.set_ylim(-0.7, n - 0.3)
         ax.set_xlabel("Margin ASET − RSET [s]")
         ax.grid(axis="y", visible=False)
-        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.18 - 0.2 / max(n, 1)), ncol=4)
+        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.18 - 0.2 / max(n, 1)), ncol=2)
         fig.tight_layout()
         return svg_from_figure(fig, uid)
 
