@@ -269,6 +269,9 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         undetected = ~np.isfinite(out.components["detection"])
         if undetected.any():
             entry["share_not_detected"] = round(share(undetected), 4)
+        assessed_any = any(locations[prep.ids.index(loc)]["criteria"][cid]["status"] == "assessed"
+                           for loc in route.exposed_at for cid in crit.items)
+        entry["criteria_assessed"] = assessed_any
         entry["verdict_text"] = _verdict_text(entry, study.max_p_fail, undetected.any())
         if route.along_route:
             entry["along_route"] = assess.along_route_dose(route, prep, crit, fac, S, out.components,
@@ -293,6 +296,10 @@ def _limit_value(c):
 
 
 def _verdict_text(entry, max_p_fail, undetected) -> str:
+    if not entry.get("criteria_assessed", True):
+        return ("NOTHING ASSESSED: none of the criteria could be assessed at the locations this route "
+                "passes (their series are missing), so the 'pass' below carries no evidence. "
+                + _verdict_text({**entry, "criteria_assessed": True}, max_p_fail, undetected))
     words = (f"{'Passes' if entry['verdict'] == 'pass' else 'Fails'}: the probability that the route becomes "
              f"untenable before its occupants are out is {entry['p_fail']:.1%} "
              f"(acceptance: at most {max_p_fail:.1%}).")
