@@ -133,7 +133,8 @@ def _summary(out: Path) -> None:
             at_least = (r.get("margin_at_least_s") or {}).get("p05")
             margin_text = t(margin) if margin is not None or at_least is None else f">= {at_least:.0f}"
             rows.append((sc["id"], r["id"], t(r["rset_s"]["p50"]), t(r["aset_s"]["p50"]),
-                         margin_text, f"{r['p_fail']:.3f}", r["verdict"].upper()))
+                         margin_text, f"{r['p_fail']:.3f}",
+                         r["verdict"].upper() + ("" if r.get("criteria_assessed", True) else " (nothing assessed)")))
         if not sc["routes"]:
             for loc in sc["locations"]:
                 rows.append((sc["id"], f"[{loc['id']}]", "", t(loc["aset_s"]["p50"]), "", "", loc["governing"] or ""))
