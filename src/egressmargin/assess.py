@@ -16,6 +16,7 @@ from .criteria import CriteriaSet
 from .egress import distributions as dist
 from .egress.detection import rti_response
 from .egress.movement import movement_time
+from .egress.rset import compose_rset
 from .stats import share, summarise
 from .study import DetectorRule, RouteSpec
 from .tenability.crossing import crossing_times_for_levels
@@ -93,9 +94,9 @@ def route_rset(route: RouteSpec, prep, factors, draws: EgressDraws, occupants_fa
     pre = dist.ppf(route.premovement, u_pre)
     mv = movement_time(route.path, route.occupants * occupants_factor, route.movement_mode,
                        speed_factor=speed_factor)
-    move = np.broadcast_to(np.asarray(mv.total_s, float), det.shape)
-    total = det + alarm + pre + move
-    return total, {"detection": det, "alarm": alarm, "premovement": pre, "movement": move}, mv
+    total, parts = compose_rset(det, alarm, pre, mv.total_s)
+    return total, {"detection": parts["detection_s"], "alarm": parts["alarm_s"],
+                   "premovement": parts["premovement_s"], "movement": parts["movement_s"]}, mv
 
 
 def route_aset(loc_aset: np.ndarray, ids: list[str], exposed: list[str]) -> np.ndarray:
@@ -104,8 +105,8 @@ def route_aset(loc_aset: np.ndarray, ids: list[str], exposed: list[str]) -> np.n
     return loc_aset[rows].min(axis=0)
 
 
-def outcome(route: RouteSpec, prep, factors, loc_aset, loc_aset_raw, governing_raw, draws, max_p_fail,
-            S: int) -> RouteOutcome:
+def outcome(route: RouteSpec, prep, factors, loc_aset, loc_aset_raw, governing_raw, draws,
+            max_p_fail) -> RouteOutcome:
     rset, comps, mv = route_rset(route, prep, factors, draws)
     a = route_aset(loc_aset, prep.ids, route.exposed_at)
     rows = [prep.ids.index(x) for x in route.exposed_at]

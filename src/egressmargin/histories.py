@@ -107,7 +107,7 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
                                   "comma-separated file with one header row")]) from None
     if head.shape[1] == 0:
         raise InputError([Problem(fname, "no columns found; expected a header row naming the columns")])
-    _check_field_counts(path, fname)
+    digest = _check_field_counts(path, fname)   # reads the bytes once: also the file's hash
     all_headers = list(head.columns)
     headers = {}
     for h in all_headers:
@@ -228,12 +228,12 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
         raise InputError(problems)
     return ScenarioData(spec.id, np.asarray(t_s, float), [loc.id for loc in spec.locations],
                         {k: v for k, v in series.items() if present[k].any()},
-                        {k: v for k, v in present.items() if v.any()}, profiles, path, sha256_of(path), n,
+                        {k: v for k, v in present.items() if v.any()}, profiles, path, digest, n,
                         columns), [p for p in problems if p.warning]
 
 
-def _check_field_counts(path: Path, fname: str) -> None:
-    """Raise InputError for a row with more or fewer fields than the header.
+def _check_field_counts(path: Path, fname: str) -> str:
+    """Raise InputError for a row with more or fewer fields than the header; return the SHA-256.
 
     Reading only the mapped columns would otherwise let a ragged row shift values into the
     wrong column silently. Counting separators is cheap; only when a count differs is the
@@ -241,17 +241,19 @@ def _check_field_counts(path: Path, fname: str) -> None:
     """
     import pandas as pd
 
-    lines = path.read_bytes().splitlines()
+    raw = path.read_bytes()
+    lines = raw.splitlines()
     if not lines:
-        return
+        return hashlib.sha256(raw).hexdigest()
     n_sep = lines[0].count(b",")
     if all(line.count(b",") == n_sep for line in lines[1:] if line.strip()):
-        return
+        return hashlib.sha256(raw).hexdigest()
     try:
         pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True)
     except Exception as exc:
         raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected a "
                                   "comma-separated file with one header row")]) from None
+    return hashlib.sha256(raw).hexdigest()
 
 
 def _plausible(key, values, ref, info, fname, line0, problems):

@@ -240,7 +240,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     for ri, route in routes_here:
         draws = assess.egress_uniforms(seed, ri, S)
         fac = factors if factors else {}
-        out = assess.outcome(route, prep, fac, loc_aset, raw_aset, governing_raw, draws, study.max_p_fail, S)
+        out = assess.outcome(route, prep, fac, loc_aset, raw_aset, governing_raw, draws, study.max_p_fail)
         # raw deterministic margin: raw ASET against RSET at median inputs
         med = assess.EgressDraws(np.full(1, 0.5), np.full(1, 0.5), np.full(1, 0.5))
         rset_med, _, _ = assess.route_rset(route, prep, {}, med)
