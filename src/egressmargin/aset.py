@@ -269,48 +269,30 @@ class DoseField:
     high: np.ndarray          # (S,) node index of the upper corner
     _base: np.ndarray | None = field(default=None, repr=False)
 
-    def values(self, idx: np.ndarray, which: str = "interp") -> np.ndarray:
+    def values(self, idx: np.ndarray) -> np.ndarray:
         """Dose at time index ``idx`` (S, Lc) for every sample."""
         M, Lc, N = self.grid.shape
-        flat = self.grid.reshape(-1)
-        lc = np.arange(Lc)[None, :]
-        if which in ("low", "high"):
-            node = (self.low if which == "low" else self.high)[:, None]
-            return flat[(node * Lc + lc) * N + idx]
         if self._base is None:   # flat offsets of every (sample, corner, location) curve, once
+            lc = np.arange(Lc)[None, :]
             self._base = (self.corners[:, :, None] * Lc + lc[:, None, :]) * N
-        g = flat[self._base + idx[:, None, :]]
+        g = self.grid.reshape(-1)[self._base + idx[:, None, :]]
         return np.einsum("sc,scl->sl", self.weights, g)
 
-    def crossing(self, limit: float, which: str = "interp") -> np.ndarray:
+    def crossing(self, limit: float) -> np.ndarray:
         """(S, Lc) first time the dose reaches ``limit`` (linear between samples); NaN if never."""
         n = self.grid.shape[2]
-        S, Lc = self.corners.shape[0], self.grid.shape[1]
-        last = self.values(np.full((S, Lc), n - 1), which)
-        first = self.values(np.zeros((S, Lc), int), which)
-        lo = np.zeros((S, Lc), int)
-        hi = np.full((S, Lc), n - 1)
-        while True:
-            active = hi - lo > 1
-            if not active.any():
-                break
-            mid = (lo + hi) // 2
-            hit = self.values(mid, which) >= limit
-            hi = np.where(active & hit, mid, hi)
-            lo = np.where(active & ~hit, mid, lo)
-        d_lo, d_hi = self.values(lo, which), self.values(hi, which)
-        t = self.t_s
-        with np.errstate(divide="ignore", invalid="ignore"):
-            frac = np.where(d_hi > d_lo, (limit - d_lo) / (d_hi - d_lo), 1.0)
-        tc = t[lo] + np.clip(frac, 0.0, 1.0) * (t[hi] - t[lo])
-        tc = np.where(first >= limit, t[0], tc)
+        shape = (self.corners.shape[0], self.grid.shape[1])
+        last = self.values(np.full(shape, n - 1))
+        first = self.values(np.zeros(shape, int))
+        tc = self.bracketed_crossing(limit, np.zeros(shape, int), np.full(shape, n - 1))
+        tc = np.where(first >= limit, self.t_s[0], tc)
         return np.where(last >= limit, tc, np.nan)
 
     def bracketed_crossing(self, limit: float, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
         """First crossing of the interpolated dose when ``dose(lo) < limit <= dose(hi)`` is known.
 
         Bisection inside the bracket only, then linear interpolation between the two
-        samples; the result is identical to :meth:`crossing` for those samples.
+        samples (:meth:`crossing` calls it with the whole time axis as the bracket).
         """
         lo, hi = lo.copy(), hi.copy()
         while True:
