@@ -166,6 +166,13 @@ def _decimate(t: np.ndarray, ys: Sequence[np.ndarray], max_points: int = MAX_POI
     return np.array(sorted(keep))
 
 
+def _grid_shape(n_panels: int, max_cols: int = 3) -> tuple[int, int]:
+    """(rows, columns) of a small-multiples grid for ``n_panels`` panels."""
+    n = max(n_panels, 1)
+    ncols = min(n, max_cols)
+    return math.ceil(n / ncols), ncols
+
+
 def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
                     raw_times_s: Mapping[str, Any] | None = None,
                     end_s: float | None = None, uid: str = "loc") -> str:
@@ -195,9 +202,7 @@ def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
     matplotlib, plt = _plt()
     t = np.asarray(t_s, dtype=float)
     keys = list(specs)
-    n = max(len(keys), 1)
-    ncols = min(n, 3)
-    nrows = math.ceil(n / ncols)
+    nrows, ncols = _grid_shape(len(keys))
     with matplotlib.rc_context(_RC):
         fig, axes = plt.subplots(nrows, ncols, figsize=(FIG_WIDTH_IN, 1.95 * nrows + 0.45),
                                  squeeze=False)
@@ -495,9 +500,7 @@ def credibility_figure(cred: Mapping[str, Mapping[str, Mapping[str, Any]]],
     labels = labels or {}
     location_titles = location_titles or {}
     locs = list(cred)
-    n = max(len(locs), 1)
-    ncols = min(n, 3)
-    nrows = math.ceil(n / ncols)
+    nrows, ncols = _grid_shape(len(locs))
     with matplotlib.rc_context(_RC):
         fig, axes = plt.subplots(nrows, ncols, figsize=(FIG_WIDTH_IN, 2.0 * nrows + 0.55),
                                  squeeze=False)

@@ -76,6 +76,14 @@ def _out(a: np.ndarray):
     return a if a.ndim else float(a)
 
 
+def _c_over(c: float, x) -> np.ndarray:
+    """C / x, with +inf where x <= 0 and no warnings (S = C/K and K = C/S alike)."""
+    x = np.asarray(x, dtype=float)
+    zero = x <= 0.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(zero, np.inf, c / np.where(zero, 1.0, x))
+
+
 def extinction_from_optical_density(d_per_m):
     """Natural-log extinction coefficient from base-10 optical density per metre.
 
@@ -174,11 +182,7 @@ def visibility_from_extinction(k_per_m, sign_constant: float):
     >>> visibility_from_extinction(0.8, 8.0)
     10.0
     """
-    k = np.asarray(k_per_m, dtype=float)
-    clear = k <= 0.0
-    with np.errstate(divide="ignore", invalid="ignore"):
-        s = sign_constant / np.where(clear, 1.0, k)
-    return _out(np.where(clear, np.inf, s))
+    return _out(_c_over(sign_constant, k_per_m))   # clear air (K <= 0): infinite visibility
 
 
 def extinction_from_visibility(visibility_m, sign_constant: float):
@@ -209,11 +213,7 @@ def extinction_from_visibility(visibility_m, sign_constant: float):
     >>> extinction_from_visibility(10.0, 8.0)
     0.8
     """
-    s = np.asarray(visibility_m, dtype=float)
-    blind = s <= 0.0
-    with np.errstate(divide="ignore", invalid="ignore"):
-        k = sign_constant / np.where(blind, 1.0, s)
-    return _out(np.where(blind, np.inf, k))
+    return _out(_c_over(sign_constant, visibility_m))   # no visibility: infinite extinction
 
 
 def extinction_limit(visibility_limit_m: float, sign_constant: float) -> float:
