@@ -144,7 +144,7 @@ def test_only_without_a_base_asks_for_one(tmp_path, capsys):
 
 def test_route_with_nothing_assessed_says_so(tmp_path):
     """Criteria not assessed are never silently passed: a route none of whose criteria can be
-    assessed keeps the contract's 'pass' but says in words that it carries no evidence."""
+    assessed is 'indeterminate' (the draws carry no evidence) and says so in words."""
     t = np.arange(0.0, 61.0, 10.0)
     route = {"id": "r", "occupants": 10, "detection": "10 s", "alarm": "5 s", "premovement": "10 s",
              "path": [{"door": {"width": "1 m"}}], "exposed_at": ["a"]}
@@ -152,5 +152,6 @@ def test_route_with_nothing_assessed_says_so(tmp_path):
     res, _ = results_for(path)
     r = res["scenarios"][0]["routes"][0]
     assert r["criteria_assessed"] is False
-    assert r["verdict_text"].startswith("NOTHING ASSESSED")
+    assert r["verdict"] == "indeterminate"
+    assert r["verdict_text"].startswith("None of the criteria could be assessed")
     assert {x["criterion"] for x in r["not_assessed"]} >= {"temperature", "fed_toxic", "visibility"}

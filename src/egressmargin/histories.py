@@ -63,6 +63,8 @@ class ScenarioData:
     sha256: str = ""
     rows: int = 0
     columns: list[ColumnRead] = field(default_factory=list)
+    ignition_s: float = 0.0            # ignition on the file's clock [s]; times here count from it
+    clock_note: str | None = None      # what shifting to ignition did, for the report
 
     @property
     def end_s(self) -> float:

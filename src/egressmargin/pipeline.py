@@ -18,12 +18,14 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__, aset, assess
+from .clock import shift_to_ignition
 from .credibility import flag_change, grid_convergence
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
 from .stats import share, summarise
 from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
+from .verdict import CI_METHOD, decide, needs_more_samples
 
 #: Samples used to draw the corrected p05-p95 band on the report's time plots.
 BAND_SAMPLES = 200
@@ -77,6 +79,7 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
     for spec in study.scenarios:
         try:
             d, w = read_scenario(spec)
+            d = _on_ignition_clock(spec, d, problems)
             data[spec.id] = d
             warnings.extend(w)
         except InputError as exc:
@@ -89,6 +92,7 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
                 continue
             try:
                 d2, w2 = read_scenario(spec, r.histories)
+                d2 = _on_ignition_clock(spec, d2, problems)
                 warnings.extend(w2)
                 runs.append((r.cell_m, d2))
             except InputError as exc:
@@ -97,6 +101,19 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
     if any(not p.warning for p in problems):
         raise InputError(problems + [w for w in warnings if w.warning])
     return Loaded(study, table, data, res, warnings)
+
+
+def _on_ignition_clock(spec, data: ScenarioData, problems: list[Problem]) -> ScenarioData:
+    """Times from ignition (``scenarios[].ignition`` on the file's clock, default its first time)."""
+    try:
+        shifted, note = shift_to_ignition(data, spec.ignition_s)
+    except ValueError as exc:
+        problems.append(Problem(f"{spec.where}.ignition" if spec.where else "ignition",
+                                f"{exc}; expected a time within the histories of {data.path}"))
+        return data
+    shifted.ignition_s = float(data.t_s[0]) if spec.ignition_s is None else float(spec.ignition_s)
+    shifted.clock_note = note
+    return shifted
 
 
 def _factor_keys(prep: aset.Prepared) -> list[str]:
@@ -237,10 +254,21 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             {cid: aset.CriterionResult(np.repeat(r.times, R, axis=1), r.assessed, r.missing) for cid, r in raw.items()}
         sweep = (sweep_factors, sweep_index, aset.location_aset(sweep_res))
     routes, route_plots = [], {}
+    more = _MoreSamples(table, prep, crit, seed, index)
+    s_max = max(study.max_samples, S)
     for ri, route in routes_here:
         draws = assess.egress_uniforms(seed, ri, S)
         fac = factors if factors else {}
         out = assess.outcome(route, prep, fac, loc_aset, raw_aset, governing_raw, draws, study.max_p_fail)
+        # Settle the statistics by sampling more where the interval straddles the limit
+        # (same seed streams, so the result is deterministic).
+        s_used = S
+        while s_used < s_max and needs_more_samples(out.aset, out.rset, end, study.max_p_fail):
+            s_used = min(2 * s_used, s_max)
+            fac_big, loc_big = more.at(s_used)
+            out = assess.outcome(route, prep, fac_big, loc_big, raw_aset, governing_raw,
+                                 assess.egress_uniforms(seed, ri, s_used), study.max_p_fail)
+            fac = fac_big
         # raw deterministic margin: raw ASET against RSET at median inputs
         med = assess.EgressDraws(np.full(1, 0.5), np.full(1, 0.5), np.full(1, 0.5))
         rset_med, _, _ = assess.route_rset(route, prep, {}, med)
@@ -260,7 +288,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             "aset_raw_s": _t(out.aset_raw), "aset_s": summarise(out.aset),
             "governing_location": out.governing_location, "governing_criterion": out.governing_criterion,
             "margin_s": summarise(out.margin), "margin_raw_s": _t(margin_raw),
-            "p_fail": round(out.p_fail, 4), "verdict": out.verdict, "not_assessed": na,
+            "not_assessed": na,
         }
         censored = ~np.isfinite(out.aset)
         if censored.any():
@@ -269,12 +297,18 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         undetected = ~np.isfinite(out.components["detection"])
         if undetected.any():
             entry["share_not_detected"] = round(share(undetected), 4)
-        assessed_any = any(locations[prep.ids.index(loc)]["criteria"][cid]["status"] == "assessed"
-                           for loc in route.exposed_at for cid in crit.items)
+        assessed_any = any(c.get("status") == "assessed" for loc in route.exposed_at
+                           for c in locations[prep.ids.index(loc)]["criteria"].values())
         entry["criteria_assessed"] = assessed_any
-        entry["verdict_text"] = _verdict_text(entry, study.max_p_fail, undetected.any())
+        v = decide(out.aset, out.rset, end, study.max_p_fail, assessed=assessed_any, max_samples=s_max)
+        entry.update(v.as_results())
+        entry["p_fail_method"] = CI_METHOD
+        entry["share_undecided"] = round(v.share_unknown, 4)
+        partial = sorted({f"{cid} at {loc}" for loc in route.exposed_at
+                          for cid, c in locations[prep.ids.index(loc)]["criteria"].items() if c.get("partial")})
+        entry["verdict_text"] = _verdict_text(entry, v, partial, undetected.mean() if undetected.size else 0.0)
         if route.along_route:
-            entry["along_route"] = assess.along_route_dose(route, prep, crit, fac, S, out.components,
+            entry["along_route"] = assess.along_route_dose(route, prep, crit, fac, s_used, out.components,
                                                            out.movement)
         sf, si, sa = sweep
         labels = {k: _label(k) for k in si_keys(si)}
@@ -282,6 +316,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
     scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),
+                "ignition_s": data.ignition_s, "clock": data.clock_note or "times count from the histories' first time (0 s), taken as ignition",
                 "locations": locations, "routes": routes}
     cred, cred_plot = credibility(loaded, index, crit)
     if cred is not None:
@@ -295,23 +330,39 @@ def _limit_value(c):
     return round(c.limit, 6)
 
 
-def _verdict_text(entry, max_p_fail, undetected) -> str:
-    if not entry.get("criteria_assessed", True):
-        return ("NOTHING ASSESSED: none of the criteria could be assessed at the locations this route "
-                "passes (their series are missing), so the 'pass' below carries no evidence. "
-                + _verdict_text({**entry, "criteria_assessed": True}, max_p_fail, undetected))
-    words = (f"{'Passes' if entry['verdict'] == 'pass' else 'Fails'}: the probability that the route becomes "
-             f"untenable before its occupants are out is {entry['p_fail']:.1%} "
-             f"(acceptance: at most {max_p_fail:.1%}).")
+def _verdict_text(entry, v, partial: list[str], share_undetected: float) -> str:
+    """The verdict reason plus what the reader must know about the evidence behind it."""
+    words = v.reason
     if entry["not_assessed"]:
         pairs = sorted({f"{x['criterion']} at {x['location']}" for x in entry["not_assessed"]})
         words += " Not assessed (missing series), so not part of this verdict: " + "; ".join(pairs) + "."
-    if entry.get("share_aset_beyond_end"):
-        words += (f" In {entry['share_aset_beyond_end']:.0%} of draws no limit is reached before the histories end;"
-                  " the margin there is at least the time left.")
-    if undetected:
-        words += " In some draws the detector does not respond before the histories end."
+    if partial:
+        words += (" Assessed without a modifying gas that was not supplied (the dose is partial and may be "
+                  "understated): " + "; ".join(partial) + ".")
+    if share_undetected > 0:
+        words += (f" In {share_undetected:.0%} of draws the detector does not respond before the histories end"
+                  " (such draws fail where a limit is reached and are undecided otherwise).")
     return words
+
+
+class _MoreSamples:
+    """The scenario's ASET draws at a larger sample count, computed once per count."""
+
+    def __init__(self, table, prep, crit, seed, index):
+        self.table, self.prep, self.crit, self.seed, self.index = table, prep, crit, seed, index
+        self.cache: dict[int, tuple[dict, np.ndarray]] = {}
+
+    def at(self, S: int):
+        if S not in self.cache:
+            factors = draw_scenario_factors(self.table, self.prep, S, self.seed, self.index) if self.table else {}
+            if factors:
+                res = aset.evaluate(self.prep, self.crit, factors, S, with_bound=False)
+            else:
+                raw = aset.evaluate(self.prep, self.crit, {}, 1, with_bound=False)
+                res = {cid: aset.CriterionResult(np.repeat(r.times, S, axis=1), r.assessed, r.missing, None)
+                       for cid, r in raw.items()}
+            self.cache = {S: (factors, aset.location_aset(res))}    # keep one count: memory
+        return self.cache[S]
 
 
 def _outside_range(table, prep, data, cid, li, raw_t, times, factors) -> str | None:
@@ -568,7 +619,13 @@ def egress_method() -> dict:
 
 def assumptions(loaded: Loaded) -> list[str]:
     out = [
-        "Times are counted from the start of the histories (taken as ignition).",
+        "Times are counted from ignition: the histories' first time unless a scenario states its ignition "
+        "time on the file's clock; detection, alarm and pre-movement count from the same instant.",
+        "Per draw, a route fails when a limit is reached within the histories before its occupants are out, "
+        "passes when they are out within the histories no later than that, and is undecided otherwise; "
+        "p_fail counts undecided draws as failures. A route passes only when the upper end of the 95 % "
+        "interval on p_fail is within the acceptance limit, fails only when the lower end of the interval on "
+        "p_fail without the undecided draws exceeds it, and is indeterminate otherwise.",
         "A limit is first reached at the first crossing, interpolated linearly between the bracketing samples; "
         "doses are integrated with the trapezoidal rule on the histories' own time grid.",
         "A gas series that is not supplied contributes nothing to a dose: its term is zero and any multiplier "

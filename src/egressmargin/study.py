@@ -27,12 +27,16 @@ ELEMENTS = {"corridor": ("length", "width"), "door": ("width",), "stair": ("leng
             "ramp": ("length", "width")}
 ELEMENT_OPTIONAL = {"boundary", "length"}
 TOP_KEYS = {"title", "criteria", "uncertainty", "samples", "seed", "acceptance", "scenarios", "egress", "credibility",
-            "reference", "prepared_by", "prepared_for", "paper"}
-SCENARIO_KEYS = {"id", "title", "histories", "time", "units_row", "locations", "ambient", "resolutions"}
+            "reference", "prepared_by", "prepared_for", "paper", "max_samples"}
+SCENARIO_KEYS = {"id", "title", "histories", "time", "units_row", "locations", "ambient", "resolutions",
+                 "ignition"}
 LOCATION_KEYS = {"id", "title", "temperature_profile", *SERIES_KEYS}
 ROUTE_KEYS = {"id", "title", "scenarios", "occupants", "detection", "alarm", "premovement", "path",
               "exposed_at", "movement", "exposure"}
 DEFAULT_SAMPLES = 2000
+#: Cap on the draws taken to settle a verdict whose interval straddles max_p_fail
+#: (project choice: enough to resolve p_fail = 0.05 to about +/-0.003 at 95 %).
+DEFAULT_MAX_SAMPLES = 16000
 DEFAULT_SEED = 1
 
 
@@ -83,6 +87,7 @@ class ScenarioSpec:
     ambient_o2: float | None = None
     resolutions: list[ResolutionSpec] = field(default_factory=list)
     where: str = ""
+    ignition_s: float | None = None     # ignition on the file's clock; None: its first time
 
 
 @dataclass
@@ -122,6 +127,7 @@ class Study:
     routes: list[RouteSpec]
     uncertainty_path: Path | None = None
     samples: int = DEFAULT_SAMPLES
+    max_samples: int = DEFAULT_MAX_SAMPLES
     seed: int = DEFAULT_SEED
     max_p_fail: float = 0.05
     reference: str = ""
@@ -283,6 +289,10 @@ def check_study(path: str | Path) -> tuple[Study | None, list[ScenarioSpec], lis
 
     samples = _int(ck, data.get("samples", DEFAULT_SAMPLES), ("samples",), low=1, what="a number of Monte Carlo samples")
     seed = _int(ck, data.get("seed", DEFAULT_SEED), ("seed",), low=0, what="a seed (whole number >= 0)")
+    max_samples = _int(ck, data.get("max_samples", max(DEFAULT_MAX_SAMPLES, samples)), ("max_samples",), low=1,
+                       what="the most Monte Carlo samples drawn to settle a verdict")
+    if "max_samples" in data and isinstance(max_samples, int) and max_samples < samples:
+        ck.err(("max_samples",), f"found {max_samples}; expected at least 'samples' ({samples})")
     max_p_fail = 0.05
     if "acceptance" in data:
         acc = data["acceptance"]
@@ -314,7 +324,7 @@ def check_study(path: str | Path) -> tuple[Study | None, list[ScenarioSpec], lis
     if errors or criteria is None:
         return None, scenarios, ck.problems
     return Study(path=path, title=title, criteria=criteria, scenarios=scenarios, routes=routes,
-                 uncertainty_path=unc_path, samples=samples, seed=seed, max_p_fail=max_p_fail,
+                 uncertainty_path=unc_path, samples=samples, max_samples=max_samples, seed=seed, max_p_fail=max_p_fail,
                  reference=ck.text(data.get("reference"), ("reference",)),
                  prepared_by=ck.text(data.get("prepared_by"), ("prepared_by",)),
                  prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),
@@ -409,9 +419,13 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
                 amb_o2 = ck.quantity(sc["ambient"]["o2"], kp + ("ambient", "o2"), "o2")
                 if amb_o2 is not None and not 0 < amb_o2 <= 1:
                     ck.err(kp + ("ambient", "o2"), "expected an oxygen fraction in (0, 100] percent")
+        ignition = None
+        if "ignition" in sc:
+            ignition = ck.quantity(sc["ignition"], kp + ("ignition",), "duration")
         locations = _locations(ck, sc.get("locations"), kp + ("locations",))
         out.append(ScenarioSpec(sid, ck.text(sc.get("title"), kp + ("title",), default=sid), hist, time,
-                                units_row, locations, amb_t, amb_o2, resolutions, ck.doc.where(kp)))
+                                units_row, locations, amb_t, amb_o2, resolutions, ck.doc.where(kp),
+                                ignition_s=ignition))
     return out
 
 

@@ -1,0 +1,165 @@
+"""The three-valued verdict: no false pass when the data, the detector or the statistics run out.
+
+Histories are synthetic ramps written in each test (invented numbers with closed-form
+crossing times, not measurements). The interval on p_fail is checked against
+scipy.stats.binomtest(...).proportion_ci(method="wilson"), an implementation outside
+the project of Wilson (1927).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from egressmargin.verdict import FAIL, PASS, UNKNOWN, decide, draw_outcomes, needs_more_samples, wilson_interval
+from engine_helpers import results_for, write_study
+
+
+def _route(**kw):
+    r = {"id": "r", "occupants": 10, "detection": "10 s", "alarm": "5 s", "premovement": "10 s",
+         "path": [{"door": {"width": "1 m"}}], "exposed_at": ["a"]}
+    r.update(kw)
+    return r
+
+
+def test_draw_outcomes_follow_the_contract():
+    end = 300.0
+    aset = np.array([100.0, np.inf, np.inf, 100.0, 200.0, np.inf, 250.0])
+    rset = np.array([150.0, 250.0, 400.0, np.inf, 200.0, np.inf, 350.0])
+    assert draw_outcomes(aset, rset, end).tolist() == [FAIL, PASS, UNKNOWN, FAIL, PASS, UNKNOWN, FAIL]
+
+
+@pytest.mark.parametrize("k,n", [(0, 2000), (96, 2000), (100, 2000), (2000, 2000), (7, 50)])
+def test_wilson_interval_matches_scipy(k, n):
+    ref = stats.binomtest(k, n).proportion_ci(confidence_level=0.95, method="wilson")
+    lo, hi = wilson_interval(k, n)
+    assert lo == pytest.approx(ref.low, abs=1e-9) and hi == pytest.approx(ref.high, abs=1e-9)
+
+
+def test_histories_ending_before_rset_are_not_a_pass(tmp_path):
+    """Issue case: T = 20 + 0.1 t degC to 300 s (60 degC only at 400 s), premovement 400 s."""
+    t = np.arange(0.0, 301.0, 10.0)
+    path = write_study(tmp_path, t, {"T": ("degC", 20 + 0.1 * t)}, [{"id": "a", "temperature": "T"}],
+                       routes=[_route(premovement="400 s")], criteria={"base": "general-2m", "only": ["temperature"]})
+    res, _ = results_for(path)
+    r = res["scenarios"][0]["routes"][0]
+    assert r["verdict"] == "indeterminate"
+    assert r["p_fail"] == 1.0 and r["p_fail_bounds"] == {"low": 0.0, "high": 1.0}
+    assert "histories end at 300 s" in r["verdict_reason"]
+
+
+def test_lognormal_premovement_past_the_data_is_counted_against_the_route(tmp_path):
+    t = np.arange(0.0, 301.0, 10.0)
+    path = write_study(tmp_path, t, {"T": ("degC", 20 + 0.1 * t)}, [{"id": "a", "temperature": "T"}],
+                       routes=[_route(premovement={"lognormal": {"median": "200 s", "p95": "400 s"}})],
+                       criteria={"base": "general-2m", "only": ["temperature"]})
+    r = results_for(path)[0]["scenarios"][0]["routes"][0]
+    assert r["p_fail_bounds"]["low"] == 0.0 and r["p_fail"] > 0.05
+    assert r["verdict"] == "indeterminate"
+
+
+def test_detector_that_never_responds_is_not_a_pass(tmp_path):
+    t = np.arange(0.0, 301.0, 10.0)
+    cols = {"T": ("degC", 20 + 0.01 * t), "K": ("1/m", 0.0 * t)}
+    locs = [{"id": "a", "temperature": "T", "extinction": "K"}]
+    rule = {"smoke": {"location": "a", "extinction": "0.1 1/m"}}
+    path = write_study(tmp_path, t, cols, locs, routes=[_route(detection=rule)])
+    r = results_for(path)[0]["scenarios"][0]["routes"][0]
+    assert r["share_not_detected"] == 1.0
+    assert r["verdict"] == "indeterminate" and r["p_fail"] == 1.0
+    assert "not detected" in r["verdict_reason"] and "detector does not respond" in r["verdict_text"]
+
+
+def test_detector_that_never_responds_fails_where_a_limit_is_reached(tmp_path):
+    t = np.arange(0.0, 301.0, 10.0)
+    cols = {"T": ("degC", 20 + 0.5 * t), "K": ("1/m", 0.0 * t)}     # 60 degC at 80 s
+    locs = [{"id": "a", "temperature": "T", "extinction": "K"}]
+    rule = {"smoke": {"location": "a", "extinction": "0.1 1/m"}}
+    path = write_study(tmp_path, t, cols, locs, routes=[_route(detection=rule)])
+    r = results_for(path)[0]["scenarios"][0]["routes"][0]
+    assert r["verdict"] == "fail" and r["p_fail_bounds"]["low"] == 1.0
+
+
+@pytest.mark.parametrize("offset", [0.0, 1000.0])
+def test_time_column_on_another_clock_gives_the_same_verdict(tmp_path, offset):
+    """A file whose clock starts at 1000 s: times count from its first time (ignition)."""
+    t = np.arange(0.0, 601.0, 10.0)
+    path = write_study(tmp_path, t + offset, {"T": ("degC", 20 + 0.5 * t)}, [{"id": "a", "temperature": "T"}],
+                       routes=[_route(premovement="100 s")], criteria={"base": "general-2m", "only": ["temperature"]})
+    res = results_for(path)[0]
+    sc = res["scenarios"][0]
+    r = sc["routes"][0]
+    assert sc["end_s"] == 600.0 and sc["ignition_s"] == offset
+    assert r["aset_raw_s"] == pytest.approx(80.0) and r["verdict"] == "fail"
+
+
+def test_ignition_key_aligns_the_clock(tmp_path):
+    """ignition: 100 s on a file starting at 0 s: the limit at file time 180 s is at 80 s from ignition."""
+    import yaml
+
+    t = np.arange(0.0, 601.0, 10.0)
+    path = write_study(tmp_path, t, {"T": ("degC", 20 + np.maximum(t - 100.0, 0) * 0.5)},
+                       [{"id": "a", "temperature": "T"}], criteria={"base": "general-2m", "only": ["temperature"]})
+    doc = yaml.safe_load(path.read_text())
+    doc["scenarios"][0]["ignition"] = "105 s"       # between rows: a row is interpolated
+    path.write_text(yaml.safe_dump(doc))
+    sc = results_for(path)[0]["scenarios"][0]
+    loc = sc["locations"][0]
+    assert loc["criteria"]["temperature"]["raw_s"] == pytest.approx(75.0)
+    assert sc["end_s"] == pytest.approx(495.0) and "105 s" in sc["clock"]
+
+
+def test_ignition_outside_the_data_is_an_input_error(tmp_path, capsys):
+    import yaml
+
+    from egressmargin.cli import main
+
+    t = np.arange(0.0, 61.0, 10.0)
+    path = write_study(tmp_path, t, {"T": ("degC", 20 + t)}, [{"id": "a", "temperature": "T"}])
+    doc = yaml.safe_load(path.read_text())
+    doc["scenarios"][0]["ignition"] = "90 s"
+    path.write_text(yaml.safe_dump(doc))
+    assert main(["validate", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "ignition" in err and "outside the histories" in err
+
+
+def test_sampling_error_is_reported_and_more_draws_settle_it():
+    """p_fail near the limit: the Wilson interval straddles it, so more draws are asked for."""
+    rng = np.random.default_rng(0)
+    n = 2000
+    aset = np.full(n, 200.0)
+    rset = np.where(rng.random(n) < 0.048, 250.0, 150.0)
+    assert needs_more_samples(aset, rset, 600.0, 0.05)
+    v = decide(aset, rset, 600.0, 0.05, max_samples=n)
+    assert v.verdict == "indeterminate" and "raise max_samples" in v.reason
+    ref = stats.binomtest(int((rset > aset).sum()), n).proportion_ci(method="wilson")
+    assert v.ci95 == pytest.approx((ref.low, ref.high))
+
+
+def test_pipeline_draws_more_samples_where_the_interval_straddles(tmp_path):
+    """A route near the acceptance limit uses more draws than 'samples' (up to max_samples)."""
+    import yaml
+
+    t = np.arange(0.0, 601.0, 10.0)
+    # ASET 200 s (60 degC); RSET = 10 + 5 + premovement + movement: premovement uniform so that
+    # P(RSET > 200 s) = P(pre > 174 s) = 3.9/77.9 = 5.0 % (door: 10 people / 0.91 p/s = 11 s).
+    path = write_study(tmp_path, t, {"T": ("degC", 20 + 0.2 * t)}, [{"id": "a", "temperature": "T"}],
+                       routes=[_route(premovement={"uniform": {"low": "100 s", "high": "177.9 s"}})],
+                       criteria={"base": "general-2m", "only": ["temperature"]}, samples=500)
+    doc = yaml.safe_load(path.read_text())
+    doc["max_samples"] = 4000
+    path.write_text(yaml.safe_dump(doc))
+    r = results_for(path)[0]["scenarios"][0]["routes"][0]
+    assert r["samples_used"] > 500
+    lo, hi = r["p_fail_ci95"]
+    assert lo <= r["p_fail"] <= hi
+
+
+def test_fixed_inputs_give_a_point_interval(tmp_path):
+    t = np.arange(0.0, 601.0, 10.0)
+    path = write_study(tmp_path, t, {"T": ("degC", 20 + 0.1 * t)}, [{"id": "a", "temperature": "T"}],
+                       routes=[_route()], criteria={"base": "general-2m", "only": ["temperature"]})
+    r = results_for(path)[0]["scenarios"][0]["routes"][0]
+    assert r["verdict"] == "pass" and r["p_fail_ci95"] == [0.0, 0.0] and r["samples_used"] == 400
