@@ -362,18 +362,13 @@ def test_templates_dir_finds_the_templates():
     assert (d / "report.html.j2").is_file() and (d / "report.css").is_file()
 
 
-def test_twenty_locations_render_quickly():
-    """A 20-location scenario must render in well under a minute (brief); the HTML
-    with all its figures is checked here, the PDF adds about as much again."""
-    import time
-
+def test_twenty_locations_render():
+    """A 20-location scenario renders one figure per location and two per route (the
+    timing lives in the benchmark, not in the tests: issue 13 item 9)."""
     results, plotdata = make_fixture(n_locations=20, samples=500, credibility=False)
     results["scenarios"] = results["scenarios"][:1]
-    t0 = time.perf_counter()
     html = render_html(results, plotdata)
-    elapsed = time.perf_counter() - t0
     assert html.count("<svg ") == 20 + 2 * 2  # locations + timeline/histogram per route
-    assert elapsed < 30.0, elapsed
 
 
 def test_report_paths_returned(tmp_path, fixture_data):

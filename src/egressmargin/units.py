@@ -7,6 +7,7 @@ in the internal units listed in :data:`INTERNAL_UNITS`.
 from __future__ import annotations
 
 import functools
+import math
 import re
 
 import numpy as np
@@ -57,9 +58,42 @@ EXAMPLES: dict[str, str] = {
     "mass_extinction": "m^2/kg",
 }
 
-_ALIASES = {"%": "percent", "%vol": "percent", "vol%": "percent", "ppmv": "ppm", "c": "degC", "°c": "degC",
-            "degc": "degC", "deg c": "degC", "°f": "degF", "degf": "degF", "-": "dimensionless",
-            "": "dimensionless", "mol/mol": "dimensionless", "ppm": "ppm"}
+#: Unit spellings common in CSV exports and hand-written studies, mapped explicitly to
+#: the pint spelling they stand for (looked up case-insensitively after trimming). Every
+#: other unit string is read by pint as written. Listed in the README ("Units").
+#: Note that pint alone would read ``C`` as the coulomb and ``%`` not at all; the
+#: volume-percent spellings are volume fractions (contract, "Units").
+UNIT_ALIASES: dict[str, str] = {
+    # volume (mole) fractions
+    "%": "percent", "% vol": "percent", "%vol": "percent", "vol%": "percent", "vol %": "percent",
+    "vol-%": "percent", "percent vol": "percent",
+    "ppmv": "ppm", "ppm(v)": "ppm", "ppm vol": "ppm", "ppbv": "ppb", "ppb(v)": "ppb",
+    "mol/mol": "dimensionless", "mol mol-1": "dimensionless", "-": "dimensionless",
+    # temperature
+    "c": "degC", "°c": "degC", "degc": "degC", "deg c": "degC", "deg. c": "degC", "celsius": "degC",
+    "f": "degF", "°f": "degF", "degf": "degF", "deg f": "degF",
+    # heat flux
+    "kw/m2": "kW/m^2", "kw/m²": "kW/m^2", "kw m-2": "kW/m^2", "kw.m-2": "kW/m^2", "kw*m-2": "kW/m^2",
+    "w/m2": "W/m^2", "w/m²": "W/m^2", "w m-2": "W/m^2", "w.m-2": "W/m^2",
+    # extinction and optical density, obscuration
+    "m-1": "1/m", "m^-1": "1/m", "/m": "1/m", "1/m": "1/m", "ft-1": "1/ft", "/ft": "1/ft",
+    "%/m": "percent/m", "%/ft": "percent/ft",
+    # soot mass concentration
+    "mg/m3": "mg/m^3", "mg/m³": "mg/m^3", "mg m-3": "mg/m^3", "g/m3": "g/m^3", "g m-3": "g/m^3",
+    "kg/m3": "kg/m^3", "kg m-3": "kg/m^3",
+    # velocity, time
+    "m s-1": "m/s", "m/sec": "m/s", "sec": "s", "secs": "s",
+}
+
+#: Series keys that are gas concentrations: read only as volume (mole) fractions (contract,
+#: "Units"; the irritants are listed in "Added in turn 2").
+GAS_KEYS = ("co", "co2", "o2", "hcn", "hcl", "hbr", "hf", "so2", "no2", "acrolein", "formaldehyde")
+
+#: The units (after :data:`UNIT_ALIASES`) a gas series may be given in. pint would also
+#: take any other dimensionless unit (``kg/kg``, ``mg/kg``, ``turn``, ``radian``,
+#: ``count``, ``ppm*ppm``); none of them is a volume fraction, so each is refused.
+VOLUME_FRACTION_UNITS = ("ppm", "ppb", "percent", "dimensionless")
+_VOLUME_FRACTION_TEXT = "ppm, ppmv, ppb, percent, %, vol%, mol/mol or '-'"
 
 
 @functools.lru_cache(maxsize=1)
@@ -68,12 +102,13 @@ def registry():
     import pint
 
     ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+    ureg.define("parts_per_billion = 1e-9 = ppb")   # pint defines ppm (1e-6) but not ppb
     return ureg
 
 
 def _clean(unit: str) -> str:
     text = str(unit).strip()
-    return _ALIASES.get(text.lower(), text)
+    return UNIT_ALIASES.get(text.lower(), text)
 
 
 class UnitProblem(ValueError):
@@ -84,6 +119,8 @@ class UnitProblem(ValueError):
 def _factor_offset(unit: str, target: str) -> tuple[float, float]:
     """Return (a, b) so that value_in_target = a * value_in_unit + b."""
     ureg = registry()
+    if not str(unit).strip():
+        raise UnitProblem("found an empty unit")
     try:
         src = ureg.Unit(_clean(unit)) if _clean(unit) != "dimensionless" else ureg.dimensionless
     except Exception as exc:  # pint raises several types for unparsable strings
@@ -100,12 +137,37 @@ def _factor_offset(unit: str, target: str) -> tuple[float, float]:
 
 
 def check_unit(unit: str, quantity: str) -> str | None:
-    """Return None if ``unit`` converts to the internal unit of ``quantity``, else a message."""
+    """Return None if ``unit`` converts to the internal unit of ``quantity``, else a message.
+
+    A gas (:data:`GAS_KEYS`) accepts only :data:`VOLUME_FRACTION_UNITS`.
+
+    Examples
+    --------
+    >>> check_unit("kW/m2", "heat_flux") is None
+    True
+    >>> check_unit("mg/kg", "co")
+    "found 'mg/kg', which is not a volume fraction; expected ppm, ppmv, ppb, percent, %, vol%, mol/mol or '-'"
+    """
     try:
         _factor_offset(unit, INTERNAL_UNITS[quantity])
     except UnitProblem as exc:
         return f"{exc}; expected a unit of {quantity.replace('_', ' ')} such as {EXAMPLES[quantity]}"
+    if quantity in GAS_KEYS and _clean(unit) not in VOLUME_FRACTION_UNITS:
+        return f"found '{unit}', which is not a volume fraction; expected {_VOLUME_FRACTION_TEXT}"
     return None
+
+
+def same_unit(a: str, b: str, quantity: str) -> bool:
+    """True when units ``a`` and ``b`` convert ``quantity`` identically (``ppmv`` and ``ppm``, ``C``
+    and ``degC``); both must be valid units of ``quantity``.
+
+    Examples
+    --------
+    >>> same_unit("C", "degC", "temperature"), same_unit("percent", "ppm", "co")
+    (True, False)
+    """
+    fa, fb = _factor_offset(a, INTERNAL_UNITS[quantity]), _factor_offset(b, INTERNAL_UNITS[quantity])
+    return all(math.isclose(x, y, rel_tol=1e-9, abs_tol=1e-12) for x, y in zip(fa, fb))
 
 
 def to_internal(values, unit: str, quantity: str) -> np.ndarray:
@@ -155,6 +217,8 @@ def parse_quantity(text, quantity: str, default_unit: str | None = None) -> floa
             raise UnitProblem(
                 f"found the bare number {text!r}; expected a number with a unit, e.g. '{text} "
                 f"{EXAMPLES[quantity].split()[0].rstrip(',')}'")
+        if not math.isfinite(float(text)):
+            raise UnitProblem(f"found {text!r}, which is not a finite number; expected a finite number")
         return float(to_internal(float(text), default_unit, quantity))
     if not isinstance(text, str):
         raise UnitProblem(f"found {type(text).__name__} {text!r}; expected a number with a unit "
@@ -163,6 +227,9 @@ def parse_quantity(text, quantity: str, default_unit: str | None = None) -> floa
     if not m:
         raise UnitProblem(f"found '{text}'; expected a number followed by a unit ({EXAMPLES[quantity]})")
     number, unit = float(m.group(1)), m.group(2)
+    if not math.isfinite(number):
+        raise UnitProblem(f"found '{text}', which is not a finite number; expected a finite number with a "
+                          f"unit ({EXAMPLES[quantity]})")
     if not unit:
         if default_unit is None:
             raise UnitProblem(f"found '{text}' without a unit; expected e.g. '{text} "

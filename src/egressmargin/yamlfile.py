@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -57,8 +58,15 @@ class _Bad(Exception):
         self.line, self.message = line, message
 
 
-def _build(node, key_path, lines, ancestors=(), count=None):
+def _build(node, key_path, lines, ancestors=(), count=None, found=None):
+    """Plain Python objects from ``node``; record key lines in ``lines``.
+
+    Structural problems raise :class:`_Bad`; ambiguous or unusable values (a key given
+    twice, a non-finite number) are appended to ``found`` as (line, key path, message) so
+    that every one of them is reported at once.
+    """
     count = count if count is not None else [0]
+    found = found if found is not None else []
     count[0] += 1
     line = node.start_mark.line + 1
     if count[0] > MAX_NODES:
@@ -74,13 +82,23 @@ def _build(node, key_path, lines, ancestors=(), count=None):
                 raise _Bad(knode.start_mark.line + 1, "a list or mapping is used as a key; expected a plain key")
             key = _construct_scalar(knode)
             kp = key_path + (key,)
-            lines[kp] = knode.start_mark.line + 1
-            out[key] = _build(vnode, kp, lines, inner, count)
+            key_line = knode.start_mark.line + 1
+            if key in out:
+                # PyYAML would keep the last of two equal keys; an input must never mean two things.
+                found.append((key_line, kp, f"found the key '{key}' twice (lines {lines[kp]} and {key_line}); "
+                              "expected each key once: remove one"))
+                continue
+            lines[kp] = key_line
+            out[key] = _build(vnode, kp, lines, inner, count, found)
         return out
     if isinstance(node, yaml.SequenceNode):
         inner = ancestors + (id(node),)
-        return [_build(v, key_path + (i,), lines, inner, count) for i, v in enumerate(node.value)]
-    return _construct_scalar(node)
+        return [_build(v, key_path + (i,), lines, inner, count, found) for i, v in enumerate(node.value)]
+    value = _construct_scalar(node)
+    if isinstance(value, float) and not math.isfinite(value):
+        found.append((line, key_path, f"found {node.value!r}, which is not a finite number; expected a "
+                      "finite number"))
+    return value
 
 
 def _construct_scalar(node):
@@ -115,10 +133,14 @@ def load_located_text(text: str, path: Path) -> Located:
     if node is None:
         return Located({}, {(): 1}, path)
     lines: dict = {}
+    found: list = []
     try:
-        data = _build(node, (), lines)
+        data = _build(node, (), lines, found=found)
     except _Bad as exc:
         raise InputError([Problem(f"{path}:{exc.line}", exc.message)]) from None
     except yaml.YAMLError as exc:
         raise InputError([Problem(str(path), f"YAML error: {exc}")]) from None
+    if found:
+        raise InputError([Problem(f"{path}:{line} {format_key_path(kp)}".rstrip(), message)
+                          for line, kp, message in found])
     return Located(data, lines, path)
