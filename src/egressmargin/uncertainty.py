@@ -140,7 +140,8 @@ def load_table(path: Path) -> UncertaintyTable:
             v = spec[key]
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or \
                     (v <= low if strict else v < low):
-                problems.append(Problem(doc.where(kp + (key,)), f"found {v!r}; expected a finite number "
+                finite = "finite " if _is_non_finite(v) else ""
+                problems.append(Problem(doc.where(kp + (key,)), f"found {v!r}; expected a {finite}number "
                                         f"{'above' if strict else 'of at least'} {low:g}"))
                 continue
             vals[key] = float(v)
@@ -197,6 +198,11 @@ def _basis_mismatch(q: str, basis: str) -> str:
            "as-given": "refit on the values as given"}[want]
     return (f"basis '{basis}': the statistics were fitted on the {_BASIS_WORDS[basis]}, but the run applies the "
             f"{q} row to the {_BASIS_WORDS[want]}, so it would correct the wrong quantity; {fix}")
+
+
+def _is_non_finite(v) -> bool:
+    """True for a float that is NaN or infinite (so a message can say "finite")."""
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and not math.isfinite(v)
 
 
 def _range_value(v, unit, q):
