@@ -270,3 +270,60 @@ def test_flag_change():
     assert flag_change(0.06, threshold=0.05) is True
     assert flag_change(None) is True
     assert flag_change(float("nan")) is True
+
+
+# --- results.json entries (pipeline._gci_entry): what is reported and what is flagged ---
+
+def test_results_entry_reports_celik_quantities():
+    """Celik et al. (2008) Table 1, first column, as a results.json entry: r21 = 1.5,
+    r32 = sqrt(8000/4500), p = 1.53, phi_ext21 = 6.1685, e_a21 = 1.5 %, e_ext21 = 1.7 %,
+    GCI_fine21 = 2.2 % (printed values; tolerance half a unit in the last digit)."""
+    from egressmargin.pipeline import _gci_entry
+
+    e = _gci_entry(CELIK_COL1_CELLS, CELIK_COL1_VALUES, CHANGE_THRESHOLD)
+    assert e["r21"] == pytest.approx(1.5, abs=5e-4)
+    assert e["r32"] == pytest.approx(math.sqrt(8000 / 4500), abs=1e-4)
+    assert e["order"] == pytest.approx(1.53, abs=0.005)
+    assert e["extrapolated_s"] == pytest.approx(6.1685, abs=5e-5)
+    assert e["e_a21"] == pytest.approx(0.015, abs=5e-4)
+    assert e["e_ext21"] == pytest.approx(0.017, abs=5e-4)
+    assert e["gci_fine21"] == pytest.approx(0.022, abs=5e-4)
+    assert e["gci"] == pytest.approx(0.022, abs=5e-4)         # the older key, kept
+    assert e["convergence"] == "monotone" and e["flagged"] is False and e["flag_reason"] is None
+
+
+def test_divergent_triple_is_flagged_though_the_change_is_small():
+    """320 / 330 / 335 s fine to coarse on a constant ratio 1.5: eps21 = 10, eps32 = 5,
+    R = 2 > 1, divergence (Stern et al. 2001). The two finest differ by only 3.1 %, below
+    the 10 % threshold, yet the triple must be flagged."""
+    from egressmargin.pipeline import _gci_entry
+
+    e = _gci_entry([0.1, 0.15, 0.225], [320.0, 330.0, 335.0], 0.10)
+    assert e["convergence"] == "divergent"
+    assert e["convergence_ratio"] == pytest.approx(2.0)
+    assert e["relative_change"] == pytest.approx(10 / 320, abs=1e-4)
+    assert e["flagged"] is True and "divergent" in e["flag_reason"]
+    assert e["order"] is None and e["gci_fine21"] is None and e["extrapolated_s"] is None
+
+
+def test_oscillatory_triple_is_flagged_with_its_bounds():
+    """300 / 290 / 305 s fine to coarse: eps21 = -10, eps32 = 15, R < 0, oscillatory
+    (Celik et al. 2008: eps32/eps21 < 0); the value is bounded by 290 and 305 s."""
+    from egressmargin.pipeline import _gci_entry
+
+    e = _gci_entry([0.1, 0.15, 0.225], [300.0, 290.0, 305.0], 0.10)
+    assert e["convergence"] == "oscillatory" and e["flagged"] is True
+    assert e["oscillation_bounds_s"] == {"low": 290.0, "high": 305.0}
+    assert "290" in e["flag_reason"] and "305" in e["flag_reason"]
+
+
+def test_limit_reached_on_no_grid_is_not_flagged():
+    # Nothing to be grid sensitive about (issue: rows FLAGGED for criteria never reached).
+    from egressmargin.pipeline import _gci_entry
+
+    e = _gci_entry([0.1, 0.15, 0.225], [None, None, None], 0.10)
+    assert e["flagged"] is False and e["reached_on_any_grid"] is False
+    assert e["convergence"] == "not reached"
+    # reached on some grids only: the result depends on the grid, flagged
+    e = _gci_entry([0.1, 0.15, 0.225], [None, 310.0, 320.0], 0.10)
+    assert e["flagged"] is True and "some grids" in e["flag_reason"]

@@ -490,12 +490,37 @@ def credibility(loaded: Loaded, index: int, crit):
 
 
 def _gci_entry(cells, vals, threshold) -> dict:
+    """One results.json grid-sensitivity entry (Celik et al. 2008, Steps 1-5) and whether to flag it.
+
+    Flagged: a divergent or oscillatory triple (whatever the size of the change), a limit reached
+    on some grids but not on others, or a change between the two finest grids above ``threshold``.
+    A limit reached on no grid is not flagged: there is no time to be grid sensitive.
+    """
     g = grid_convergence(cells, vals)
     rc = g.get("relative_change")
+    reached_any = any(v is not None for v in g["values"])
+    reasons = []
+    if g["convergence"] == "divergent":
+        reasons.append("divergent: the change does not shrink as the grid is refined")
+    elif g["convergence"] == "oscillatory":
+        lo, hi = g["oscillation_range"]
+        reasons.append(f"oscillatory: the value lies between {lo:.4g} s and {hi:.4g} s on these grids")
+    elif g["convergence"] == "incomplete" and reached_any:
+        reasons.append("the limit is reached on some grids but not on others")
+    if rc is not None and flag_change(rc, threshold):
+        reasons.append(f"the two finest grids differ by {rc:.1%}, above {threshold:.0%}")
+    osc = g.get("oscillation_range")
     return {"cells_m": g.get("h"), "values_s": g.get("values"),
-            "relative_change": None if rc is None else round(rc, 4), "flagged": bool(flag_change(rc, threshold)),
-            "convergence": g.get("convergence"), "order": _r(g.get("p")),
-            "extrapolated_s": _r(g.get("phi_ext21")), "gci": _r(g.get("gci_fine21")), "note": g.get("note")}
+            "relative_change": None if rc is None else round(rc, 4), "flagged": bool(reasons),
+            "flag_reason": "; ".join(reasons) or None, "reached_on_any_grid": reached_any,
+            "convergence": g.get("convergence") if reached_any else "not reached",
+            "convergence_ratio": _r(g.get("convergence_ratio")),
+            "r21": _r(g.get("r21")), "r32": _r(g.get("r32")), "order": _r(g.get("p")),
+            "extrapolated_s": _r(g.get("phi_ext21")), "e_a21": _r(g.get("e_a21"), 6),
+            "e_ext21": _r(g.get("e_ext21"), 6), "gci": _r(g.get("gci_fine21")),
+            "gci_fine21": _r(g.get("gci_fine21"), 6),
+            "oscillation_bounds_s": None if osc is None else {"low": osc[0], "high": osc[1]},
+            "note": g.get("note") if reached_any else "The limit is reached on none of the grids."}
 
 
 def _r(x, n=4):

@@ -18,6 +18,7 @@ scenario (a systematic model error); quantities are independent.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -31,6 +32,20 @@ from .yamlfile import load_located
 QUANTITY_KEYS = SERIES_KEYS
 DISTRIBUTIONS = ("lognormal", "normal")
 
+#: What a table row's statistics were fitted on: ``rise`` above ambient, ``depletion``
+#: below ambient, or the quantity ``as-given``.
+BASES = ("rise", "depletion", "as-given")
+
+#: The basis on which the run applies each quantity's row (the contract: temperature as
+#: the rise above ambient, O2 as the depletion below ambient, the others as given).
+#: A table that states another basis for a row is refused.
+APPLIED_BASIS = {"temperature": "rise", "o2": "depletion"}
+
+
+def applied_basis(quantity: str) -> str:
+    """The basis on which the run applies the row of ``quantity`` (see :data:`APPLIED_BASIS`)."""
+    return APPLIED_BASIS.get(quantity, "as-given")
+
 
 @dataclass(frozen=True)
 class QuantityStats:
@@ -41,6 +56,7 @@ class QuantityStats:
     range_max: float | None = None
     range_text: str = ""
     n_pairs: int | None = None
+    basis: str | None = None         # as the table states it; None when the table does not say
 
 
 @dataclass
@@ -50,6 +66,7 @@ class UncertaintyTable:
     quantities: dict[str, QuantityStats]
     path: Path | None = None
     parameters: dict = field(default_factory=dict)
+    warnings: list[Problem] = field(default_factory=list)   # for results.json ``warnings``
 
     def as_results(self) -> dict:
         q = {}
@@ -57,15 +74,26 @@ class UncertaintyTable:
             e = {"bias": s.bias, "sigma_model": s.sigma_model, "sigma_exp": s.sigma_exp}
             if s.range_text:
                 e["range"] = s.range_text
+            e["basis"] = s.basis or applied_basis(k)
             q[k] = e
         return {"source": self.source, "distribution": self.distribution, "path": str(self.path or ""),
                 "quantities": q, "parameters": self.parameters}
 
 
 def load_table(path: Path) -> UncertaintyTable:
-    """Read and check a model-uncertainty file; raise InputError with every problem."""
+    """Read and check a model-uncertainty file; raise InputError with every problem.
+
+    Besides the contract's keys, a row may state ``basis`` (one of :data:`BASES`): the
+    form of the quantity its statistics were fitted on. A row whose basis differs from
+    the one the run applies it on (:func:`applied_basis`) is an input error; a
+    temperature or O2 row that does not state its basis is read with the contract's
+    convention and a warning (``UncertaintyTable.warnings``). Non-finite numbers
+    (``.nan``, ``.inf``) in ``bias``, ``sigma_model``, ``sigma_exp`` and ``range`` are
+    input errors.
+    """
     doc = load_located(path)
     problems: list[Problem] = []
+    unstated: list[str] = []
     data = doc.data
     allowed = {"source", "distribution", "quantities", "fitted", "parameters"}
     if not isinstance(data, dict):
@@ -96,7 +124,7 @@ def load_table(path: Path) -> UncertaintyTable:
         if not isinstance(spec, dict):
             problems.append(Problem(doc.where(kp), f"found {spec!r}; expected {{bias, sigma_model, sigma_exp}}"))
             continue
-        ok_keys = {"bias", "sigma_model", "sigma_exp", "range", "n_pairs"}
+        ok_keys = {"bias", "sigma_model", "sigma_exp", "range", "n_pairs", "basis"}
         for key in spec:
             if key not in ok_keys:
                 problems.append(Problem(doc.where(kp + (key,)), f"unknown key '{key}'; expected one of "
@@ -110,8 +138,10 @@ def load_table(path: Path) -> UncertaintyTable:
                 problems.append(Problem(doc.where(kp), f"missing '{key}' for {q}"))
                 continue
             v = spec[key]
-            if isinstance(v, bool) or not isinstance(v, (int, float)) or (v <= low if strict else v < low):
-                problems.append(Problem(doc.where(kp + (key,)), f"found {v!r}; expected a number "
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or \
+                    (v <= low if strict else v < low):
+                finite = "finite " if _is_non_finite(v) else ""
+                problems.append(Problem(doc.where(kp + (key,)), f"found {v!r}; expected a {finite}number "
                                         f"{'above' if strict else 'of at least'} {low:g}"))
                 continue
             vals[key] = float(v)
@@ -126,19 +156,53 @@ def load_table(path: Path) -> UncertaintyTable:
                 try:
                     rmin = _range_value(r["min"], unit, q)
                     rmax = _range_value(r["max"], unit, q)
+                    if not (math.isfinite(rmin) and math.isfinite(rmax)):
+                        raise UnitProblem(f"found min {r['min']!r}, max {r['max']!r}; expected finite numbers")
                     if rmax < rmin:
                         raise UnitProblem("max is below min; expected min <= max")
                     rtext = f"{r['min']} to {r['max']}{' ' + unit if unit else ''}"
                 except UnitProblem as exc:
                     problems.append(Problem(doc.where(kp + ("range",)), str(exc)))
                     rmin = rmax = None
+        basis = spec.get("basis")
+        if basis is None:
+            if q in APPLIED_BASIS:
+                unstated.append(q)
+        elif basis not in BASES:
+            problems.append(Problem(doc.where(kp + ("basis",)), f"found {basis!r}; expected one of "
+                                    f"{', '.join(BASES)}{did_you_mean(str(basis), BASES)}"))
+        elif basis != applied_basis(q):
+            problems.append(Problem(doc.where(kp + ("basis",)), _basis_mismatch(q, basis)))
         if len(vals) == 3:
             quantities[q] = QuantityStats(vals["bias"], vals["sigma_model"], vals["sigma_exp"], rmin, rmax, rtext,
-                                          spec.get("n_pairs"))
+                                          spec.get("n_pairs"), basis)
     if problems:
         raise InputError(problems)
     params = data.get("parameters") or {}
-    return UncertaintyTable(source.strip(), dist, quantities, Path(path), params if isinstance(params, dict) else {})
+    warnings = [Problem(doc.where(("quantities", q)), f"no 'basis' stated for {q}: read as fitted on the "
+                        f"{_BASIS_WORDS[applied_basis(q)]}, as the run applies it; add 'basis: "
+                        f"{applied_basis(q)}' to say so (egressmargin fit-uncertainty writes it)", warning=True)
+                for q in unstated]
+    return UncertaintyTable(source.strip(), dist, quantities, Path(path), params if isinstance(params, dict) else {},
+                            warnings)
+
+
+_BASIS_WORDS = {"rise": "rise above ambient", "depletion": "depletion below ambient",
+                "as-given": "quantity as given"}
+
+
+def _basis_mismatch(q: str, basis: str) -> str:
+    want = applied_basis(q)
+    fix = {"rise": "refit with an 'ambient' column in the pairs file, so that the pairs become rises",
+           "depletion": "refit with an 'ambient' column in the pairs file, so that the pairs become depletions",
+           "as-given": "refit on the values as given"}[want]
+    return (f"basis '{basis}': the statistics were fitted on the {_BASIS_WORDS[basis]}, but the run applies the "
+            f"{q} row to the {_BASIS_WORDS[want]}, so it would correct the wrong quantity; {fix}")
+
+
+def _is_non_finite(v) -> bool:
+    """True for a float that is NaN or infinite (so a message can say "finite")."""
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and not math.isfinite(v)
 
 
 def _range_value(v, unit, q):
