@@ -62,6 +62,9 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--uncertainty", type=Path, help="use this model-uncertainty file instead of the study's")
     r.add_argument("--raw-only", action="store_true",
                    help="ignore any model-uncertainty file: assess the uncorrected predictions only")
+    r.add_argument("--criteria", metavar="NAME|FILE",
+                   help="use this criteria set (a bundled name or a criteria file, relative to the current "
+                        "folder) instead of the study's; recorded in results.json")
     d = sub.add_parser("demo", help="run the bundled demo study (an invented building, illustrative data)")
     d.add_argument("--out", type=Path, default=Path("egressmargin-demo"))
     d.add_argument("--samples", type=_positive_int)
@@ -104,7 +107,8 @@ def _progress(quiet: bool):
 def _run(args) -> int:
     from .pipeline import RunOptions, run
     opts = RunOptions(out=args.out, samples=args.samples, seed=args.seed, pdf=not args.no_pdf,
-                      html=not args.no_pdf or args.html, workers=args.jobs, uncertainty=args.uncertainty, raw_only=args.raw_only, progress=_progress(args.quiet))
+                      html=not args.no_pdf or args.html, workers=args.jobs, uncertainty=args.uncertainty, raw_only=args.raw_only, progress=_progress(args.quiet),
+                      criteria=args.criteria)
     out = run(args.study, opts)
     _summary(out)
     return 0

@@ -62,6 +62,7 @@ class CriteriaSet:
     sources: list[str]
     items: dict[str, Criterion]
     path: Path | None = None
+    override: dict | None = None     # set by ``run --criteria``: what was given, what it replaced
 
     def as_results(self) -> dict:
         """The set as applied: limits as numbers in their display unit, with the text as written."""
@@ -70,9 +71,12 @@ class CriteriaSet:
             entry = {"limit": round(c.limit, 6), "unit": c.unit, "limit_text": c.limit_text, "source": c.source}
             entry.update({k: _plain(v) for k, v in c.params.items()})
             applied[cid] = entry
-        return {"name": self.name, "description": self.description, "sources": list(self.sources),
-                "applied": applied, **{cid: {"limit": round(c.limit, 6), "unit": c.unit}
-                                       for cid, c in self.items.items()}}
+        out = {"name": self.name, "description": self.description, "sources": list(self.sources),
+               "applied": applied, **{cid: {"limit": round(c.limit, 6), "unit": c.unit}
+                                      for cid, c in self.items.items()}}
+        if self.override is not None:
+            out["override"] = dict(self.override)
+        return out
 
 
 def _plain(v):
@@ -245,6 +249,32 @@ def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> C
     return CriteriaSet(name, base.description if base else "Criteria given in the study file.",
                        list(base.sources) if base else ["as stated in the study file"], items,
                        base.path if base else None)
+
+
+def override_criteria(text: str, study_value, problems: list[Problem],
+                      base_dir: Path | None = None) -> CriteriaSet | None:
+    """The criteria set of ``run --criteria NAME|FILE``, replacing the study's ``criteria:``.
+
+    ``text`` is a bundled set name or a criteria file path relative to ``base_dir`` (the
+    current folder by default, as a shell user expects). The set records the option and
+    what it replaced (``override`` in results.json), so the replacement is never silent.
+    """
+    base_dir = Path.cwd() if base_dir is None else Path(base_dir)
+    cset = _named_or_file(text, "--criteria", base_dir, bundled_names(), problems)
+    if cset is None:
+        return None
+    cset.override = {"option": f"--criteria {text}", "study_criteria": describe_criteria_value(study_value)}
+    return cset
+
+
+def describe_criteria_value(value) -> str:
+    """A study's ``criteria:`` value in a few words (for the record of an override)."""
+    if value is None:
+        return "none given"
+    if isinstance(value, dict):
+        base = value.get("base")
+        return f"an inline set (base {base})" if base else "an inline set"
+    return str(value)
 
 
 def _named_or_file(text: str, where: str, base_dir: Path, names: list[str], problems) -> CriteriaSet | None:

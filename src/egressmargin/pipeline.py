@@ -42,6 +42,7 @@ class RunOptions:
     raw_only: bool = False                # ignore any table: uncorrected predictions
     progress: object = None               # callable(str) or None
     workers: int | None = None            # processes over scenarios; None: automatic
+    criteria: str | None = None           # replace the study's criteria: bundled name or file (cwd)
 
 
 @dataclass
@@ -56,7 +57,7 @@ class Loaded:
 def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
     """Read and check the study and every file it names; raise InputError with all problems."""
     options = options or RunOptions()
-    study, specs, problems = check_study(study_path)
+    study, specs, problems = check_study(study_path, criteria_override=options.criteria)
     if study is None:
         # Report the CSV problems of every scenario that could be read, too.
         for spec in specs:

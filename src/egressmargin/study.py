@@ -12,7 +12,7 @@ import difflib
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .criteria import CriteriaSet, resolve_criteria
+from .criteria import CriteriaSet, describe_criteria_value, override_criteria, resolve_criteria
 from .errors import InputError, Problem
 from .units import UnitProblem, check_unit, parse_quantity
 from .yamlfile import Located, load_located
@@ -253,12 +253,15 @@ def load_study(path: str | Path) -> Study:
     return study
 
 
-def check_study(path: str | Path) -> tuple[Study | None, list[ScenarioSpec], list[Problem]]:
+def check_study(path: str | Path, criteria_override: str | None = None
+                ) -> tuple[Study | None, list[ScenarioSpec], list[Problem]]:
     """Check a study file without stopping at the first problem.
 
     Returns the study (None when it has errors), the scenarios that could be read (so a
     caller can go on to check their CSV files and report those problems too), and every
-    problem and warning found.
+    problem and warning found. ``criteria_override`` (``run --criteria``: a bundled set
+    name or a file path relative to the current folder) replaces the study's
+    ``criteria:``, with a warning saying what it replaced.
     """
     path = Path(path)
     doc = load_located(path)
@@ -272,7 +275,12 @@ def check_study(path: str | Path) -> tuple[Study | None, list[ScenarioSpec], lis
         ck.warn((), "no 'title'; the report will use the file name")
 
     criteria = None
-    if ck.require(data, (), "criteria", "a bundled set name, a criteria file, or a mapping with 'base'"):
+    if criteria_override is not None:
+        criteria = override_criteria(criteria_override, data.get("criteria"), ck.problems)
+        if criteria is not None:
+            ck.warn(("criteria",), f"not applied: --criteria {criteria_override} replaces the study's criteria "
+                    f"({describe_criteria_value(data.get('criteria'))})")
+    elif ck.require(data, (), "criteria", "a bundled set name, a criteria file, or a mapping with 'base'"):
         criteria = resolve_criteria(data["criteria"], lambda kp: doc.where(("criteria",) + tuple(kp)),
                                     base, ck.problems)
 
