@@ -23,6 +23,7 @@ from .credibility import flag_change, grid_convergence
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
 from .stats import share, summarise
+from .tenability.crossing import cumulative_trapezoid
 from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
 from .verdict import CI_METHOD, decide, needs_more_samples
@@ -419,12 +420,18 @@ def _plot_locations(prep, crit, factors, corr) -> dict:
 
 
 def _dose_curves(prep, c, rows, sub, S) -> dict:
-    """Raw cumulative dose and the corrected p05/p95 band at each of ``rows``, from one dose grid each."""
-    raw_field = aset.dose_field(prep, c, {}, 1, rows)
+    """Raw cumulative dose and the corrected p05/p95 band at each of ``rows``.
+
+    The raw curve is integrated here from the raw series (trapezoidal rule, as the
+    engine does), never read off the engine's cached grid of factor values: a grid node
+    is a corrected curve, not the raw one. The band comes from the Monte Carlo grid.
+    """
+    rate = aset.dose_rate(c, aset.corrected_inputs(prep, aset.dose_quantities(c), {}, rows))
+    raw_dose = cumulative_trapezoid(prep.t_s, np.broadcast_to(rate, (len(rows), len(prep.t_s))))
     fld = aset.dose_field(prep, c, sub, S, rows) if S else None
     out = {}
     for j, li in enumerate(rows):
-        raw = raw_field.grid[0, j]
+        raw = raw_dose[j]
         if fld is None:
             out[li] = (raw, None)
             continue
