@@ -173,6 +173,9 @@ def test_not_comparable_files_exit_2_with_the_reason(two_runs, tmp_path, cli, mo
     titled = _variant(a, tmp_path / "title", lambda d: d["study"].update(title="Another building"))
     _refused(cli, ["compare", a, titled], "different studies", "Another building", "--allow-different-titles")
 
+    # every reason at once
+    _refused(cli, ["compare", a, tmp_path / "missing.json", titled], "missing.json", "different studies")
+
     def rename(d):
         for sc in d["scenarios"]:
             sc["id"] = "other-" + sc["id"]

@@ -198,11 +198,9 @@ def _fit(args) -> int:
 def _compare(args) -> int:
     from datetime import date
 
-    from .compare import build_comparison, read_runs
+    from .compare import build_comparison, read_comparable
     from .report.compare_render import write_comparison
-    runs, problems = read_runs(args.results)
-    if problems:
-        raise InputError(problems)
+    runs = read_comparable(args.results, allow_different_titles=args.allow_different_titles)
     comparison = build_comparison(runs, allow_different_titles=args.allow_different_titles)
     paths = write_comparison(comparison, args.out, pdf=not args.no_pdf, generated=date.today().isoformat())
     for r in comparison["runs"]:

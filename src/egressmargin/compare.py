@@ -132,6 +132,18 @@ def read_runs(paths: list[Path]) -> tuple[list[Run], list[Problem]]:
     return runs, problems
 
 
+def read_comparable(paths: list[Path], allow_different_titles: bool = False) -> list[Run]:
+    """Read the results files and check they compare; raise InputError with every reason they do not."""
+    problems = []
+    if len(paths) < 2:
+        problems.append(Problem("compare", f"found {len(paths)} results file{'s' if len(paths) != 1 else ''}; "
+                                "expected at least two to compare"))
+    runs, read_problems = read_runs(paths)
+    problems += read_problems + comparability_problems(runs, allow_different_titles)
+    raise_if_any(problems)
+    return runs
+
+
 def _version_problem(run: Run) -> str | None:
     version = run.data.get("version")
     m = re.fullmatch(r"(\d+)\.(\d+)(?:\.(\d+))?\S*", version) if isinstance(version, str) else None

@@ -117,6 +117,14 @@ def _location_rows(comparison: Mapping[str, Any], sc: Mapping[str, Any]) -> tupl
     return rows, same
 
 
+def _file_cell(entry: Mapping[str, Any] | None) -> dict | None:
+    """An input file as shown: its name and the first 12 characters of its SHA-256."""
+    if entry is None:
+        return None
+    path = str(entry.get("path") or "")
+    return {"name": path.replace("\\", "/").rsplit("/", 1)[-1] or "n/a", "sha": str(entry.get("sha256") or "")[:12]}
+
+
 def _ends(end_s: Mapping[str, Any]) -> str:
     """The histories' end per run, once when every run has the same."""
     if len(set(end_s.values())) == 1:
@@ -143,7 +151,8 @@ def build_compare_context(comparison: Mapping[str, Any], generated: str | None =
         "baseline": comparison["baseline"],
         "runs": comparison["runs"],
         "labels": [r["label"] for r in comparison["runs"]],
-        "input_files": diffs["inputs"],
+        "input_files": [{"role": f["role"], "files": {label: _file_cell(x) for label, x in f["files"].items()}}
+                        for f in diffs["inputs"]],
         "criteria_diffs": [{**d, "label": CRITERION_LABELS.get(d["criterion"], d["criterion"])}
                            for d in diffs["criteria"]["differences"]],
         "criteria_names": diffs["criteria"]["names"] if diffs["criteria"]["name_differs"] else None,
