@@ -252,3 +252,34 @@ def test_demo_results_are_not_modified(two_runs, tmp_path):
     shutil.copy(two_runs[1], copy)
     assert main(["compare", str(two_runs[0]), str(copy), "--no-pdf", "--out", str(tmp_path / "o")]) == 0
     assert [p.read_bytes() for p in two_runs] == before and copy.read_bytes() == before[1]
+
+
+def test_shift_of_a_visibility_limit_in_closed_form(tmp_path, cli, monkeypatch):
+    """K = 0.002 t [1/m]; S = C/K with C = 8 (Jin 1978): 10 m at t = 400 s, 20 m at t = 200 s.
+
+    A study without routes compares on its locations; the 20 m set moves ASET 200 s earlier.
+    """
+    import numpy as np
+    import yaml
+
+    from engine_helpers import write_study
+
+    t = np.arange(0.0, 601.0, 10.0)
+    study = write_study(tmp_path, t, {"K1": ("1/m", 0.002 * t)}, [{"id": "room", "extinction": "K1"}],
+                        criteria={"base": "general-2m", "only": ["visibility"]}, samples=20)
+    (tmp_path / "v20.yaml").write_text(yaml.safe_dump({
+        "name": "v20", "description": "Visibility 20 m only (a test set).", "sources": ["common practice"],
+        "criteria": {"visibility": {"limit": "20 m", "sign_constant": 8}}}), encoding="utf-8")
+    monkeypatch.chdir(tmp_path)
+    assert cli(["run", study, "--no-pdf", "--out", "a"])[0] == 0
+    assert cli(["run", study, "--no-pdf", "--out", "b", "--criteria", "v20.yaml"])[0] == 0
+    status, _, err = cli(["compare", "a/results.json", "b/results.json", "--no-pdf"])
+    assert status == 0, err
+    comp = _load(tmp_path / "egressmargin-compare" / "comparison.json")
+    room = comp["scenarios"][0]["locations"][0]
+    assert room["values"]["A"]["aset_raw_s"] == pytest.approx(400.0, abs=1e-6)
+    assert room["values"]["B"]["aset_raw_s"] == pytest.approx(200.0, abs=1e-6)
+    assert room["changes"]["B"]["aset_raw_s"] == {"changed": True, "delta": pytest.approx(-200.0, abs=1e-6),
+                                                  "direction": "earlier"}
+    assert comp["scenarios"][0]["routes"] == [] and comp["changes"] == []
+    assert comp["differences"]["criteria"]["differences"][0]["values"] == {"A": "10 m", "B": "20 m"}
