@@ -79,6 +79,14 @@ def build_parser() -> argparse.ArgumentParser:
     f.add_argument("--source", default=None, help="the table's source line (default: names the pairs file)")
     f.add_argument("--sigma-exp", type=float, default=None,
                    help="experimental relative standard deviation for rows without a sigma_exp column")
+    cmp = sub.add_parser("compare", help="compare several runs of one study side by side (what-ifs)")
+    cmp.add_argument("results", type=Path, nargs="+", metavar="RESULTS.json",
+                     help="results.json files; the first is the baseline")
+    cmp.add_argument("--out", type=Path, default=Path("egressmargin-compare"),
+                     help="output folder (default: ./egressmargin-compare)")
+    cmp.add_argument("--no-pdf", action="store_true", help="write comparison.json and comparison.html, no PDF")
+    cmp.add_argument("--allow-different-titles", action="store_true",
+                     help="compare runs whose study titles differ (e.g. two design options)")
     c = sub.add_parser("criteria", help="list the bundled criteria sets, or print one with its sources")
     c.add_argument("name", nargs="?")
     return p
@@ -92,7 +100,7 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     try:
         return {"run": _run, "demo": _demo, "validate": _validate, "fit-uncertainty": _fit,
-                "criteria": _criteria}[args.command](args)
+                "criteria": _criteria, "compare": _compare}[args.command](args)
     except InputError as exc:
         print(str(exc), file=sys.stderr)
         return 2
@@ -184,6 +192,27 @@ def _fit(args) -> int:
     if args.plot:
         uf.plot_fit(pairs, table, args.plot)
         print(f"wrote {args.plot}")
+    return 0
+
+
+def _compare(args) -> int:
+    from datetime import date
+
+    from .compare import build_comparison, read_comparable
+    from .report.compare_render import write_comparison
+    runs = read_comparable(args.results, allow_different_titles=args.allow_different_titles)
+    comparison = build_comparison(runs, allow_different_titles=args.allow_different_titles)
+    paths = write_comparison(comparison, args.out, pdf=not args.no_pdf, generated=date.today().isoformat())
+    for r in comparison["runs"]:
+        print(f"{r['label']}: {r['path']}")
+    diffs = comparison["differences"]["summary"]
+    print("inputs: " + ("the same" if not diffs else "; ".join(diffs)))
+    verdicts = [c for c in comparison["changes"] if c["verdict_changed"]]
+    for c in verdicts:
+        print(f"verdict changed: {c['scenario']} / {c['route']}: "
+              + " -> ".join(f"{k} {v}" for k, v in c["verdicts"].items()))
+    print(f"{len(comparison['changes'])} route assessment(s) changed, {len(verdicts)} verdict change(s)")
+    print(f"comparison: {paths.get('pdf') or paths['html']}")
     return 0
 
 

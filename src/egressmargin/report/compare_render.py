@@ -1,0 +1,273 @@
+"""The comparison page: ``comparison.json``, ``comparison.html`` and ``comparison.pdf``.
+
+Renders the record built by :func:`egressmargin.compare.build_comparison` with the
+``compare.html.j2`` template and the report's stylesheet, and writes the three files
+into an output folder the way the run does: assembled in a temporary folder beside it
+and moved into place only when everything is written. The folder must be new, empty or
+an earlier comparison (marked by :data:`MANIFEST`); anything else is refused untouched.
+"""
+
+from __future__ import annotations
+
+import json
+import shutil
+import tempfile
+from pathlib import Path
+from typing import Any, Mapping
+
+from ..errors import InputError, Problem
+from .format import NBSP, fmt_num, fmt_prob, fmt_time, fmt_verdict
+from .render import CRITERION_LABELS, _environment, page_size, templates_dir, write_pdf
+
+#: The small file that marks a folder as written by ``egressmargin compare``.
+MANIFEST = "manifest.json"
+MANIFEST_KIND = "egressmargin compare output"
+
+#: Column heads of the route table, in the order of ``compare.ROUTE_VALUES``.
+ROUTE_HEADS = {"aset_raw_s": "ASET raw", "aset_p50_s": "ASET p50", "rset_p50_s": "RSET p50",
+               "margin_p05_s": "Margin p05", "margin_p50_s": "Margin p50", "p_fail": "p_fail",
+               "verdict": "Verdict"}
+
+#: Symbols doubling the highlight of a changed value (so it survives greyscale printing).
+MARKS = {"later": "\u25b2", "larger": "\u25b2", "higher": "\u25b2", "earlier": "\u25bc", "smaller": "\u25bc",
+         "lower": "\u25bc", "differs": "\u25c6", "missing": "?"}
+
+#: Directions that make a design look worse (ASET earlier, RSET later, margin smaller, p_fail higher).
+WORSE = {"aset_raw_s": "earlier", "aset_p50_s": "earlier", "rset_p50_s": "later", "margin_p05_s": "smaller",
+         "margin_p50_s": "smaller", "p_fail": "higher"}
+
+COMPARE_CAUTION = ("The comparison shows how the results of the listed runs differ; it does not say which "
+                   "inputs are right. It supports, and does not replace, the judgment of a qualified fire "
+                   "engineer; local codes and the approving authority govern.")
+
+
+def _signed(delta: float, unit: str) -> str:
+    text = fmt_num(abs(delta), 3) if unit != "s" else f"{abs(round(delta))}"
+    sign = "+" if delta > 0 else "\u2212"
+    return f"{sign}{text}{NBSP + unit if unit else ''}"
+
+
+def _show(key: str, value: Any, end_s: Any, extras: Mapping[str, Any]) -> str:
+    if key == "p_fail":
+        return fmt_prob(value)
+    if key == "verdict":
+        return fmt_verdict(value)
+    if key == "governing":
+        return "none reached" if value is None else CRITERION_LABELS.get(value, str(value))
+    if key.startswith("margin") and value is None:
+        at_least = (extras.get("margin_at_least_s") or {}).get(key[len("margin_"):-2])
+        if isinstance(at_least, (int, float)):
+            return f"\u2265{NBSP}{fmt_time(at_least)}"
+        return f"ASET{NBSP}{fmt_time(None, end_s)}"
+    return fmt_time(value, end_s, signed=key.startswith("margin"))
+
+
+def _cell(key: str, value: Any, end_s: Any, change: Mapping[str, Any] | None, extras: Mapping[str, Any],
+          baseline_value: Any = None) -> dict:
+    cell = {"key": key, "text": _show(key, value, end_s, extras), "changed": False, "mark": "", "note": "",
+            "worse": False, "raw": value}
+    if change and change["changed"]:
+        d, direction = change.get("delta"), change["direction"]
+        cell.update(changed=True, mark=MARKS.get(direction, ""), worse=WORSE.get(key) == direction)
+        if key == "verdict":
+            cell["note"] = f"was {fmt_verdict(baseline_value)}"
+        elif d is not None:
+            cell["note"] = _signed(d, "" if key == "p_fail" else "s")
+        else:
+            cell["note"] = direction
+    return cell
+
+
+def _route_rows(comparison: Mapping[str, Any], sc: Mapping[str, Any]) -> list[dict]:
+    base = comparison["baseline"]
+    order = sorted(sc["routes"], key=lambda r: (not r["verdict_changed"], not r["changed"]))
+    out = []
+    for rt in order:
+        runs = []
+        for label, values in rt["values"].items():
+            extras = rt.get("extras", {}).get(label, {})
+            change = rt["changes"].get(label, {})
+            runs.append({"label": label, "extras": extras,
+                         "cells": [_cell(k, values[k], sc["end_s"].get(label), change.get(k), extras,
+                                         rt["values"][base][k]) for k in ROUTE_HEADS],
+                         "bounds": extras.get("p_fail_bounds"), "ci95": extras.get("p_fail_ci95"),
+                         "samples_used": extras.get("samples_used"), "reason": extras.get("verdict_reason")})
+        if not rt["changed"]:            # one row for all runs keeps the page short
+            runs = [{**runs[0], "label": "all"}]
+        out.append({"id": rt["id"], "title": rt.get("title"), "changed": bool(rt["changed"]),
+                    "verdict_changed": rt["verdict_changed"], "runs": runs})
+    return out
+
+
+def _location_rows(comparison: Mapping[str, Any], sc: Mapping[str, Any]) -> tuple[list[dict], int]:
+    """Locations whose ASET or governing criterion changed (the others are only counted)."""
+    base = comparison["baseline"]
+    rows, same = [], 0
+    for loc in sc["locations"]:
+        if not loc["changed"]:
+            same += 1
+            continue
+        cells = []
+        for label, values in loc["values"].items():
+            change = loc["changes"].get(label, {})
+            cells.append({"label": label, "cells": [
+                _cell(k, values[k], sc["end_s"].get(label), change.get(k), {}, loc["values"][base][k])
+                for k in ("aset_raw_s", "aset_p50_s", "governing")]})
+        rows.append({"id": loc["id"], "title": loc.get("title"), "runs": cells})
+    return rows, same
+
+
+def _file_cell(entry: Mapping[str, Any] | None) -> dict | None:
+    """An input file as shown: its name and the first 12 characters of its SHA-256."""
+    if entry is None:
+        return None
+    path = str(entry.get("path") or "")
+    return {"name": path.replace("\\", "/").rsplit("/", 1)[-1] or "n/a", "sha": str(entry.get("sha256") or "")[:12]}
+
+
+def _ends(end_s: Mapping[str, Any]) -> str:
+    """The histories' end per run, once when every run has the same."""
+    if len(set(end_s.values())) == 1:
+        return fmt_time(next(iter(end_s.values())))
+    return ", ".join(f"{k} {fmt_time(v)}" for k, v in end_s.items())
+
+
+def build_compare_context(comparison: Mapping[str, Any], generated: str | None = None) -> dict:
+    """Everything the template prints, formatted (the template only lays it out)."""
+    scenarios = []
+    for sc in comparison["scenarios"]:
+        locations, unchanged = _location_rows(comparison, sc)
+        scenarios.append({"id": sc["id"], "title": sc.get("title"), "routes": _route_rows(comparison, sc),
+                          "locations": locations, "locations_unchanged": unchanged,
+                          "end": _ends(sc["end_s"])})
+    diffs = comparison["differences"]
+    changes = comparison["changes"]
+    return {
+        "title": comparison["study"]["title"] or "(untitled study)",
+        "reference": comparison["study"].get("reference"),
+        "version": comparison["version"],
+        "generated": generated,
+        "page_size": page_size(comparison["study"].get("paper") or "A4"),
+        "baseline": comparison["baseline"],
+        "runs": comparison["runs"],
+        "labels": [r["label"] for r in comparison["runs"]],
+        "input_files": [{"role": f["role"], "files": {label: _file_cell(x) for label, x in f["files"].items()}}
+                        for f in diffs["inputs"]],
+        "criteria_diffs": [{**d, "label": CRITERION_LABELS.get(d["criterion"], d["criterion"])}
+                           for d in diffs["criteria"]["differences"]],
+        "criteria_names": diffs["criteria"]["names"] if diffs["criteria"]["name_differs"] else None,
+        "table_diffs": diffs["uncertainty"],
+        "settings_diffs": diffs["settings"],
+        "same_inputs": not diffs["summary"],
+        "verdict_changes": [c for c in changes if c["verdict_changed"]],
+        "n_changed_routes": len(changes),
+        "n_routes": sum(len(sc["routes"]) for sc in comparison["scenarios"]),
+        "scenarios": scenarios,
+        "not_compared": comparison["not_compared"],
+        "heads": ROUTE_HEADS,
+        "rule": comparison["rules"]["text"],
+        "caution": COMPARE_CAUTION,
+    }
+
+
+def render_compare_html(comparison: Mapping[str, Any], generated: str | None = None) -> str:
+    """The comparison as one self-contained HTML page (the report's stylesheet inline)."""
+    from markupsafe import Markup
+
+    ctx = build_compare_context(comparison, generated)
+    ctx["css"] = Markup((templates_dir() / "report.css").read_text(encoding="utf-8"))
+    return _environment().get_template("compare.html.j2").render(**ctx)
+
+
+def out_dir_problems(out: Path) -> list[Problem]:
+    """Why ``out`` may not receive a comparison (empty: new, empty, or an earlier comparison)."""
+    out = Path(out)
+    if not out.exists():
+        return []
+    if not out.is_dir():
+        return [Problem(str(out), "exists and is not a folder; expected a new or empty folder, or an earlier "
+                        "'egressmargin compare' output (choose another --out)")]
+    names = sorted(p.name for p in out.iterdir())
+    if not names:
+        return []
+    ours = None
+    try:
+        manifest = json.loads((out / MANIFEST).read_text(encoding="utf-8"))
+        if isinstance(manifest, dict) and manifest.get("kind") == MANIFEST_KIND:
+            ours = set(manifest.get("files") or []) | {MANIFEST}
+    except (OSError, ValueError):
+        pass
+    shown = ", ".join(names[:5]) + (" ..." if len(names) > 5 else "")
+    if ours is None:
+        return [Problem(str(out), f"is not empty and is not an earlier 'egressmargin compare' output (it holds "
+                        f"{shown}); nothing was written: choose a new or empty folder with --out")]
+    extra = [n for n in names if n not in ours]
+    if extra:
+        return [Problem(str(out), f"is an earlier comparison but also holds files it did not write ("
+                        f"{', '.join(extra[:5])}); nothing was written: move them or choose another --out")]
+    return []
+
+
+def write_comparison(comparison: Mapping[str, Any], out_dir: Path, pdf: bool = True,
+                     generated: str | None = None) -> dict[str, Path]:
+    """Write ``comparison.json``, ``comparison.html`` (and ``comparison.pdf``) into ``out_dir``.
+
+    Parameters
+    ----------
+    comparison : mapping
+        The record of :func:`egressmargin.compare.build_comparison`.
+    out_dir : pathlib.Path
+        Output folder: new, empty, or an earlier comparison (replaced as a whole).
+    pdf : bool
+        Also render ``comparison.pdf`` with WeasyPrint.
+    generated : str, optional
+        Date printed on the page (the JSON carries none, so reruns are byte-identical).
+
+    Returns
+    -------
+    dict of str to Path
+        ``json``, ``html`` and, with ``pdf``, ``pdf``: the files' final paths.
+
+    Raises
+    ------
+    egressmargin.errors.InputError
+        When ``out_dir`` may not be written (see :func:`out_dir_problems`); nothing is touched.
+    """
+    out = Path(out_dir)
+    problems = out_dir_problems(out)
+    if problems:
+        raise InputError(problems)
+    html = render_compare_html(comparison, generated)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}-", dir=out.parent))
+    try:
+        files = {"json": "comparison.json", "html": "comparison.html"}
+        (tmp / files["json"]).write_text(json.dumps(comparison, indent=2, allow_nan=False) + "\n", encoding="utf-8")
+        (tmp / files["html"]).write_text(html, encoding="utf-8")
+        if pdf:
+            files["pdf"] = "comparison.pdf"
+            write_pdf(html, tmp / files["pdf"])
+        (tmp / MANIFEST).write_text(json.dumps({"kind": MANIFEST_KIND, "version": comparison["version"],
+                                                "files": sorted(files.values())}, indent=2) + "\n",
+                                    encoding="utf-8")
+        _move_into_place(tmp, out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return {k: out / v for k, v in files.items()}
+
+
+def _move_into_place(tmp: Path, out: Path) -> None:
+    """Replace ``out`` (missing, empty, or checked to hold only an earlier comparison) by ``tmp``."""
+    if not out.exists():
+        tmp.rename(out)
+        return
+    if not any(out.iterdir()):
+        out.rmdir()
+        tmp.rename(out)
+        return
+    backup = Path(tempfile.mkdtemp(prefix=f".{out.name}-old-", dir=out.parent))
+    backup.rmdir()
+    out.rename(backup)
+    tmp.rename(out)
+    shutil.rmtree(backup)
