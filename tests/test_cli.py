@@ -39,7 +39,7 @@ def stub_report(monkeypatch):
     """Replace the report package by a stub that writes a marker file; records its calls."""
     calls = []
 
-    def render_report(results, plots, folder, paper="A4", pdf=True):
+    def render_report(results, plots, folder, paper="A4", pdf=True, **keywords):
         calls.append({"folder": Path(folder), "pdf": pdf, "paper": paper})
         (Path(folder) / "report.html").write_text("stub", encoding="utf-8")
 
@@ -264,12 +264,15 @@ def test_run_default_output_folder(cli, good_study, tmp_path, monkeypatch, stub_
 
 
 def test_run_replaces_an_earlier_output(cli, good_study, tmp_path, stub_report):
+    """An earlier output (its manifest lists all it holds) is replaced whole: report.html goes with it."""
     out = tmp_path / "out"
-    out.mkdir()
-    (out / "old.txt").write_text("from an earlier run", encoding="utf-8")
     status, _, err = cli(["run", good_study, "--no-pdf", "--html", "--out", out, "--samples", "20"])
     assert status == 0, err
-    assert sorted(os.listdir(out)) == ["report.html", "results.json"]
+    assert sorted(os.listdir(out)) == ["egressmargin-output.json", "report.html", "results.json"]
+    status, _, err = cli(["run", good_study, "--no-pdf", "--out", out, "--samples", "30"])
+    assert status == 0, err
+    assert sorted(os.listdir(out)) == ["egressmargin-output.json", "results.json"]
+    assert json.loads((out / "results.json").read_text(encoding="utf-8"))["samples"] == 30
     assert sorted(os.listdir(tmp_path)) == ["out", "study"]
 
 
@@ -325,4 +328,4 @@ def test_no_pdf_alone_writes_numbers_only(cli, good_study, tmp_path):
     out = tmp_path / "numbers"
     status, _, err = cli(["run", good_study, "--no-pdf", "--out", out, "--samples", "20"])
     assert status == 0, err
-    assert sorted(os.listdir(out)) == ["results.json"]
+    assert sorted(os.listdir(out)) == ["egressmargin-output.json", "results.json"]
