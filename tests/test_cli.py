@@ -39,7 +39,7 @@ def stub_report(monkeypatch):
     """Replace the report package by a stub that writes a marker file; records its calls."""
     calls = []
 
-    def render_report(results, plots, folder, paper="A4", pdf=True):
+    def render_report(results, plots, folder, paper="A4", pdf=True, **keywords):
         calls.append({"folder": Path(folder), "pdf": pdf, "paper": paper})
         (Path(folder) / "report.html").write_text("stub", encoding="utf-8")
 
@@ -264,12 +264,15 @@ def test_run_default_output_folder(cli, good_study, tmp_path, monkeypatch, stub_
 
 
 def test_run_replaces_an_earlier_output(cli, good_study, tmp_path, stub_report):
+    """An earlier output (its manifest lists all it holds) is replaced whole: report.html goes with it."""
     out = tmp_path / "out"
-    out.mkdir()
-    (out / "old.txt").write_text("from an earlier run", encoding="utf-8")
     status, _, err = cli(["run", good_study, "--no-pdf", "--html", "--out", out, "--samples", "20"])
     assert status == 0, err
-    assert sorted(os.listdir(out)) == ["report.html", "results.json"]
+    assert sorted(os.listdir(out)) == ["egressmargin-output.json", "report.html", "results.json"]
+    status, _, err = cli(["run", good_study, "--no-pdf", "--out", out, "--samples", "30"])
+    assert status == 0, err
+    assert sorted(os.listdir(out)) == ["egressmargin-output.json", "results.json"]
+    assert json.loads((out / "results.json").read_text(encoding="utf-8"))["samples"] == 30
     assert sorted(os.listdir(tmp_path)) == ["out", "study"]
 
 
@@ -325,4 +328,65 @@ def test_no_pdf_alone_writes_numbers_only(cli, good_study, tmp_path):
     out = tmp_path / "numbers"
     status, _, err = cli(["run", good_study, "--no-pdf", "--out", out, "--samples", "20"])
     assert status == 0, err
-    assert sorted(os.listdir(out)) == ["results.json"]
+    assert sorted(os.listdir(out)) == ["egressmargin-output.json", "results.json"]
+
+
+# --------------------------------------------------------------------------- output options shared by run and demo
+
+
+def test_run_prints_the_warnings_validate_prints(cli, kit, make_study, tmp_path):
+    """Issue 13 item 7: ``run`` prints (stderr) the same warnings as ``validate``; results.json keeps them."""
+    rows = [r[:6] + [f"{float(r[6]) + 273.15:g}"] for r in kit.rows()]   # T_stair in kelvin under [degC]
+    study = make_study(csv=kit.csv_text(rows=rows))
+    status, _, validate_err = cli(["validate", study])
+    assert status == 0 and "looks like kelvin" in validate_err
+    warnings = [line for line in validate_err.splitlines() if ": warning: " in line]
+    status, _, run_err = cli(["run", study, "--out", tmp_path / "out", "--no-pdf", "--samples", "20", "--quiet"])
+    assert status == 0, run_err
+    assert [line for line in run_err.splitlines() if ": warning: " in line] == warnings
+    res = json.loads((tmp_path / "out" / "results.json").read_text(encoding="utf-8"))
+    assert res["warnings"] == warnings
+
+
+def test_demo_and_run_no_pdf_write_the_same_files(cli, good_study, tmp_path, stub_report):
+    """Issue 17 item 4: ``--no-pdf`` means results.json only for both commands; ``--html`` adds report.html."""
+    for command, args in (("run", [good_study]), ("demo", [])):
+        status, _, err = cli([command, *args, "--no-pdf", "--samples", "20", "--quiet", "--out", tmp_path / command])
+        assert status == 0, err
+        assert sorted(os.listdir(tmp_path / command)) == ["egressmargin-output.json", "results.json"], command
+        status, _, err = cli([command, *args, "--no-pdf", "--html", "--samples", "20", "--quiet",
+                              "--out", tmp_path / f"{command}-html"])
+        assert status == 0, err
+        assert sorted(os.listdir(tmp_path / f"{command}-html")) == ["egressmargin-output.json", "report.html",
+                                                                   "results.json"], command
+    assert [c["pdf"] for c in stub_report] == [False, False]
+
+
+def test_demo_default_output_folder(cli, tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    status, _, err = cli(["demo", "--no-pdf", "--samples", "20", "--quiet"])
+    assert status == 0, err
+    assert os.listdir(tmp_path) == ["egressmargin-demo"]
+
+
+def test_help_states_the_default_output_folders(cli):
+    for command, words in (("run", "<study stem>-out in the current folder"), ("demo", "./egressmargin-demo")):
+        status, out, _ = cli([command, "--help"])
+        assert status == 0
+        assert words in " ".join(out.split()), command
+        assert "--force" in out
+
+
+def test_summary_into_a_closed_pipe_ends_quietly(good_study, tmp_path):
+    """``egressmargin run ... | head -0``: the reader is gone before the summary is written; exit
+    128 + SIGPIPE (13) as a pipe's writer gets from the shell, no BrokenPipeError traceback."""
+    env = dict(os.environ, PYTHONPATH=str(REPO / "src") + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    proc = subprocess.Popen([sys.executable, "-m", "egressmargin", "run", str(good_study), "--out",
+                             str(tmp_path / "out"), "--no-pdf", "--samples", "20", "--quiet"],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env)
+    proc.stdout.close()                      # the reader leaves at once, as ``head`` does when done
+    err = proc.stderr.read().decode()
+    proc.stderr.close()
+    assert proc.wait(timeout=300) == 141
+    assert err == "", err
+    assert (tmp_path / "out" / "results.json").is_file()   # the output itself was complete

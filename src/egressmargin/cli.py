@@ -7,7 +7,12 @@ input, printed without a traceback; 1 an internal error (a bug, with its traceba
 from __future__ import annotations
 
 import argparse
+import os
+import shlex
+import signal
 import sys
+import threading
+from contextlib import contextmanager
 from pathlib import Path
 
 from . import __version__
@@ -46,8 +51,13 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--version", action="version", version=f"egressmargin {__version__}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
-    def run_opts(sp):
-        sp.add_argument("--out", type=Path, help="output folder")
+    def run_opts(sp, default_out: str):
+        sp.add_argument("--out", type=Path,
+                        help=f"output folder (default: {default_out}); written only when it is new, empty or an "
+                        "earlier egressmargin output, never a folder holding the study's files")
+        sp.add_argument("--force", action="store_true",
+                        help="--out is an earlier egressmargin output that also holds other files: replace only "
+                        "egressmargin's own files and keep the others")
         sp.add_argument("--samples", type=_positive_int, help="Monte Carlo draws (overrides the study)")
         sp.add_argument("--seed", type=_seed, help="random seed (overrides the study)")
         sp.add_argument("--no-pdf", action="store_true",
@@ -58,7 +68,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     r = sub.add_parser("run", help="run the whole pipeline on a study")
     r.add_argument("study", type=Path)
-    run_opts(r)
+    run_opts(r, "<study stem>-out in the current folder")
     r.add_argument("--uncertainty", type=Path, help="use this model-uncertainty file instead of the study's")
     r.add_argument("--raw-only", action="store_true",
                    help="ignore any model-uncertainty file: assess the uncorrected predictions only")
@@ -66,10 +76,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="use this criteria set (a bundled name or a criteria file, relative to the current "
                         "folder) instead of the study's; recorded in results.json")
     d = sub.add_parser("demo", help="run the bundled demo study (an invented building, illustrative data)")
-    d.add_argument("--out", type=Path, default=Path("egressmargin-demo"))
-    d.add_argument("--samples", type=_positive_int)
-    d.add_argument("--no-pdf", action="store_true", help="write results.json and report.html, no PDF")
-    d.add_argument("--quiet", action="store_true")
+    run_opts(d, "./egressmargin-demo")
     v = sub.add_parser("validate", help="check a study and every file it names, without computing")
     v.add_argument("study", type=Path)
     f = sub.add_parser("fit-uncertainty", help="derive a model-uncertainty table from measured/predicted pairs")
@@ -92,44 +99,109 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+class Stopped(BaseException):
+    """SIGTERM, raised in the main thread as KeyboardInterrupt is for SIGINT (so cleanup runs)."""
+
+
+def _raise_stopped(signum, frame):
+    raise Stopped(signum)
+
+
+@contextmanager
+def _sigterm_raises():
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGTERM, _raise_stopped)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+#: Exit status after a signal: 128 + the signal number (shell convention).
+EXIT_SIGINT, EXIT_SIGTERM, EXIT_SIGPIPE = 128 + 2, 128 + 15, 128 + 13
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
     args = parser.parse_args(argv)
     if args.command is None:
         parser.print_help()
         return 2
+    args.command_line = shlex.join(["egressmargin", *argv])
     try:
-        return {"run": _run, "demo": _demo, "validate": _validate, "fit-uncertainty": _fit,
-                "criteria": _criteria, "compare": _compare}[args.command](args)
+        with _sigterm_raises():
+            status = {"run": _run, "demo": _demo, "validate": _validate, "fit-uncertainty": _fit,
+                      "criteria": _criteria, "compare": _compare}[args.command](args)
+            sys.stdout.flush()
+        return status
     except InputError as exc:
         print(str(exc), file=sys.stderr)
         return 2
+    except KeyboardInterrupt:
+        print("egressmargin: stopped (SIGINT); unfinished output removed", file=sys.stderr)
+        return EXIT_SIGINT
+    except Stopped:
+        print("egressmargin: stopped (SIGTERM); unfinished output removed", file=sys.stderr)
+        return EXIT_SIGTERM
+    except BrokenPipeError:
+        # the reader of stdout went away (``| head``): stop quietly, as a pipe's writer does
+        _silence_stdout()
+        return EXIT_SIGPIPE
+
+
+def _silence_stdout() -> None:
+    """Point stdout at /dev/null so the interpreter's last flush does not fail again."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError):
+        pass
 
 
 def _progress(quiet: bool):
-    if quiet or not sys.stderr.isatty():
+    if quiet:
         return None
-    return lambda msg: print(f"egressmargin: {msg} …", file=sys.stderr, flush=True)
+    from .progress import Progress
+    return Progress(sys.stderr)
+
+
+def _options(args, **extra):
+    """RunOptions from the options ``run`` and ``demo`` share."""
+    from .pipeline import RunOptions
+    return RunOptions(out=args.out, samples=args.samples, seed=args.seed, pdf=not args.no_pdf,
+                      html=not args.no_pdf or args.html, workers=args.jobs, force=args.force,
+                      command=args.command_line, progress=_progress(args.quiet), **extra)
 
 
 def _run(args) -> int:
-    from .pipeline import RunOptions, run
-    opts = RunOptions(out=args.out, samples=args.samples, seed=args.seed, pdf=not args.no_pdf,
-                      html=not args.no_pdf or args.html, workers=args.jobs, uncertainty=args.uncertainty, raw_only=args.raw_only, progress=_progress(args.quiet),
-                      criteria=args.criteria)
-    out = run(args.study, opts)
+    from .pipeline import run
+    out = run(args.study, _options(args, uncertainty=args.uncertainty, raw_only=args.raw_only,
+                                   criteria=args.criteria))
+    _warnings(out)
     _summary(out)
     return 0
 
 
 def _demo(args) -> int:
-    from .pipeline import RunOptions, run
+    from .pipeline import run
     from .resources import resource_dir
     study = resource_dir("demo") / "study.yaml"
-    out = run(study, RunOptions(out=args.out, samples=args.samples, pdf=not args.no_pdf,
-                                progress=_progress(args.quiet)))
+    args.out = args.out or Path("egressmargin-demo")
+    out = run(study, _options(args))
+    _warnings(out)
     _summary(out)
     return 0
+
+
+def _warnings(out: Path) -> None:
+    """The warnings ``validate`` prints, on stderr (they are also in results.json)."""
+    import json
+    res = json.loads((out / "results.json").read_text(encoding="utf-8"))
+    for w in res.get("warnings") or []:
+        print(w, file=sys.stderr)
 
 
 def _summary(out: Path) -> None:

@@ -9,15 +9,12 @@ from __future__ import annotations
 import json
 import multiprocessing as mp
 import os
-import shutil
-import tempfile
 from dataclasses import dataclass, field
-from datetime import date
 from pathlib import Path
 
 import numpy as np
 
-from . import __version__, aset, assess
+from . import __version__, aset, assess, outputs
 from .clock import shift_to_ignition
 from .credibility import flag_change, grid_convergence
 from .errors import InputError, Problem
@@ -41,9 +38,11 @@ class RunOptions:
     html: bool = True
     uncertainty: Path | None = None       # override the study's table
     raw_only: bool = False                # ignore any table: uncorrected predictions
-    progress: object = None               # callable(str) or None
+    progress: object = None               # None or progress.Progress-like: stage(name, total), step(n), done()
     workers: int | None = None            # processes over scenarios; None: automatic
     criteria: str | None = None           # replace the study's criteria: bundled name or file (cwd)
+    force: bool = False                   # an earlier output holding other files: replace only the tool's own
+    command: str | None = None            # the command line, recorded in the output's manifest
 
 
 @dataclass
@@ -543,12 +542,17 @@ def build_results(loaded: Loaded, options: RunOptions):
     want_plots = options.html or options.pdf      # curves and bands are only for the report
     jobs = [(i, S, seed, want_plots) for i in range(len(study.scenarios))]
     workers = _workers(loaded, S, options.workers)
-    if options.progress:
-        options.progress(f"{len(jobs)} scenario(s), {S} samples" + (f", {workers} processes" if workers > 1 else ""))
+    progress = options.progress
     if workers > 1:
+        if progress:
+            progress.stage(f"{len(jobs)} scenarios in {workers} processes, {S} samples")
         outcomes = _run_parallel(loaded, jobs, workers)
     else:
-        outcomes = [assess_scenario(loaded, *job) for job in jobs]
+        outcomes = []
+        for k, job in enumerate(jobs):
+            if progress:
+                progress.stage(f"scenario {study.scenarios[k].id} ({k + 1}/{len(jobs)})")
+            outcomes.append(assess_scenario(loaded, *job))
     scenarios = [sc for sc, _ in outcomes]
     plots = {spec.id: pl for spec, (_, pl) in zip(study.scenarios, outcomes)}
     inputs = [{"path": str(study.path), "sha256": sha256_of(study.path), "role": "study"}]
@@ -571,7 +575,6 @@ def build_results(loaded: Loaded, options: RunOptions):
                                         "unit_as_read": c.unit_as_read} for c in d.columns]})
     results = {
         "version": __version__, "seed": seed, "samples": S,
-        "generated": date.today().isoformat(),
         "study": {"title": study.title, "reference": study.reference, "prepared_by": study.prepared_by,
                   "prepared_for": study.prepared_for, "paper": study.paper, "path": str(study.path),
                   "sha256": sha256_of(study.path)},
@@ -677,35 +680,57 @@ def assumptions(loaded: Loaded) -> list[str]:
 
 
 def run(study_path: Path, options: RunOptions) -> Path:
-    """The whole pipeline; returns the output folder. Raises InputError for user mistakes."""
+    """The whole pipeline; returns the output folder. Raises InputError for user mistakes.
+
+    The output folder is checked and claimed (locked, see :mod:`egressmargin.outputs`)
+    right after loading, before any computing.
+    """
     loaded = load(study_path, options)
-    results, plots = build_results(loaded, options)
     out = options.out or Path.cwd() / f"{Path(study_path).stem}-out"
-    write_outputs(results, plots, out, options)
+    study = loaded.study
+    inputs = [study.path, study.criteria.path, study.uncertainty_path, options.uncertainty,
+              loaded.table.path if loaded.table else None]
+    inputs += [d.path for d in loaded.data.values()]
+    inputs += [d.path for runs in loaded.resolutions.values() for _, d in runs]
+    with outputs.claim(out, inputs, force=options.force) as target:
+        results, plots = build_results(loaded, options)
+        write_outputs(results, plots, out, options, target)
     return out
 
 
-def write_outputs(results: dict, plots: dict, out: Path, options: RunOptions) -> None:
-    out = Path(out)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}-", dir=out.parent))
+def write_outputs(results: dict, plots: dict, out: Path, options: RunOptions,
+                  target: outputs.OutputFolder | None = None) -> None:
+    """Write results.json (and the report) into a staging folder beside ``out``, then put it in place.
+
+    ``target`` is the claimed output folder; without it, ``out`` is checked and claimed here
+    (its inputs taken from ``results["inputs"]``). An OS error that is the user's situation
+    (disk full, no permission) is an InputError naming the path.
+    """
+    if target is None:
+        inputs = [Path(f["path"]) for f in results.get("inputs") or []]
+        with outputs.claim(out, inputs, force=options.force) as own:
+            return write_outputs(results, plots, out, options, own)
+    progress = options.progress
+    tmp = target.staging
     try:
+        if progress:
+            progress.stage("results")
         (tmp / "results.json").write_text(json.dumps(results, indent=2, sort_keys=False, allow_nan=False) + "\n",
                                           encoding="utf-8")
         if options.html or options.pdf:
             from .report import render_report
-            if options.progress:
-                options.progress("report")
-            render_report(results, plots, tmp, paper=results["study"].get("paper", "A4"), pdf=options.pdf)
-        if out.exists():
-            backup = out.with_name(f".{out.name}-old")
-            if backup.exists():
-                shutil.rmtree(backup)
-            out.rename(backup)
-            tmp.rename(out)
-            shutil.rmtree(backup)
-        else:
-            tmp.rename(out)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
+            if progress:
+                progress.stage("report")
+            render_report(results, plots, tmp, paper=results["study"].get("paper", "A4"), pdf=options.pdf,
+                          progress=progress, generated=outputs.timestamp_text(target.when))
+        if progress:
+            progress.stage("writing")
+        target.commit(__version__, options.command)
+    except OSError as exc:
+        problem = outputs.user_os_error(exc, Path(out))
+        if problem is None:
+            raise
+        raise problem from None
+    finally:
+        if progress:
+            progress.done()

@@ -554,7 +554,7 @@ def write_pdf(html: str, path: Path) -> Path:
 
 
 def render_report(results: dict, plotdata: dict, out_dir: Path, paper: str = "A4",
-                  pdf: bool = True) -> dict[str, Path]:
+                  pdf: bool = True, progress=None, generated: str | None = None) -> dict[str, Path]:
     """Write ``report.html`` (and ``report.pdf``) into ``out_dir``.
 
     Parameters
@@ -569,6 +569,10 @@ def render_report(results: dict, plotdata: dict, out_dir: Path, paper: str = "A4
         ``A4`` (default) or ``Letter``.
     pdf : bool
         Also render ``report.pdf`` with WeasyPrint.
+    progress : object, optional
+        ``stage(name, total)``, ``step(n)``, ``done()`` (see :mod:`egressmargin.progress`).
+    generated : str, optional
+        The run's date-time the report prints (ISO 8601); results.json carries none.
 
     Returns
     -------
@@ -578,6 +582,7 @@ def render_report(results: dict, plotdata: dict, out_dir: Path, paper: str = "A4
     """
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
+    results = results if generated is None else {**results, "generated": generated}
     html, figures = _render(results, plotdata, paper)
     paths = {"html": out_dir / "report.html"}
     paths["html"].write_text(html, encoding="utf-8")
