@@ -110,3 +110,226 @@ def test_mass_fraction_gas_header_is_an_input_error(kit, make_study, expect_inpu
 def test_same_unit_after_aliases():
     assert units.same_unit("ppmv", "ppm", "co") and units.same_unit("%", "percent", "o2")
     assert not units.same_unit("percent", "ppm", "co") and not units.same_unit("K", "degC", "temperature")
+
+
+# --------------------------------------------------------------------------- CSV headers and units in several places
+
+
+def _csv_with_header(kit, old, new):
+    return kit.csv_text(header=[new if h == old else h for h in kit.header])
+
+
+def test_the_same_header_twice_names_both_columns(kit, make_study, expect_input_error):
+    """``T_stair [degC]`` twice: pandas would read the first silently (issue 13 item 4)."""
+    csv = _csv_with_header(kit, "T_stair [degC]", "T_hall [degC]")
+    err = expect_input_error(make_study(csv=csv))
+    assert "fire-a.csv:1 column 'T_hall': error: 2 columns match 'temperature' at location 'hall-l1'" in err
+    assert "column 2 'T_hall [degC]', column 7 'T_hall [degC]'" in err
+
+
+def test_same_name_with_two_units_names_both_columns(kit, make_study, expect_input_error):
+    csv = _csv_with_header(kit, "T_stair [degC]", "T_hall [K]")
+    err = expect_input_error(make_study(csv=csv))
+    assert "column 2 'T_hall [degC]', column 7 'T_hall [K]'" in err
+    assert "expected exactly one column of that name" in err
+
+
+def test_duplicate_of_an_unmapped_column_is_harmless(kit, make_study, cli):
+    header = kit.header + ["notes", "notes"]
+    rows = [r + ["a", "b"] for r in kit.rows()]
+    status, out, err = cli(["validate", make_study(csv=kit.csv_text(header=header, rows=rows))])
+    assert status == 0, err
+
+
+def test_study_unit_over_a_different_header_unit(kit, make_study, expect_input_error):
+    """``unit: percent`` over a ``[ppm]`` header is a factor of 10^4 (pint: percent = 0.01, ppm = 1e-6)."""
+    text = kit.study.replace("        co: CO_hall\n", "        co: {column: CO_hall, unit: percent}\n")
+    err = expect_input_error(make_study(text))
+    line = kit.line_of(text, "unit: percent")
+    assert "fire-a.csv column 'CO_hall [ppm]'" in err
+    assert f"found the unit 'percent' in the study (" in err and f"study.yaml:{line} scenarios[0].locations[0].co)" in err
+    assert "and 'ppm' in the header 'CO_hall [ppm]'; expected one unit" in err
+
+
+def test_header_unit_and_units_row_disagree(kit, make_study, expect_input_error):
+    text = kit.study.replace("time: {column: Time, unit: s}", "time: Time\n    units_row: true")
+    units = ["s", "degC", "ppm", "percent", "percent", "1/m", "K"]
+    err = expect_input_error(make_study(text, csv=kit.csv_text(rows=[units] + kit.rows())))
+    assert "fire-a.csv column 'T_stair [degC]'" in err
+    assert "found the unit 'degC' in the header 'T_stair [degC]' and 'K' in the units row (line 2)" in err
+
+
+def test_agreeing_aliases_in_three_places_are_read(kit, make_study):
+    """``ppmv`` in the study, ``[ppm]`` in the header and ``ppm(v)`` in the units row agree."""
+    from egressmargin.histories import read_scenario
+    from egressmargin.study import load_study
+
+    text = kit.study.replace("time: {column: Time, unit: s}", "time: Time\n    units_row: true")
+    text = text.replace("        co: CO_hall\n", "        co: {column: CO_hall, unit: ppmv}\n")
+    units = ["s", "C", "ppm(v)", "%", "vol%", "m-1", "°C"]
+    data, _ = read_scenario(load_study(make_study(text, csv=kit.csv_text(rows=[units] + kit.rows()))).scenarios[0])
+    assert data.series["co"][0][10] == pytest.approx(5 * 100.0 * 1e-6, rel=1e-12)  # 5 t ppm at t = 100 s
+
+
+# --------------------------------------------------------------------------- real exports: units rows, delimiters
+
+
+def _units_above(kit):
+    units = ["s", "degC", "ppm", "percent", "percent", "1/m", "degC"]
+    names = [h.split(" [")[0] for h in kit.header]
+    return "\n".join(",".join(r) for r in [units, names] + kit.rows()) + "\n"
+
+
+def test_units_row_above_the_names_gives_one_hint(kit, make_study, expect_input_error):
+    err = expect_input_error(make_study(csv=_units_above(kit)))
+    assert err.count("error:") == 1
+    assert "fire-a.csv:1: error: the mapped columns (" in err
+    assert "are named on line 2, and line 1 looks like a units row (s, degC, ppm" in err
+    assert "declare units_row: above on the scenario" in err
+
+
+def test_units_row_above_the_names_is_read_when_declared(kit, make_study):
+    from egressmargin.histories import read_scenario
+    from egressmargin.study import load_study
+
+    text = kit.study.replace("time: {column: Time, unit: s}", "time: Time\n    units_row: above")
+    data, _ = read_scenario(load_study(make_study(text, csv=_units_above(kit))).scenarios[0])
+    assert data.rows == 60 and data.t_s[-1] == 590.0
+    assert data.series["temperature"][0][20] == pytest.approx(20 + 0.2 * 200.0)   # 60 degC at 200 s
+
+
+def test_undeclared_units_row_below_gives_one_hint(kit, make_study, expect_input_error):
+    names = [h.split(" [")[0] for h in kit.header]
+    units = ["s", "degC", "ppm", "percent", "percent", "1/m", "degC"]
+    csv = "\n".join(",".join(r) for r in [names, units] + kit.rows()) + "\n"
+    text = kit.study.replace("time: {column: Time, unit: s}", "time: Time")
+    err = expect_input_error(make_study(text, csv=csv))
+    assert err.count("error:") == 1
+    assert "fire-a.csv:2: error: line 2 looks like a units row (s, degC, ppm" in err
+    assert "declare units_row: below (or true)" in err
+
+
+def _semicolons(kit, decimal=","):
+    rows = [[c.replace(".", decimal) for c in r] for r in kit.rows()]
+    return "\n".join(";".join(r) for r in [kit.header] + rows) + "\n"
+
+
+def test_semicolon_delimited_file_gives_one_hint(kit, make_study, expect_input_error):
+    """Not one error per mapped column with the whole header in each (issue 13 item 7)."""
+    err = expect_input_error(make_study(csv=_semicolons(kit)))
+    assert err.count("error:") == 1
+    assert "fire-a.csv:1: error: the header has 6 semicolons and 0 commas" in err
+    assert "declare delimiter: ';' on the scenario" in err and "decimal: ','" in err
+
+
+def test_decimal_comma_gives_one_hint(kit, make_study, expect_input_error):
+    text = kit.study.replace("    time: {column", "    delimiter: ';'\n    time: {column")
+    err = expect_input_error(make_study(text, csv=_semicolons(kit)))
+    assert err.count("error:") == 1
+    assert "a number with a decimal comma; expected a decimal point, or declare decimal: ','" in err
+
+
+def test_semicolons_and_decimal_commas_are_read_when_declared(kit, make_study):
+    from egressmargin.histories import read_scenario
+    from egressmargin.study import load_study
+
+    text = kit.study.replace("    time: {column", "    delimiter: ';'\n    decimal: ','\n    time: {column")
+    data, _ = read_scenario(load_study(make_study(text, csv=_semicolons(kit))).scenarios[0])
+    assert data.series["co2"][0][3] == pytest.approx((0.04 + 0.005 * 30.0) / 100.0, rel=1e-12)
+
+
+def test_missing_column_message_caps_the_header(kit, make_study, expect_input_error):
+    header = kit.header + [f"device_{i:04d}_with_a_rather_long_name_from_an_export_tool [degC]" for i in range(2000)]
+    rows = [r + ["20"] * 2000 for r in kit.rows()]
+    text = kit.study.replace("co: CO_hall", "co: CO_hal")
+    err = expect_input_error(make_study(text, csv=kit.csv_text(header=header, rows=rows)))
+    assert len(err) < 2000, len(err)
+    assert "(2007 columns)" in err
+
+
+def test_only_mapped_series_are_allocated(make_study):
+    """Memory in proportion to the series used (issue 13 item 8): five locations with one
+    temperature series each, 20 000 rows. Allocating all twelve series keys would take
+    12 x 5 x 20 000 x 8 B = 9.6 MB of NaN arrays; the series used take 0.8 MB."""
+    import tracemalloc
+
+    from egressmargin.histories import read_scenario
+    from egressmargin.study import load_study
+
+    n, L = 20_000, 5
+    header = "Time [s]," + ",".join(f"T{i} [degC]" for i in range(L))
+    rows = "\n".join(f"{t}," + ",".join(["20.5"] * L) for t in range(n))
+    locations = "".join(f"      - {{id: l{i}, temperature: T{i}}}\n" for i in range(L))
+    study = make_study(f"title: t\ncriteria: general-2m\nscenarios:\n  - id: s\n    histories: fire-a.csv\n"
+                       f"    time: Time\n    locations:\n{locations}", csv=header + "\n" + rows + "\n")
+    spec = load_study(study).scenarios[0]
+    read_scenario(spec)          # first call: pandas' one-off set-up is not the data's memory
+    tracemalloc.start()
+    try:
+        data, _ = read_scenario(spec)
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert set(data.series) == {"temperature"} and data.series["temperature"].shape == (L, n)
+    assert peak < 6e6, peak
+
+
+# --------------------------------------------------------------------------- property: every declared layout reads the same numbers
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+_LAYOUT_STUDY = """\
+title: layouts (illustrative)
+criteria: general-2m
+scenarios:
+  - id: s
+    histories: fire-a.csv
+{format}    time: {time}
+    locations:
+      - id: a
+        temperature: {temp}
+        co: {co}
+"""
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(temps=st.lists(st.floats(-50, 1200, allow_nan=False), min_size=2, max_size=12),
+       co=st.floats(0, 5e4, allow_nan=False),
+       delimiter=st.sampled_from([",", ";", "\t"]), decimal=st.sampled_from([".", ","]),
+       where=st.sampled_from(["header", "study", "above", "below"]),
+       t_unit=st.sampled_from(["C", "degC", "°C", "deg C"]), co_unit=st.sampled_from(["ppm", "ppmv", "ppm(v)"]))
+def test_every_declared_layout_reads_pints_numbers(make_study, temps, co, delimiter, decimal, where, t_unit,
+                                                   co_unit):
+    """Delimiter, decimal mark, where the units are given, and the spelling of the unit do not
+    change the numbers read: each equals pint's conversion of the value written (``degC``
+    unchanged; pint: ppm = 1e-6)."""
+    from egressmargin.histories import read_scenario
+    from egressmargin.study import load_study
+
+    if decimal == delimiter:
+        decimal = "."
+    cell = (lambda x: repr(float(x)).replace(".", decimal))
+    names = ["Time", "T", "CO"]
+    units = ["s", t_unit, co_unit]
+    rows = [[cell(10.0 * i), cell(v), cell(co)] for i, v in enumerate(temps)]
+    if where == "header":
+        lines = [[f"{n} [{u}]" for n, u in zip(names, units)]] + rows
+    elif where == "above":
+        lines = [units, names] + rows
+    elif where == "below":
+        lines = [names, units] + rows
+    else:
+        lines = [names] + rows
+    fmt = "".join([f"    delimiter: {'tab' if delimiter == chr(9) else repr(delimiter)}\n",
+                   f"    decimal: '{decimal}'\n",
+                   f"    units_row: {where}\n" if where in ("above", "below") else ""])
+    study = _LAYOUT_STUDY.format(
+        format=fmt, time="{column: Time, unit: s}" if where == "study" else "Time",
+        temp=f"{{column: T, unit: '{t_unit}'}}" if where == "study" else "T",
+        co=f"{{column: CO, unit: '{co_unit}'}}" if where == "study" else "CO")
+    text = "\n".join(delimiter.join(r) for r in lines) + "\n"
+    data, _ = read_scenario(load_study(make_study(study, csv=text)).scenarios[0])
+    assert data.t_s == pytest.approx([10.0 * i for i in range(len(temps))], abs=1e-9)
+    assert data.series["temperature"][0] == pytest.approx(temps, rel=1e-12, abs=1e-9)
+    assert data.series["co"][0] == pytest.approx([co * 1e-6] * len(temps), rel=1e-12, abs=1e-15)

@@ -19,6 +19,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from egressmargin.errors import InputError
 from egressmargin.histories import read_scenario
 from egressmargin.study import load_study
 from egressmargin.units import (INTERNAL_UNITS, UnitProblem, check_unit, from_internal, parse_quantity,
@@ -206,11 +207,24 @@ def test_each_way_of_giving_a_unit_gives_pints_conversion(kind, make_study):
     assert as_read == {"time": "min", "temperature": "degF", "co": "percent"}
 
 
-def test_the_study_unit_wins_over_the_header_unit(make_study):
-    """Order of precedence (contract, "Units"): the ``unit:`` key, then the header, then a units row."""
+def test_a_study_unit_that_disagrees_with_the_header_is_an_input_error(make_study):
+    """Places that give a unit (contract, "Units": the ``unit:`` key, the header, a units row)
+    must agree: ``K`` over a ``[degF]`` header names both places (issue 13 item 4), where a
+    precedence rule would read 68..302 as kelvin silently."""
     text, csv = _variant("header")
     text = text.replace("temperature: T_hall", "temperature: {column: T_hall, unit: K}")
-    # values 68..302 read as kelvin: far below 0 degC but above absolute zero; pint converts
+    with pytest.raises(InputError) as exc:
+        read_scenario(load_study(make_study(text, csv)).scenarios[0])
+    (problem,) = exc.value.problems
+    assert "column 'T_hall [degF]'" in problem.where
+    assert "found the unit 'K' in the study" in problem.message and "study.yaml:9" in problem.message
+    assert "'degF' in the header 'T_hall [degF]'" in problem.message
+
+
+def test_agreeing_units_in_two_places_are_read(make_study):
+    """``degF`` in the study and ``[degF]`` in the header agree: pint's conversion, no problem."""
+    text, csv = _variant("header")
+    text = text.replace("temperature: T_hall", "temperature: {column: T_hall, unit: degF}")
     data, _ = read_scenario(load_study(make_study(text, csv)).scenarios[0])
-    np.testing.assert_allclose(data.series["temperature"][0], pint_to(np.array(_T_DEGF), "K", UREG.degC),
+    np.testing.assert_allclose(data.series["temperature"][0], pint_to(np.array(_T_DEGF), UREG.degF, UREG.degC),
                                rtol=1e-12)

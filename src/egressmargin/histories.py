@@ -8,6 +8,7 @@ with NaN rows where a location has no such series.
 
 from __future__ import annotations
 
+import csv
 import hashlib
 import re
 from dataclasses import dataclass, field
@@ -17,7 +18,7 @@ import numpy as np
 
 from .errors import InputError, Problem
 from .study import SERIES_KEYS, ScenarioSpec, SeriesRef, did_you_mean
-from .units import UnitProblem, check_unit, to_internal
+from .units import check_unit, is_unit, same_unit, to_internal
 
 _HEADER_UNIT = re.compile(r"^\s*(.*?)\s*\[\s*([^\]]*?)\s*\]\s*$")
 
@@ -89,53 +90,161 @@ def _split_header(name: str) -> tuple[str, str | None]:
     return str(name).strip(), None
 
 
+#: Longest column name quoted in a message, and most names listed (a message never
+#: dumps a whole header: an export can have thousands of columns).
+NAME_CHARS = 40
+NAMES_LISTED = 12
+
+
+def _short(name) -> str:
+    text = str(name)
+    return text if len(text) <= NAME_CHARS else text[:NAME_CHARS - 1] + "…"
+
+
+def _listing(names) -> str:
+    names = list(names)
+    shown = ", ".join(_short(n) for n in names[:NAMES_LISTED])
+    return shown + (f" … ({len(names)} columns)" if len(names) > NAMES_LISTED else "")
+
+
+def _first_lines(raw: bytes, n: int) -> list[bytes]:
+    """The first ``n`` lines of ``raw`` without splitting the whole file."""
+    out, pos = [], 0
+    while len(out) < n and pos < len(raw):
+        end = raw.find(b"\n", pos)
+        end = len(raw) if end < 0 else end
+        out.append(raw[pos:end].rstrip(b"\r"))
+        pos = end + 1
+    return out
+
+
+def _cells(line: bytes, delimiter: str, fname: str, lineno: int) -> list[str]:
+    try:
+        text = line.decode("utf-8-sig") if lineno == 1 else line.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise InputError([Problem(f"{fname}:{lineno}", f"cannot read line {lineno} as UTF-8 text ({exc.reason}); "
+                                  "expected a UTF-8 (or ASCII) CSV file")]) from None
+    return [c.strip() for c in next(csv.reader([text], delimiter=delimiter, skipinitialspace=True), [])]
+
+
+def _is_number(cell: str, decimal: str) -> bool:
+    try:
+        float(cell.replace(decimal, ".") if decimal != "." else cell)
+    except ValueError:
+        return False
+    return True
+
+
+def _looks_like_units(cells: list[str], decimal: str) -> bool:
+    """A row of unit strings: no cell is a number and most non-blank cells are units pint knows."""
+    filled = [c for c in cells if c]
+    if not filled or any(_is_number(c, decimal) for c in filled):
+        return False
+    known = sum(is_unit(c) for c in filled)
+    return known * 2 >= len(filled)
+
+
+def _layout(spec, raw: bytes, fname: str, wanted: list[str]):
+    """Where the names, the units row and the data are; one clear hint when the file's layout is not
+    the one declared (a units row above or below the names, another delimiter).
+
+    Returns (names, units, names_line, units_at, data_line0): the column names, the units
+    row's cells (empty without one), the 1-based line of the names, the 0-based line of the
+    units row (None without one) and the 1-based line of the first data row.
+    """
+    delimiter = getattr(spec, "delimiter", ",") or ","
+    decimal = getattr(spec, "decimal", ".") or "."
+    declared = spec.units_row            # False, "above" or "below" (true means below)
+    declared = "below" if declared is True else declared
+    lines = _first_lines(raw, 3)
+    if not lines or not lines[0].strip():
+        raise InputError([Problem(fname, "no columns found; expected a header row naming the columns")])
+    rows = [_cells(line, delimiter, fname, i + 1) for i, line in enumerate(lines)]
+    first = lines[0].decode("utf-8-sig", errors="replace")
+    if delimiter == ",":
+        for other, name in ((";", "semicolon"), ("\t", "tab")):
+            if first.count(other) > first.count(","):
+                hint = " (and decimal: ',' if numbers are written like 1,5)" if other == ";" else ""
+                raise InputError([Problem(f"{fname}:1", f"the header has {first.count(other)} {name}s and "
+                                          f"{first.count(',')} commas: the file looks {name}-delimited; expected "
+                                          f"commas, or declare delimiter: {'tab' if other == chr(9) else repr(other)} on the scenario "
+                                          f"({spec.where}){hint}")])
+    names_at = 1 if declared == "above" else 0
+    if declared == "above" and len(rows) < 2:
+        raise InputError([Problem(fname, "units_row: above, but the file has only one line; expected a units "
+                                  "row, then the names row, then data")])
+    names = rows[names_at]
+    base = {_split_header(h)[0] for h in names} | set(names)
+    missing = [c for c in wanted if c not in base]
+    if declared != "above" and missing and len(rows) > 1:
+        below = {_split_header(h)[0] for h in rows[1]} | set(rows[1])
+        if all(c in below for c in missing):
+            what = (f"line 1 looks like a units row ({_listing(rows[0])}); declare units_row: above on the "
+                    f"scenario ({spec.where})") if _looks_like_units(rows[0], decimal) else \
+                (f"line 1 holds {_listing(rows[0])}; expected the names on line 1 (or a units row there with "
+                 f"units_row: above on the scenario, {spec.where})")
+            raise InputError([Problem(f"{fname}:1", f"the mapped columns ({_listing(missing)}) are named on line "
+                                      f"2, and {what}")])
+    units_at = 0 if declared == "above" else (1 if declared == "below" else None)
+    mapped = [i for i, h in enumerate(names) if h in wanted or _split_header(h)[0] in wanted]
+    if declared == "below" and len(rows) > 1:
+        cells = [rows[1][i] for i in mapped if i < len(rows[1])]
+        if cells and all(_is_number(c, decimal) for c in cells if c):
+            raise InputError([Problem(f"{fname}:2", f"units_row: below, but line 2 holds numbers "
+                                      f"({_listing(cells)}); expected a units row under the names, or remove "
+                                      f"units_row from the scenario ({spec.where})")])
+    if not declared and len(rows) > 1:
+        cells = [rows[1][i] for i in mapped if i < len(rows[1])]
+        if cells and _looks_like_units(cells, decimal):
+            raise InputError([Problem(f"{fname}:2", f"line 2 looks like a units row ({_listing(cells)}); declare "
+                                      f"units_row: below (or true) on the scenario ({spec.where}), or remove the "
+                                      "row")])
+    units = rows[units_at] if units_at is not None and units_at < len(rows) else []
+    data_line0 = 2 + (1 if declared else 0)
+    return names, units, names_at + 1, units_at, data_line0
+
+
 def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[ScenarioData, list[Problem]]:
     """Read and check the histories of ``spec`` (or of ``path``, a resolution's CSV with the same map).
 
     Returns the data and the warnings (likely unit slips); raises InputError with every error.
+    Only the series keys some location maps are allocated (memory in proportion to the
+    series used).
     """
     import pandas as pd
 
     path = Path(path or spec.histories)
     problems: list[Problem] = []
     fname = str(path)
-    read_opts = {"skipinitialspace": True}
     try:
-        head = pd.read_csv(path, nrows=1, dtype=str, keep_default_na=False, **read_opts)
+        raw = path.read_bytes()
     except FileNotFoundError:
         raise InputError([Problem(fname, "file not found; expected the scenario's CSV histories")]) from None
-    except Exception as exc:  # pandas raises many parser types; all are the user's file
-        raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected a "
-                                  "comma-separated file with one header row")]) from None
-    if head.shape[1] == 0:
-        raise InputError([Problem(fname, "no columns found; expected a header row naming the columns")])
-    digest = _check_field_counts(path, fname)   # reads the bytes once: also the file's hash
-    all_headers = list(head.columns)
-    headers = {}
-    for h in all_headers:
-        base, unit = _split_header(h)
-        headers.setdefault(base, (h, unit))
-        headers.setdefault(str(h).strip(), (h, unit))
-    units_row = {}
-    first_data = 0
-    if spec.units_row:
-        if len(head) == 0:
-            problems.append(Problem(fname, "units_row is true but the file has no rows; expected a units row"))
-        else:
-            units_row = {h: str(head[h].iloc[0]).strip() for h in all_headers}
-            first_data = 1
-    # CSV line of data row i (1-based file lines: header is line 1)
-    line0 = 2 + first_data
+    except OSError as exc:
+        raise InputError([Problem(fname, f"cannot read the file ({exc.strerror}); expected the scenario's CSV "
+                                  "histories")]) from None
+    delimiter = getattr(spec, "delimiter", ",") or ","
+    decimal = getattr(spec, "decimal", ".") or "."
     wanted = [spec.time.column] if spec.time is not None else []
     for loc in spec.locations:
         wanted += [ref.column for ref in loc.series.values()]
         wanted += loc.profile.columns if loc.profile is not None else []
-    needed = sorted({headers[c][0] for c in wanted if c in headers}, key=all_headers.index)
-    skip = [1] if first_data else None
+    names, units_cells, names_line, units_at, line0 = _layout(spec, raw, fname, wanted)
+    digest = _check_field_counts(raw, path, fname, delimiter, skip=names_line - 1)
+    split = [_split_header(h) for h in names]
+
+    def candidates(col: str) -> list[int]:
+        return [i for i, (h, (b, u)) in enumerate(zip(names, split)) if h == col or (u is not None and b == col)]
+
+    units_line = (units_at + 1) if units_at is not None else None
+    skip = [0] if units_at is None else [0, 1]
+    needed = sorted({i for c in wanted for i in candidates(c)})
+    read_opts = {"skipinitialspace": True, "sep": delimiter, "decimal": decimal, "header": None,
+                 "skiprows": skip}
     # Fast path: the C parser straight to floats. Any column it cannot parse cleanly is
     # read again as text, so that the message can quote the offending cell.
     try:
-        num = pd.read_csv(path, usecols=needed, skiprows=skip, dtype=float, **read_opts) if needed else None
+        num = pd.read_csv(path, usecols=needed, dtype=float, **read_opts) if needed else None
     except Exception:  # a non-numeric cell or a ragged row: fall back to the text path
         num = None
     text_frame = []
@@ -143,48 +252,95 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
     def as_text():
         if not text_frame:
             try:
-                text_frame.append(pd.read_csv(path, usecols=needed, skiprows=skip, dtype=str,
-                                              keep_default_na=False, **read_opts))
+                text_frame.append(pd.read_csv(path, usecols=needed, dtype=str, keep_default_na=False, **read_opts))
+            except pd.errors.EmptyDataError:   # a header (and units row) with no data rows
+                text_frame.append(pd.DataFrame({i: pd.Series([], dtype=str) for i in needed}))
             except Exception as exc:
                 raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected "
                                           "a comma-separated file with one header row")]) from None
         return text_frame[0]
 
-    n = len(num) if num is not None else (len(as_text()) if needed else max(len(head) - first_data, 0))
+    if num is not None:
+        n = len(num)
+    elif needed:
+        n = len(as_text())
+    else:
+        n = max(sum(1 for line in raw.splitlines() if line.strip()) - len(skip), 0)
+    decimal_hint = []
+
+    def unit_of(ref, quantity, what, i):
+        """The series' unit from every place that gives one; None (with a problem) when none or they disagree."""
+        header = names[i]
+        places = []
+        if ref.unit:
+            places.append((f"the study ({ref.where})", ref.unit))
+        if split[i][1]:
+            places.append((f"the header '{_short(header)}'", split[i][1]))
+        if i < len(units_cells) and units_cells[i]:
+            places.append((f"the units row (line {units_line})", units_cells[i]))
+        if not places and quantity == "time":
+            places.append(("the default for time", "s"))   # contract: seconds unless a unit is given
+        if not places:
+            problems.append(Problem(f"{fname} column '{_short(header)}'", f"no unit for {what} (mapped at "
+                                    f"{ref.where}); expected a unit: write the header as '{ref.column} [unit]', "
+                                    "give {column: ..., unit: ...} in the study, or set units_row: true (a units "
+                                    "row under the names; above for one over them)"))
+            return None
+        for place, unit in places:
+            msg = check_unit(unit, quantity)
+            if msg:
+                problems.append(Problem(f"{fname} column '{_short(header)}'", f"{what}: {msg} (unit from {place})"))
+                return None
+        (p0, u0) = places[0]
+        for place, unit in places[1:]:
+            if not same_unit(u0, unit, quantity):
+                problems.append(Problem(f"{fname} column '{_short(header)}'", f"{what}: found the unit '{u0}' in "
+                                        f"{p0} and '{unit}' in {place}; expected one unit: remove one or make "
+                                        "them agree"))
+                return None
+        return u0
 
     def column(ref: SeriesRef, quantity: str, what: str):
-        if ref.column not in headers:
-            problems.append(Problem(f"{fname} column '{ref.column}'", f"not in the file (mapped at {ref.where}); "
-                                    f"expected one of {', '.join(map(str, all_headers[:12]))}"
-                                    f"{' …' if len(all_headers) > 12 else ''}{did_you_mean(ref.column, headers)}"))
+        found = candidates(ref.column)
+        if not found:
+            problems.append(Problem(f"{fname} column '{_short(ref.column)}'", f"not in the file (mapped at "
+                                    f"{ref.where}); expected one of {_listing(names)}"
+                                    f"{did_you_mean(ref.column, [b for b, _ in split])}"))
             return None, None
-        header, header_unit = headers[ref.column]
-        unit = ref.unit or header_unit or (units_row.get(header) or None)
-        if not unit and quantity == "time":
-            unit = "s"   # contract: the time column is in seconds unless a unit is given
-        if not unit:
-            problems.append(Problem(f"{fname} column '{header}'", f"no unit for {what} (mapped at {ref.where}); "
-                                    f"expected a unit: write the header as '{ref.column} [unit]', give "
-                                    "{column: ..., unit: ...} in the study, or set units_row: true"))
+        if len(found) > 1:
+            both = ", ".join(f"column {i + 1} '{_short(names[i])}'" for i in found[:NAMES_LISTED])
+            problems.append(Problem(f"{fname}:{names_line} column '{_short(ref.column)}'", f"{len(found)} columns "
+                                    f"match {what} (mapped at {ref.where}): {both}; expected exactly one column of "
+                                    "that name: rename or remove the others"))
             return None, None
-        msg = check_unit(unit, quantity)
-        if msg:
-            problems.append(Problem(f"{fname} column '{header}'", f"{what}: {msg}"))
+        i = found[0]
+        header = names[i]
+        unit = unit_of(ref, quantity, what, i)
+        if unit is None:
             return None, None
-        values = num[header].to_numpy(dtype=float) if num is not None else None
+        values = num[i].to_numpy(dtype=float) if num is not None else None
         if values is None or not np.isfinite(values).all():
-            text = as_text()[header].astype(str).str.strip()
-            values = pd.to_numeric(text, errors="coerce").to_numpy(dtype=float)
+            text = as_text()[i].astype(str).str.strip()
+            cleaned = text.str.replace(decimal, ".", regex=False) if decimal != "." else text
+            values = pd.to_numeric(cleaned, errors="coerce").to_numpy(dtype=float)
             bad = ~np.isfinite(values)
             if bad.any():
-                i = int(np.argmax(bad))
-                found = text.iloc[i]
-                problems.append(Problem(f"{fname}:{line0 + i} column '{header}' row {i + 1}",
-                                        f"found {'a blank' if found == '' else repr(found)}"
+                j = int(np.argmax(bad))
+                found_cell = text.iloc[j]
+                if decimal == "." and _DECIMAL_COMMA.match(found_cell):
+                    if not decimal_hint:
+                        decimal_hint.append(1)
+                        problems.append(Problem(f"{fname}:{line0 + j} column '{_short(header)}' row {j + 1}",
+                                                f"found {found_cell!r}, a number with a decimal comma; expected a "
+                                                f"decimal point, or declare decimal: ',' on the scenario "
+                                                f"({spec.where})"))
+                    return None, None
+                problems.append(Problem(f"{fname}:{line0 + j} column '{_short(header)}' row {j + 1}",
+                                        f"found {'a blank' if found_cell == '' else repr(found_cell)}"
                                         f"{f' (and {int(bad.sum()) - 1} more)' if bad.sum() > 1 else ''}; "
                                         "expected a number"))
                 return None, None
-        return to_internal(values, unit, quantity), (header, unit)
+        return to_internal(values, unit, quantity), (header, unit, i)
 
     columns: list[ColumnRead] = []
     t_s = None
@@ -196,15 +352,16 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
                 problems.append(Problem(fname, f"{n} data row(s); expected at least two times"))
             d = np.diff(t_s)
             if (d <= 0).any():
-                i = int(np.argmax(d <= 0)) + 1
-                word = "repeats" if d[i - 1] == 0 else "goes backwards"
-                col_text = as_text()[info[0]]
-                problems.append(Problem(f"{fname}:{line0 + i} column '{info[0]}' row {i + 1}",
-                                        f"time {word} ({col_text.iloc[i - 1]} then {col_text.iloc[i]}); "
+                k = int(np.argmax(d <= 0)) + 1
+                word = "repeats" if d[k - 1] == 0 else "goes backwards"
+                col_text = as_text()[info[2]]
+                problems.append(Problem(f"{fname}:{line0 + k} column '{_short(info[0])}' row {k + 1}",
+                                        f"time {word} ({col_text.iloc[k - 1]} then {col_text.iloc[k]}); "
                                         "expected strictly increasing times"))
     L = len(spec.locations)
-    series = {k: np.full((L, n), np.nan) for k in SERIES_KEYS}
-    present = {k: np.zeros(L, bool) for k in SERIES_KEYS}
+    used = [k for k in SERIES_KEYS if any(k in loc.series for loc in spec.locations)]
+    series = {k: np.full((L, n), np.nan) for k in used}
+    present = {k: np.zeros(L, bool) for k in used}
     profiles = {}
     for li, loc in enumerate(spec.locations):
         for key, ref in loc.series.items():
@@ -212,7 +369,7 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
             if values is None:
                 continue
             columns.append(ColumnRead(info[0], key, loc.id, info[1]))
-            values = _plausible(key, values, ref, info, fname, line0, problems)
+            values = _plausible(key, values, ref, info[:2], fname, line0, problems)
             if values is not None:
                 series[key][li] = values
                 present[key][li] = True
@@ -223,7 +380,7 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
                 values, info = column(ref, "temperature", f"temperature profile at '{loc.id}'")
                 if values is not None:
                     columns.append(ColumnRead(info[0], "temperature_profile", loc.id, info[1]))
-                    temps.append(_plausible("temperature", values, ref, info, fname, line0, problems))
+                    temps.append(_plausible("temperature", values, ref, info[:2], fname, line0, problems))
             if len(temps) == len(loc.profile.columns) and all(t is not None for t in temps):
                 profiles[li] = (np.asarray(loc.profile.heights_m), np.vstack(temps), loc.profile.ceiling_m)
     if any(not p.warning for p in problems):
@@ -234,27 +391,32 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
                         columns), [p for p in problems if p.warning]
 
 
-def _check_field_counts(path: Path, fname: str) -> str:
+_DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+(?:[eE][-+]?\d+)?$")
+
+
+def _check_field_counts(raw: bytes, path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> str:
     """Raise InputError for a row with more or fewer fields than the header; return the SHA-256.
 
     Reading only the mapped columns would otherwise let a ragged row shift values into the
     wrong column silently. Counting separators is cheap; only when a count differs is the
-    file parsed in full, so that quoted fields holding commas are not mistaken for errors.
+    file parsed in full, so that quoted fields holding delimiters are not mistaken for errors.
+    ``skip`` lines above the names row (a units row above it) are counted too.
     """
     import pandas as pd
 
-    raw = path.read_bytes()
     lines = raw.splitlines()
     if not lines:
         return hashlib.sha256(raw).hexdigest()
-    n_sep = lines[0].count(b",")
-    if all(line.count(b",") == n_sep for line in lines[1:] if line.strip()):
+    sep = delimiter.encode()
+    n_sep = lines[skip].count(sep) if skip < len(lines) else lines[0].count(sep)
+    if all(line.count(sep) == n_sep for line in lines if line.strip()):
         return hashlib.sha256(raw).hexdigest()
     try:
-        pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True)
+        pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, sep=delimiter, header=None,
+                    skiprows=skip)
     except Exception as exc:
         raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected a "
-                                  "comma-separated file with one header row")]) from None
+                                  "delimited file with one header row")]) from None
     return hashlib.sha256(raw).hexdigest()
 
 

@@ -33,6 +33,11 @@ SCENARIO_KEYS = {"id", "title", "histories", "time", "units_row", "locations", "
 LOCATION_KEYS = {"id", "title", "temperature_profile", *SERIES_KEYS}
 ROUTE_KEYS = {"id", "title", "scenarios", "occupants", "detection", "alarm", "premovement", "path",
               "exposed_at", "movement", "exposure"}
+#: A scenario's CSV format: field delimiters it may declare (``delimiter:``), and decimal marks (``decimal:``).
+SCENARIO_KEYS = SCENARIO_KEYS | {"delimiter", "decimal"}
+DELIMITERS = {",": ",", ";": ";", "\t": "\t", r"\t": "\t", "tab": "\t", "|": "|"}
+DECIMALS = (".", ",")
+
 DEFAULT_SAMPLES = 2000
 #: Cap on the draws taken to settle a verdict whose interval straddles max_p_fail
 #: (project choice: enough to resolve p_fail = 0.05 to about +/-0.003 at 95 %).
@@ -81,13 +86,15 @@ class ScenarioSpec:
     title: str
     histories: Path
     time: SeriesRef
-    units_row: bool
+    units_row: bool | str           # False, "above" or "below" (a units row over or under the names)
     locations: list[LocationSpec]
     ambient_temperature_c: float | None = None
     ambient_o2: float | None = None
     resolutions: list[ResolutionSpec] = field(default_factory=list)
     where: str = ""
     ignition_s: float | None = None     # ignition on the file's clock; None: its first time
+    delimiter: str = ","
+    decimal: str = "."
 
 
 @dataclass
@@ -416,8 +423,11 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
         if "time" not in sc:
             ck.err(kp, "missing key 'time'; expected the name of the time column, e.g. time: Time")
         units_row = sc.get("units_row", False)
-        if not isinstance(units_row, bool):
-            ck.err(kp + ("units_row",), f"found {_show(units_row)}; expected true or false")
+        if units_row is True:
+            units_row = "below"
+        if units_row not in (False, "above", "below"):
+            ck.err(kp + ("units_row",), f"found {_show(units_row)}; expected above (a units row over the names), "
+                   "below or true (under the names), or false")
             units_row = False
         amb_t = amb_o2 = None
         if "ambient" in sc and ck.keys(sc["ambient"], kp + ("ambient",), {"temperature", "o2"}, "ambient"):
@@ -434,7 +444,30 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
         out.append(ScenarioSpec(sid, ck.text(sc.get("title"), kp + ("title",), default=sid), hist, time,
                                 units_row, locations, amb_t, amb_o2, resolutions, ck.doc.where(kp),
                                 ignition_s=ignition))
+        out[-1].delimiter, out[-1].decimal = _csv_format(ck, sc, kp)
     return out
+
+
+def _csv_format(ck, sc, kp) -> tuple[str, str]:
+    """The scenario's declared CSV delimiter and decimal mark (default ',' and '.')."""
+    delimiter, decimal = ",", "."
+    if "delimiter" in sc:
+        d = sc["delimiter"]
+        if not isinstance(d, str) or d not in DELIMITERS:
+            ck.err(kp + ("delimiter",), f"found {_show(d)}; expected one of "
+                   f"{', '.join(repr(k) for k in DELIMITERS)}")
+        else:
+            delimiter = DELIMITERS[d]
+    if "decimal" in sc:
+        d = sc["decimal"]
+        if d not in DECIMALS:
+            ck.err(kp + ("decimal",), f"found {_show(d)}; expected '.' or ','")
+        else:
+            decimal = d
+    if decimal == delimiter:
+        ck.err(kp + ("decimal",), f"the decimal mark {decimal!r} is also the delimiter; expected delimiter: ';' "
+               "with decimal: ','")
+    return delimiter, decimal
 
 
 def _resolutions(ck, value, kp, base) -> list[ResolutionSpec]:

@@ -157,6 +157,23 @@ def check_unit(unit: str, quantity: str) -> str | None:
     return None
 
 
+def is_unit(text: str) -> bool:
+    """True when pint (after :data:`UNIT_ALIASES`) knows ``text`` as a unit of any dimension.
+
+    Examples
+    --------
+    >>> is_unit("kW/m2"), is_unit("degC"), is_unit("T_hall")
+    (True, True, False)
+    """
+    if not str(text).strip():
+        return False
+    try:
+        registry().Unit(_clean(text)) if _clean(text) != "dimensionless" else None
+    except Exception:  # pint raises several types for unparsable strings
+        return False
+    return True
+
+
 def same_unit(a: str, b: str, quantity: str) -> bool:
     """True when units ``a`` and ``b`` convert ``quantity`` identically (``ppmv`` and ``ppm``, ``C``
     and ``degC``); both must be valid units of ``quantity``.
