@@ -130,17 +130,20 @@ def _write(tmp_path, text, name="pairs.csv"):
 def test_read_pairs_good_file(tmp_path):
     path = _write(
         tmp_path,
-        "Quantity, Measured, Predicted, sigma_exp\n"
-        "temperature, 100, 110, 0.07\n"
-        "temperature, 200, 190, 0.07\n"
+        "Quantity, Measured, Predicted, sigma_exp, ambient, unit\n"
+        "temperature, 120, 130, 0.07, 20, degC\n"
+        "temperature, 220, 210, 0.07, 20, degC\n"
         "\n"
-        "CO, 50, 60, 0.10\n"
-        "co, 80, 90, 0.10\n"
-        "co, 120, 130, 0.10\n",
+        "CO, 50, 60, 0.10,, ppm\n"
+        "co, 80, 90, 0.10,, ppm\n"
+        "co, 120, 130, 0.10,, ppm\n",
     )
     pairs = read_pairs(path)
     assert list(pairs) == ["temperature", "co"]
+    # rises above the 20 degC ambient (the basis the run applies temperature on)
     np.testing.assert_array_equal(pairs["temperature"]["measured"], [100.0, 200.0])
+    assert pairs["temperature"]["basis"] == "rise" and pairs["co"]["basis"] == "as-given"
+    assert pairs["temperature"]["range"] == {"min": 120.0, "max": 220.0, "unit": "degC"}
     np.testing.assert_array_equal(pairs["co"]["predicted"], [60.0, 90.0, 130.0])
     assert pairs["co"]["sigma_exp"] == pytest.approx(0.10)
     assert pairs["co"]["lines"] == [5, 6, 7]  # header is line 1, blank line 4
@@ -162,7 +165,7 @@ def test_read_pairs_default_sigma_and_mixed_sigma(tmp_path):
     )
     pairs = read_pairs(path)
     assert pairs["o2"]["sigma_exp"] == pytest.approx(math.sqrt((0.03**2 + 0.04**2) / 2))
-    assert len(pairs["o2"]["warnings"]) == 1
+    assert len([w for w in pairs["o2"]["warnings"] if "sigma_exp differs" in w]) == 1
 
 
 def test_read_pairs_reports_every_problem_located(tmp_path):

@@ -82,10 +82,14 @@ def build_parser() -> argparse.ArgumentParser:
     f = sub.add_parser("fit-uncertainty", help="derive a model-uncertainty table from measured/predicted pairs")
     f.add_argument("pairs", type=Path)
     f.add_argument("--out", type=Path, help="YAML table to write (default: print it)")
-    f.add_argument("--plot", type=Path, help="predicted-vs-measured plot (.svg, .png or .pdf)")
+    f.add_argument("--plot", type=Path, help="fit figure: ratio against size and normal quantiles (.svg, .png or .pdf)")
+    f.add_argument("--force", action="store_true", help="replace an existing --out or --plot file")
     f.add_argument("--source", default=None, help="the table's source line (default: names the pairs file)")
     f.add_argument("--sigma-exp", type=float, default=None,
                    help="experimental relative standard deviation for rows without a sigma_exp column")
+    f.add_argument("--basis", action="append", default=[], metavar="QUANTITY=BASIS",
+                   help="what a quantity's values are when the pairs file does not say: rise, depletion or "
+                        "as-given (e.g. temperature=rise); repeat per quantity")
     cmp = sub.add_parser("compare", help="compare several runs of one study side by side (what-ifs)")
     cmp.add_argument("results", type=Path, nargs="+", metavar="RESULTS.json",
                      help="results.json files; the first is the baseline")
@@ -249,12 +253,24 @@ def _fit(args) -> int:
     from datetime import date
 
     from . import uncertainty_fit as uf
-    pairs = uf.read_pairs(args.pairs, default_sigma_exp=args.sigma_exp)
+    from .errors import Problem, raise_if_any
+    problems = uf.output_problems(args.pairs, args.out, args.plot, force=args.force)
+    basis = {}
+    for item in args.basis:
+        q, sep, word = item.partition("=")
+        if not sep or not q.strip() or not word.strip():
+            problems.append(Problem(f"--basis {item}", "expected QUANTITY=BASIS, e.g. temperature=rise"))
+        else:
+            basis[q.strip().lower()] = word.strip().lower()
+    raise_if_any(problems)
+    pairs = uf.read_pairs(args.pairs, default_sigma_exp=args.sigma_exp, basis=basis)
     source = args.source or f"fitted from the measured/predicted pairs in {args.pairs.name}"
     table = uf.fit_table(pairs, source, date.today().isoformat())
     for q, ws in (table.get("fitted", {}).get("warnings") or {}).items():
         for w in ws:
             print(f"{args.pairs}: warning: {q}: {w}", file=sys.stderr)
+    if args.plot:
+        uf.plot_fit(pairs, table, args.plot)
     if args.out:
         uf.write_table(table, args.out)
         print(f"wrote {args.out}")
@@ -262,7 +278,6 @@ def _fit(args) -> int:
         import yaml
         print(yaml.safe_dump(table, sort_keys=False), end="")
     if args.plot:
-        uf.plot_fit(pairs, table, args.plot)
         print(f"wrote {args.plot}")
     return 0
 

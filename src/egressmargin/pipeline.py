@@ -367,12 +367,21 @@ class _MoreSamples:
 
 
 def _outside_range(table, prep, data, cid, li, raw_t, times, factors) -> str | None:
-    """Note if a prediction used up to the crossing lies outside the table's validated range."""
+    """A warning, in words, where predictions that matter lie outside the table's validated range.
+
+    The predictions that matter run up to the latest crossing (raw and every corrected draw), or to
+    the end of the data when some draw does not reach the limit; the ambient stretch before a series
+    first reaches the range is not counted (:func:`uncertainty.range_excursion`). The sentence names
+    the quantity, how far and when it leaves the range, and the range; the caller adds the scenario,
+    location and criterion.
+    """
+    from .uncertainty import FALLING, range_excursion
+
     if table is None:
         return None
-    t_end = np.nanmax(np.concatenate([[raw_t], times[np.isfinite(times)]])) if np.isfinite(times).any() or \
-        np.isfinite(raw_t) else prep.t_s[-1]
-    upto = prep.t_s <= t_end + 1e-9
+    reached_all = bool(np.isfinite(raw_t)) and bool(np.isfinite(times).all())
+    t_end = float(np.nanmax(np.append(times, raw_t))) if reached_all else float(prep.t_s[-1])
+    upto = f"up to the crossing at {t_end:.0f} s" if reached_all else f"up to the end of the data ({t_end:.0f} s)"
     notes = []
     for q in aset.CRITERION_QUANTITIES[cid]:
         if q == "smoke":
@@ -388,11 +397,36 @@ def _outside_range(table, prep, data, cid, li, raw_t, times, factors) -> str | N
         st = table.quantities[sk]
         if st.range_min is None:
             continue
-        v = series[upto]
-        v = v[np.isfinite(v)]
-        if v.size and (v.max() > st.range_max * (1 + 1e-9) or v.min() < st.range_min * (1 - 1e-9) - 1e-12):
-            notes.append(f"{sk} outside the validated range {st.range_text}")
-    return ("corrected with statistics outside their validated range: " + "; ".join(notes)) if notes else None
+        exc = range_excursion(prep.t_s, series, t_end, st.range_min, st.range_max, falling=sk in FALLING)
+        if exc is not None:
+            notes.append(_excursion_words(sk, st, exc, upto))
+    return "; ".join(notes) if notes else None
+
+
+def _excursion_words(q, st, exc, upto) -> str:
+    """One sentence on a range excursion, in the unit the table gives its range in."""
+    from .uncertainty import FALLING
+    from .units import display_unit, from_internal
+
+    unit = st.range_unit or display_unit(q)
+
+    def show(x):
+        return float(from_internal(np.array([x]), q, unit)[0])
+
+    lo, hi = show(st.range_min), show(st.range_max)
+    head = f"{q} outside the validated range ({st.range_text or f'{lo:.4g} to {hi:.4g} {unit}'}): predictions {upto}"
+    tail = "; corrected with statistics not validated there"
+    if exc["stays_outside"]:
+        falls = q in FALLING
+        value = show(exc["trough"] if falls else exc["peak"])
+        return (f"{head} stay {'above' if falls else 'below'} it, {'lowest' if falls else 'highest'} "
+                f"{value:.4g} {unit}{tail}")
+    parts = []
+    if exc["above_by"] > 0:
+        parts.append(f"reach {show(exc['peak']):.4g} {unit}, {show(exc['peak']) - hi:.3g} {unit} above it")
+    if exc["below_by"] > 0:
+        parts.append(f"fall to {show(exc['trough']):.4g} {unit}, {lo - show(exc['trough']):.3g} {unit} below it")
+    return f"{head} " + " and ".join(parts) + f", first at {exc['first_outside_s']:.0f} s{tail}"
 
 
 def _plot_locations(prep, crit, factors, corr) -> dict:

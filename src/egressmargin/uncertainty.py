@@ -57,6 +57,7 @@ class QuantityStats:
     range_text: str = ""
     n_pairs: int | None = None
     basis: str | None = None         # as the table states it; None when the table does not say
+    range_unit: str | None = None    # the unit the table gives its range in (for messages)
 
 
 @dataclass
@@ -175,7 +176,7 @@ def load_table(path: Path) -> UncertaintyTable:
             problems.append(Problem(doc.where(kp + ("basis",)), _basis_mismatch(q, basis)))
         if len(vals) == 3:
             quantities[q] = QuantityStats(vals["bias"], vals["sigma_model"], vals["sigma_exp"], rmin, rmax, rtext,
-                                          spec.get("n_pairs"), basis)
+                                          spec.get("n_pairs"), basis, unit if rmin is not None else None)
     if problems:
         raise InputError(problems)
     params = data.get("parameters") or {}
@@ -209,6 +210,67 @@ def _range_value(v, unit, q):
     if unit is not None and isinstance(v, (int, float)) and not isinstance(v, bool):
         return parse_quantity(f"{v} {unit}", q)
     return parse_quantity(v, q)
+
+
+#: Quantities whose series fall as a fire grows (the others rise): their ambient side of a
+#: validated range is above it.
+FALLING = frozenset({"o2", "visibility", "layer_height"})
+
+
+def range_excursion(t_s, values, t_end: float, low: float, high: float, falling: bool = False) -> dict | None:
+    """How far the predictions that matter leave a validated range, or None if they do not.
+
+    Parameters
+    ----------
+    t_s : array_like
+        Times [s].
+    values : array_like
+        The predicted series at those times [internal unit of the quantity].
+    t_end : float
+        Last time that matters [s]: the latest crossing, or the end of the data when the
+        limit is not reached in every draw.
+    low, high : float
+        The validated range [same unit as ``values``].
+    falling : bool, optional
+        True for a quantity that falls as the fire grows (O2, visibility, layer height).
+
+    Returns
+    -------
+    dict or None
+        ``{"peak", "trough"}`` the largest and smallest counted values, ``"above_by"``
+        and ``"below_by"`` how far they pass ``high`` and ``low`` (0 when they do not),
+        ``"first_outside_s"`` the first time a counted value is outside, and
+        ``"stays_outside"`` (True when the series never comes to the range from its
+        ambient side); None when no counted value is outside.
+
+    Notes
+    -----
+    Values up to ``t_end`` count, except the leading stretch on the ambient side before
+    the series first reaches the range (for a rising quantity, values below ``low``
+    until it first reaches ``low``; for a falling one, values above ``high`` until it
+    first reaches ``high``): a start at 19.26 degC under a range of 20 to 200 degC is the
+    ambient before the fire, not a prediction outside the range. A series that never
+    reaches the range from its ambient side is reported (``stays_outside``). Bounds are
+    compared with a relative tolerance of 1e-9.
+    """
+    t = np.asarray(t_s, float)
+    v = np.asarray(values, float)
+    keep = (t <= t_end + 1e-9) & np.isfinite(v)
+    t, v = t[keep], v[keep]
+    if v.size == 0:
+        return None
+    tol = 1e-9 * max(abs(low), abs(high), 1e-300)
+    reached = (v <= high + tol) if falling else (v >= low - tol)
+    stays = not reached.any()
+    if not stays:
+        start = int(np.argmax(reached))
+        t, v = t[start:], v[start:]
+    outside = (v > high + tol) | (v < low - tol)
+    if not outside.any():
+        return None
+    peak, trough = float(v.max()), float(v.min())
+    return {"peak": peak, "trough": trough, "above_by": max(peak - high, 0.0), "below_by": max(low - trough, 0.0),
+            "first_outside_s": float(t[np.argmax(outside)]), "stays_outside": stays}
 
 
 def draw_factors(table: UncertaintyTable | None, quantities, n: int, rng: np.random.Generator) -> dict:

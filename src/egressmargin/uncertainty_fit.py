@@ -24,21 +24,31 @@ from __future__ import annotations
 import csv
 import difflib
 import math
+import os
+import tempfile
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 import numpy as np
 
 from egressmargin.errors import Problem, raise_if_any
+from egressmargin.study import did_you_mean
+from egressmargin.uncertainty import APPLIED_BASIS, BASES, applied_basis
+from egressmargin.units import check_unit
 
 __all__ = [
     "FLOOR_FRACTION",
+    "CHECK_ALPHA",
     "METHOD",
     "MIN_PAIRS",
     "MIN_PAIRS_ADVISED",
+    "PLOT_SUFFIXES",
     "QUANTITIES",
+    "check_warnings",
+    "fit_checks",
     "fit_quantity",
     "fit_table",
+    "output_problems",
     "plot_fit",
     "read_pairs",
     "write_table",
@@ -76,7 +86,7 @@ MIN_PAIRS: int = 2
 MIN_PAIRS_ADVISED: int = 10
 
 _REQUIRED = ("quantity", "measured", "predicted")
-_OPTIONAL = ("sigma_exp",)
+_OPTIONAL = ("sigma_exp", "ambient", "basis", "unit")
 _SIG_DIGITS = 4
 
 
@@ -208,7 +218,9 @@ def _parse_positive(text: str) -> float | None:
 
 
 def read_pairs(
-    path: str | Path, default_sigma_exp: float | None = None
+    path: str | Path,
+    default_sigma_exp: float | None = None,
+    basis: Mapping[str, str] | None = None,
 ) -> dict[str, dict[str, Any]]:
     """Read paired measured/predicted values from a CSV file, checking everything.
 
@@ -216,29 +228,51 @@ def read_pairs(
     ----------
     path : str or Path
         CSV file with a header row and columns ``quantity``, ``measured``,
-        ``predicted`` and optionally ``sigma_exp`` (header names are matched without
-        regard to case or surrounding spaces; other columns are ignored).
+        ``predicted``, and optionally ``sigma_exp``, ``ambient``, ``basis`` and ``unit``
+        (header names are matched without regard to case or surrounding spaces; other
+        columns are ignored).
     default_sigma_exp : float, optional
         Experimental relative standard deviation sigma_E [-] for rows without one
         (no ``sigma_exp`` column, or an empty cell).
+    basis : mapping, optional
+        ``{quantity: basis}`` for quantities whose rows do not say: what the values in
+        the file are, one of ``rise``, ``depletion``, ``as-given`` (see Notes).
 
     Returns
     -------
     dict
         ``{quantity: {"measured": ndarray, "predicted": ndarray, "sigma_exp": float,
-        "lines": list[int], "file": str, "warnings": list[str]}}``, quantities in the
-        order they first appear. ``lines`` are the file's line numbers (header = 1).
+        "lines": list[int], "file": str, "warnings": list[str], "basis": str or None,
+        "unit": str or None, "range": {min, max, unit} or None}}``, quantities in the
+        order they first appear. ``measured`` and ``predicted`` are on the fitted basis
+        (rises or depletions when an ambient was given); ``range`` is the span of the
+        measured values as written in the file, in their ``unit``. ``lines`` are the
+        file's line numbers (header = 1).
 
     Raises
     ------
     egressmargin.errors.InputError
-        With every problem found: missing columns; values that are not positive
-        numbers (file, line, column, value found); unknown quantity names (with a
-        did-you-mean); a row without sigma_E and no default; a quantity with fewer than
-        2 pairs.
+        With every problem found: missing columns; values that are not numbers (file,
+        line, column, value found); values, rises or depletions that are not positive;
+        unknown quantity names or basis words (with a did-you-mean); units that are not
+        units of the quantity or differ between its rows; an ambient or basis that does
+        not fit the quantity; a row without sigma_E and no default; a quantity with
+        fewer than 2 pairs.
 
     Notes
     -----
+    The run applies the temperature row to the rise above ambient and the O2 row to the
+    depletion below ambient (contract, "Model-uncertainty file"), so the pairs must be
+    fitted on that basis: for absolute values with an ambient A per row, the fit uses
+    E - A and M - A for temperature, A - E and A - M for O2, and the table records
+    ``basis: rise`` / ``basis: depletion``. Without an ambient, the ``basis`` column
+    (or the ``basis`` argument) says what the values already are; ``as-given``
+    temperature or O2 values are fitted as they are and recorded as such (the run will
+    refuse that table, and a warning says so). Temperature or O2 rows with neither an
+    ambient nor a basis get a warning and no recorded basis (the run reads such a table
+    with the contract's convention and warns again). Other quantities are applied as
+    given; an ambient or another basis for them is an error.
+
     sigma_E may differ between rows of one quantity (several test series). Then the
     value used is the root mean square, sqrt(mean(sigma_E,i^2)): sigma_E enters the fit
     as a variance subtracted from the variance of ln(M/E), so the variances are
@@ -268,6 +302,10 @@ def read_pairs(
                 )
             )
             default_sigma_exp = None
+    stated = {}
+    for quantity, word in (basis or {}).items():
+        problems.extend(_basis_problems("--basis", quantity, word))
+        stated[quantity] = word
 
     reader = csv.reader(text.splitlines())
     header: list[str] | None = None
@@ -308,8 +346,8 @@ def read_pairs(
                 f"{name}:{header_line}",
                 f"missing column{'s' if len(missing) > 1 else ''} "
                 f"{', '.join(repr(c) for c in missing)}; the header has {found}; expected "
-                f"columns 'quantity', 'measured', 'predicted' and optionally 'sigma_exp'"
-                f"{hint}",
+                f"columns 'quantity', 'measured', 'predicted' and optionally "
+                f"{', '.join(repr(c) for c in _OPTIONAL)}{hint}",
             )
         )
         raise_if_any(problems)
@@ -340,8 +378,8 @@ def read_pairs(
             continue
 
         def cell(col: str) -> str:
-            k = columns[col]
-            return row[k].strip() if k < len(row) else ""
+            k = columns.get(col)
+            return row[k].strip() if k is not None and k < len(row) else ""
 
         row_ok = True
         quantity = cell("quantity").lower()
@@ -354,20 +392,34 @@ def read_pairs(
             unknown.setdefault(quantity, []).append(line)
             row_ok = False
 
+        ambient: float | None = None
+        raw_ambient = cell("ambient")
+        if raw_ambient:
+            ambient = _parse_finite(raw_ambient)
+            if ambient is None:
+                problems.append(Problem(f"{name}:{line} column 'ambient'",
+                                        f"found '{raw_ambient}', expected a number (the ambient value "
+                                        f"in the row's unit) or an empty cell"))
+                row_ok = False
         numbers: dict[str, float] = {}
         for col in ("measured", "predicted"):
             raw = cell(col)
-            value = _parse_positive(raw)
+            value = _parse_finite(raw) if raw_ambient else _parse_positive(raw)
             if value is None:
                 problems.append(
                     Problem(
                         f"{name}:{line} column '{col}'",
-                        f"found '{raw}', expected a positive number",
+                        f"found '{raw}', expected a {'' if raw_ambient else 'positive '}number",
                     )
                 )
                 row_ok = False
             else:
                 numbers[col] = value
+        row_basis = cell("basis").lower() or None
+        if row_basis is not None:
+            found = _basis_problems(f"{name}:{line} column 'basis'", quantity, row_basis) if row_ok else []
+            problems.extend(found)
+            row_ok = row_ok and not found
 
         sigma: float | None = None
         raw_sigma = cell("sigma_exp") if has_sigma else ""
@@ -404,12 +456,16 @@ def read_pairs(
 
         if row_ok:
             entry = collected.setdefault(
-                quantity, {"measured": [], "predicted": [], "sigma": [], "lines": []}
+                quantity, {"measured": [], "predicted": [], "sigma": [], "lines": [],
+                           "ambient": [], "basis": [], "unit": []}
             )
             entry["measured"].append(numbers["measured"])
             entry["predicted"].append(numbers["predicted"])
             entry["sigma"].append(sigma)
             entry["lines"].append(line)
+            entry["ambient"].append(ambient)
+            entry["basis"].append(row_basis)
+            entry["unit"].append(cell("unit") or None)
 
     for quantity, lines in unknown.items():
         close = difflib.get_close_matches(quantity, QUANTITIES, n=1, cutoff=0.6)
@@ -449,19 +505,153 @@ def read_pairs(
                 problems.append(
                     Problem(f"{name} quantity '{quantity}'", message, warning=True)
                 )
+        where = f"{name} quantity '{quantity}'"
+        unit, unit_problems = _one_unit(where, quantity, entry)
+        on_basis = _on_basis(name, quantity, entry, stated.get(quantity))
+        problems.extend(unit_problems + on_basis["problems"])
+        if unit_problems or any(not p.warning for p in on_basis["problems"]):
+            continue
+        warnings.extend(p.message for p in on_basis["problems"])
+        measured_given = np.asarray(entry["measured"], dtype=float)
+        span = None
+        given_as = {b for b in entry["basis"] if b} | ({stated[quantity]} if quantity in stated else set())
+        if given_as & {"rise", "depletion"}:
+            message = (f"the pairs are {next(iter(given_as))}s, not the {quantity} itself, so the measured range "
+                       f"is not written (the run compares it with the {quantity} series); give absolute values "
+                       f"with an 'ambient' column to have it written")
+            warnings.append(message)
+            problems.append(Problem(where, message, warning=True))
+        elif unit is not None:
+            span = {"min": float(measured_given.min()), "max": float(measured_given.max()), "unit": unit}
+        else:
+            message = ("no 'unit' column: the measured range is not written into the table, so the run "
+                       "cannot warn when predictions leave it; add a 'unit' column (e.g. degC, ppm)")
+            warnings.append(message)
+            problems.append(Problem(where, message, warning=True))
         result[quantity] = {
-            "measured": np.asarray(entry["measured"], dtype=float),
-            "predicted": np.asarray(entry["predicted"], dtype=float),
+            "measured": on_basis["measured"],
+            "predicted": on_basis["predicted"],
             "sigma_exp": sigma_used,
             "lines": list(entry["lines"]),
             "file": name,
             "warnings": warnings,
+            "basis": on_basis["basis"],
+            "unit": unit,
+            "range": span,
         }
 
     if not collected and not any(not p.warning for p in problems):
         problems.append(Problem(name, "no data rows under the header"))
     raise_if_any(problems)
     return result
+
+
+def _parse_finite(text: str) -> float | None:
+    try:
+        value = float(text)
+    except ValueError:
+        return None
+    return value if math.isfinite(value) else None
+
+
+#: Basis words a pairs file or ``--basis`` may use for each quantity: what its values are.
+#: Temperature may be given as rises, O2 as depletions; any quantity as given.
+_BASES_FOR = {"temperature": ("rise", "as-given"), "o2": ("depletion", "as-given")}
+
+
+def _basis_problems(where: str, quantity: str, word: str) -> list[Problem]:
+    if word not in BASES:
+        return [Problem(where, f"found '{word}', expected one of {', '.join(BASES)}"
+                               f"{did_you_mean(word, BASES)}")]
+    allowed = _BASES_FOR.get(quantity, ("as-given",))
+    if quantity in QUANTITIES and word not in allowed:
+        return [Problem(where, f"basis '{word}' does not apply to {quantity}; expected "
+                               f"{' or '.join(allowed)}")]
+    return []
+
+
+def _one_unit(where: str, quantity: str, entry: Mapping[str, list[Any]]) -> tuple[str | None, list[Problem]]:
+    """The one unit of a quantity's rows (None when no row gives one), and its problems."""
+    units = entry["unit"]
+    given = sorted({u for u in units if u is not None})
+    if not given:
+        return None, []
+    if len(given) > 1 or None in units:
+        lines = ", ".join(str(k) for k, u in zip(entry["lines"], units) if u is None)
+        found = ", ".join(repr(u) for u in given) + (f" and empty on line(s) {lines}" if lines else "")
+        return None, [Problem(f"{where} column 'unit'", f"found {found}; expected one unit for all of "
+                                                        f"its rows")]
+    message = check_unit(given[0], quantity)
+    if message:
+        return None, [Problem(f"{where} column 'unit'", f"'{given[0]}': {message}")]
+    return given[0], []
+
+
+def _on_basis(name: str, quantity: str, entry: Mapping[str, list[Any]], stated: str | None) -> dict[str, Any]:
+    """Measured and predicted values on the basis the run applies, with the basis to record.
+
+    Rises T - A for temperature and depletions A - X for O2 when an ambient A is given
+    (see :func:`read_pairs`, Notes); the values as they are otherwise.
+    """
+    where = f"{name} quantity '{quantity}'"
+    e = np.asarray(entry["measured"], dtype=float)
+    m = np.asarray(entry["predicted"], dtype=float)
+    ambient = entry["ambient"]
+    bases = {b for b in entry["basis"] if b is not None}
+    problems: list[Problem] = []
+    if stated is not None:
+        bases.add(stated)
+    if len(bases) > 1:
+        problems.append(Problem(f"{where} column 'basis'", f"found {', '.join(sorted(bases))} (the column and "
+                                                           f"--basis together); expected one basis per quantity"))
+        return {"problems": problems}
+    word = next(iter(bases), None)
+    with_ambient = [a is not None for a in ambient]
+    if any(with_ambient):
+        lines = [k for k, a in zip(entry["lines"], ambient) if a is None]
+        if lines:
+            problems.append(Problem(f"{where} column 'ambient'", f"empty on line(s) {', '.join(map(str, lines))} "
+                                                                 f"while other rows give one; expected an ambient "
+                                                                 f"on every row of {quantity} or on none"))
+        if quantity not in _AMBIENT_SIGN:
+            problems.append(Problem(f"{where} column 'ambient'", f"an ambient is given, but the run applies {quantity} "
+                                                                 f"as given; leave 'ambient' empty for {quantity}"))
+        if word not in (None, "as-given"):
+            problems.append(Problem(f"{where} column 'basis'", f"basis '{word}' says the values are already "
+                                                               f"{word}s, yet an ambient is given; give absolute "
+                                                               f"values with their ambient, or {word}s without one"))
+        if problems:
+            return {"problems": problems}
+        a = np.asarray(ambient, dtype=float)
+        sign = _AMBIENT_SIGN[quantity]
+        e, m = sign * (e - a), sign * (m - a)
+        bad = [(k, col, v) for k, ei, mi in zip(entry["lines"], e, m)
+               for col, v in (("measured", ei), ("predicted", mi)) if not v > 0]
+        for line, col, value in bad:
+            kind = applied_basis(quantity)
+            problems.append(Problem(f"{name}:{line} column '{col}'",
+                                    f"the {kind} against the ambient is {value:.4g}; expected a positive {kind} "
+                                    f"(ln(M/E) needs positive values)"))
+        return {"problems": problems, "measured": e, "predicted": m, "basis": applied_basis(quantity)}
+    if word is None and quantity in APPLIED_BASIS:
+        problems.append(Problem(where, f"neither an 'ambient' nor a 'basis' says what these values are; the run "
+                                       f"applies {quantity} as the {applied_basis(quantity)} against ambient, so "
+                                       f"they are taken as {applied_basis(quantity)}s and no basis is recorded; add "
+                                       f"an 'ambient' column (absolute values) or 'basis: "
+                                       f"{applied_basis(quantity)}'", warning=True))
+    elif word is not None and word != applied_basis(quantity):
+        problems.append(Problem(where, f"fitted on the values as given (basis '{word}'), but the run applies "
+                                       f"{quantity} as the {applied_basis(quantity)} against ambient and will "
+                                       f"refuse this table; add an 'ambient' column to fit the "
+                                       f"{applied_basis(quantity)}", warning=True))
+    if word is None and quantity not in APPLIED_BASIS:
+        word = "as-given"
+    return {"problems": problems, "measured": e, "predicted": m, "basis": word}
+
+
+#: Sign s of the ambient conversion x -> s (x - A): rise above ambient for temperature,
+#: depletion below ambient for O2 (the contract's basis of those rows).
+_AMBIENT_SIGN = {"temperature": 1.0, "o2": -1.0}
 
 
 def _parse_zero(text: str) -> bool:
@@ -477,6 +667,101 @@ def _round_sig(value: float, digits: int = _SIG_DIGITS) -> float:
     if value == 0 or not math.isfinite(value):
         return float(value)
     return float(f"{value:.{digits}g}")
+
+
+#: Significance level of the fit checks: a p-value below it is reported as a failure.
+CHECK_ALPHA: float = 0.05
+
+#: Fewest pairs for which the checks are computed (Shapiro-Wilk needs 3).
+MIN_PAIRS_CHECKS: int = 3
+
+
+def fit_checks(
+    measured: Sequence[float] | np.ndarray,
+    predicted: Sequence[float] | np.ndarray,
+    alpha: float = CHECK_ALPHA,
+) -> dict[str, Any]:
+    """Check the two assumptions behind the fit: lognormal scatter, bias independent of size.
+
+    Parameters
+    ----------
+    measured : array_like
+        Measured values E_i on the fitted basis [any unit, positive].
+    predicted : array_like
+        Predicted values M_i [same unit, positive].
+    alpha : float, optional
+        Significance level [-]; default 0.05.
+
+    Returns
+    -------
+    dict
+        ``{"alpha", "normality": {...}, "trend": {...}}``. ``normality``: ``test``
+        (its name), ``statistic`` W, ``p_value``, ``passed``; ``trend``: ``test``,
+        ``slope`` b [-], ``p_value``, ``passed``. ``passed`` is None (and ``note``
+        says why) when a test cannot be computed: fewer than 3 pairs, all ratios
+        equal, or all measured values equal.
+
+    Notes
+    -----
+    McGrattan & Toman (2011) take ln(M/E) as normal with a mean that does not depend
+    on the size of E. Two tests, each at level ``alpha``:
+
+    - normality of ln(M_i/E_i): Shapiro-Wilk, ``scipy.stats.shapiro`` (Shapiro, S. S.
+      and Wilk, M. B. (1965), Biometrika 52, 591-611); fails when p < alpha;
+    - trend: least-squares line ln(M_i/E_i) = a + b ln(E_i), ``scipy.stats.linregress``;
+      the two-sided p-value of the t-test of b = 0 (n - 2 degrees of freedom). A
+      significant slope (p < alpha) means the bias grows or shrinks with the size of
+      the quantity, so one bias factor misrepresents part of the range.
+
+    References
+    ----------
+    McGrattan & Toman (2011), Metrologia 48(3), 173-180.
+    Shapiro & Wilk (1965), Biometrika 52(3/4), 591-611.
+    """
+    from scipy import stats
+
+    e = _as_positive_array(measured, "measured")
+    m = _as_positive_array(predicted, "predicted")
+    ln_ratio = np.log(m) - np.log(e)
+    ln_e = np.log(e)
+    normality: dict[str, Any] = {"test": "Shapiro-Wilk (scipy.stats.shapiro) on ln(M/E)",
+                                 "statistic": None, "p_value": None, "passed": None}
+    trend: dict[str, Any] = {"test": "slope of ln(M/E) against ln(E), t-test (scipy.stats.linregress)",
+                             "slope": None, "p_value": None, "passed": None}
+    n = int(e.size)
+    if n < MIN_PAIRS_CHECKS:
+        note = f"not computed: {n} pairs, at least {MIN_PAIRS_CHECKS} needed"
+        normality["note"] = trend["note"] = note
+    else:
+        if np.ptp(ln_ratio) <= 1e-12 * max(1.0, float(np.max(np.abs(ln_ratio)))):
+            normality["note"] = "not computed: every ratio M/E is the same"
+        else:
+            w, p = stats.shapiro(ln_ratio)
+            normality.update(statistic=_round_sig(float(w)), p_value=_round_sig(float(p)),
+                             passed=bool(p >= alpha))
+        if np.ptp(ln_e) <= 1e-12 * max(1.0, float(np.max(np.abs(ln_e)))):
+            trend["note"] = "not computed: every measured value is the same"
+        else:
+            fit = stats.linregress(ln_e, ln_ratio)
+            p = float(fit.pvalue) if math.isfinite(fit.pvalue) else 1.0   # exact line of zero slope
+            trend.update(slope=_round_sig(float(fit.slope)), p_value=_round_sig(p), passed=bool(p >= alpha))
+    return {"alpha": float(alpha), "normality": normality, "trend": trend}
+
+
+def check_warnings(check: Mapping[str, Any]) -> list[str]:
+    """Warnings, in words, for the checks of :func:`fit_checks` that failed."""
+    out = []
+    alpha = check["alpha"]
+    nt = check["normality"]
+    if nt["passed"] is False:
+        out.append(f"ln(M/E) does not look normal (Shapiro-Wilk W = {nt['statistic']:.3g}, p = "
+                   f"{nt['p_value']:.3g} < {alpha:g}): the lognormal correction may misstate the scatter")
+    tr = check["trend"]
+    if tr["passed"] is False:
+        out.append(f"the bias changes with the size of the quantity (slope of ln(M/E) on ln(E) "
+                   f"{tr['slope']:.3g}, p = {tr['p_value']:.3g} < {alpha:g}): one bias factor misrepresents "
+                   f"part of the range; fit the range that matters separately")
+    return out
 
 
 def fit_table(
@@ -506,12 +791,15 @@ def fit_table(
 
             source: ...
             distribution: lognormal
-            quantities: {q: {bias, sigma_model, sigma_exp, n_pairs}}
-            fitted: {date, method, pairs_file, warnings (only if any)}
+            quantities: {q: {bias, sigma_model, sigma_exp, n_pairs, basis, range}}
+            fitted: {date, method, pairs_file, checks, warnings (only if any)}
 
         ``bias``, ``sigma_model`` and ``sigma_exp`` are rounded to 4 significant
-        digits. ``fitted.warnings`` maps a quantity to its warnings (few pairs, floor
-        applied, sigma_exp differing between rows).
+        digits. ``basis`` (when the pairs say it) is the form the statistics were
+        fitted on; ``range`` ``{min, max, unit}`` the span of the measured values (when
+        the pairs give a unit). ``fitted.checks`` holds :func:`fit_checks` per quantity;
+        ``fitted.warnings`` maps a quantity to its warnings (few pairs, floor applied,
+        sigma_exp differing between rows, basis or range unknown, a failed check).
 
     References
     ----------
@@ -519,23 +807,32 @@ def fit_table(
     """
     quantities: dict[str, dict[str, Any]] = {}
     warnings: dict[str, list[str]] = {}
+    checks: dict[str, dict[str, Any]] = {}
     files: list[str] = []
     for quantity, entry in pairs.items():
         fit = fit_quantity(entry["measured"], entry["predicted"], entry["sigma_exp"])
-        quantities[str(quantity)] = {
+        row = {
             "bias": _round_sig(fit["bias"]),
             "sigma_model": _round_sig(fit["sigma_model"]),
             "sigma_exp": _round_sig(fit["sigma_exp"]),
             "n_pairs": int(fit["n_pairs"]),
         }
-        notes = list(entry.get("warnings", [])) + fit["warnings"]
+        if entry.get("basis"):
+            row["basis"] = str(entry["basis"])
+        if entry.get("range"):
+            row["range"] = {k: entry["range"][k] for k in ("min", "max", "unit")}
+        quantities[str(quantity)] = row
+        check = fit_checks(entry["measured"], entry["predicted"])
+        checks[str(quantity)] = check
+        notes = list(entry.get("warnings", [])) + fit["warnings"] + check_warnings(check)
         if notes:
             warnings[str(quantity)] = notes
         if entry.get("file") and entry["file"] not in files:
             files.append(str(entry["file"]))
     if pairs_file is None and files:
         pairs_file = files[0] if len(files) == 1 else ", ".join(files)
-    fitted: dict[str, Any] = {"date": str(today), "method": METHOD, "pairs_file": pairs_file}
+    fitted: dict[str, Any] = {"date": str(today), "method": METHOD, "pairs_file": pairs_file,
+                              "checks": checks}
     if warnings:
         fitted["warnings"] = warnings
     return {
@@ -547,27 +844,119 @@ def fit_table(
 
 
 def write_table(table: Mapping[str, Any], path: str | Path) -> None:
-    """Write a model-uncertainty table as YAML (keys in the table's order).
+    """Write a model-uncertainty table as YAML (keys in the table's order), atomically.
 
     Parameters
     ----------
     table : mapping
         As returned by :func:`fit_table` (plain Python types only).
     path : str or Path
-        Output file.
+        Output file. Written to a temporary file beside it and renamed into place, so
+        an interrupted write leaves the old file (or none), never half a table.
     """
     import yaml
 
     text = yaml.safe_dump(dict(table), sort_keys=False, allow_unicode=True)
-    Path(path).write_text(text, encoding="utf-8")
+    _write_atomically(Path(path), lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
 
-# Muted, greyscale-safe drawing style of this project.
-_INK = "#2f3b45"  # points and text
-_BIAS = "#3f6f8f"  # bias line: muted steel blue, dark enough to read as grey
-_BAND = "#c9d3db"  # +/- 2 sigma band fill
-_UNITY = "#7a7a7a"  # unity line
+def _write_atomically(path: Path, write) -> None:
+    """Call ``write(temporary path)`` beside ``path``, then rename the result onto ``path``."""
+    fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=path.suffix, dir=path.parent)
+    os.close(fd)
+    tmp = Path(tmp_name)
+    try:
+        write(tmp)
+        os.replace(tmp, path)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+
+
+#: File types ``--plot`` can write (matplotlib formats).
+PLOT_SUFFIXES: tuple[str, ...] = (".svg", ".png", ".pdf")
+
+
+def output_problems(
+    pairs_path: str | Path,
+    out: str | Path | None,
+    plot: str | Path | None,
+    force: bool = False,
+) -> list[Problem]:
+    """Problems with the files ``fit-uncertainty`` is asked to write, found before computing.
+
+    Parameters
+    ----------
+    pairs_path : str or Path
+        The pairs file being read (never to be overwritten).
+    out : str or Path, optional
+        The table to write (``--out``).
+    plot : str or Path, optional
+        The figure to write (``--plot``).
+    force : bool, optional
+        Allow ``out`` and ``plot`` to replace existing files (never the pairs file, never
+        a folder).
+
+    Returns
+    -------
+    list of Problem
+        One per mistake, naming the path: a folder where a file is expected, a missing
+        or unwritable parent folder, the pairs file itself (compared by resolved path,
+        so links and ``..`` do not hide it), ``out`` and ``plot`` the same file, a plot
+        type other than .svg/.png/.pdf, an existing file without ``force``.
+    """
+    problems: list[Problem] = []
+    pairs_real = Path(pairs_path).resolve()
+    seen: dict[Path, str] = {}
+    for option, target in (("--out", out), ("--plot", plot)):
+        if target is None:
+            continue
+        target = Path(target)
+        where = f"{option} {target}"
+        real = target.resolve()
+        if option == "--plot" and target.suffix.lower() not in PLOT_SUFFIXES:
+            problems.append(Problem(where, f"found the file type '{target.suffix or '(none)'}'; expected "
+                                           f"{', '.join(PLOT_SUFFIXES)}"))
+        if real == pairs_real:
+            problems.append(Problem(where, f"this is the pairs file being read ({pairs_path}); choose another "
+                                           f"file name, the input is never overwritten"))
+            continue
+        if real in seen:
+            problems.append(Problem(where, f"the same file as {seen[real]}; choose two different files"))
+            continue
+        seen[real] = option
+        if target.is_dir():
+            problems.append(Problem(where, "is a folder; expected a file name (e.g. "
+                                           f"{target / ('fit.svg' if option == '--plot' else 'uncertainty.yaml')})"))
+            continue
+        parent = real.parent
+        if not parent.is_dir():
+            problems.append(Problem(where, f"the folder {target.parent} does not exist; create it first"))
+            continue
+        if not os.access(parent, os.W_OK | os.X_OK):
+            problems.append(Problem(where, f"the folder {target.parent} is not writable"))
+            continue
+        if (target.exists() or target.is_symlink()) and not force:
+            problems.append(Problem(where, "the file exists; pass --force to replace it, or choose another name"))
+    return problems
+
+
+# Drawing style of this project's fit figure: muted, readable in greyscale (each element
+# differs in lightness as well as hue), filled and open markers told apart by shape.
+_INK = "#2b3640"        # text, axes and ratio points
+_BIAS = "#8a5a2b"       # bias line: muted umber, mid lightness
+_BAND = "#dfe5e1"       # scatter band: pale grey-green
+_TREND = "#5b7f95"      # fitted trend of the ratios: muted slate blue, lighter than the ink
+_REF = "#b8b8b8"        # ratio 1 (no bias): thin light solid line
 _DISPLAY = {"co": "CO", "co2": "CO2", "o2": "O2", "hcn": "HCN"}
+_BASIS_LABEL = {"rise": "rise", "depletion": "depletion", "as-given": "", None: ""}
+
+
+def _display(quantity: str, basis: str | None) -> str:
+    label = _DISPLAY.get(quantity, quantity.replace("_", " "))
+    label = label[0].upper() + label[1:]
+    extra = _BASIS_LABEL.get(basis, "")
+    return f"{label} {extra}".strip()
 
 
 def plot_fit(
@@ -575,85 +964,122 @@ def plot_fit(
     table: Mapping[str, Any],
     path: str | Path,
 ) -> None:
-    """Predicted against measured values, one panel per quantity, saved to a file.
+    """The fit figure: ratio against size, and a normal-quantile plot, per quantity.
 
     Parameters
     ----------
     pairs : mapping
-        As returned by :func:`read_pairs`.
+        As returned by :func:`read_pairs` (values on the fitted basis).
     table : mapping
-        As returned by :func:`fit_table` (bias and sigma_model per quantity).
+        As returned by :func:`fit_table` (bias per quantity; ``fitted.checks``).
     path : str or Path
         Output file; the format follows the extension: ``.svg``, ``.png`` or ``.pdf``.
+        Written atomically (temporary file, then renamed).
 
     Notes
     -----
-    Each panel has log-log axes, the measured/predicted points, the unity line
-    M = E (thin, grey, dotted), the bias line M = delta E (dashed) and a band
-    M = delta E exp(+/- 2 sigma_M) around it (light fill), per McGrattan & Toman
-    (2011). Drawn with the Agg backend; no window is opened.
+    One row per quantity. Left: the ratio M/E (log scale) against the measured value E
+    (log scale), with the fitted bias factor delta as a horizontal line, the band
+    exp(m +/- 2 s) in which about 95 % of the ratios should lie if ln(M/E) is normal
+    (m, s the mean and standard deviation of ln(M/E)), a thin line at M/E = 1 and the
+    least-squares trend of ln(M/E) on ln(E) with its p-value: a bias that changes with
+    size shows as a sloping trend. Right: ordered ln(M/E) against standard normal
+    quantiles (scipy.stats.probplot), with the line m + s z and the Shapiro-Wilk
+    p-value; points off the line question the lognormal assumption of McGrattan &
+    Toman (2011). Drawn with the Agg backend; no window is opened.
     """
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
-    from matplotlib.ticker import NullFormatter
+    from matplotlib.ticker import FixedLocator, FuncFormatter, LogLocator, MaxNLocator, NullFormatter
+    from scipy import stats
 
     path = Path(path)
     fmt = path.suffix.lower().lstrip(".")
-    if fmt not in ("svg", "png", "pdf"):
+    if path.suffix.lower() not in PLOT_SUFFIXES:
         raise ValueError(f"plot file must end in .svg, .png or .pdf; got '{path.name}'")
     names = [q for q in pairs if q in table.get("quantities", {})]
     if not names:
         raise ValueError("no quantity appears in both the pairs and the table")
+    checks = (table.get("fitted") or {}).get("checks") or {}
 
-    ncols = min(3, len(names))
-    nrows = math.ceil(len(names) / ncols)
-    fig, axes = plt.subplots(
-        nrows, ncols, figsize=(3.6 * ncols, 3.5 * nrows), squeeze=False, layout="constrained"
-    )
-    for ax in axes.flat[len(names):]:
-        ax.set_visible(False)
-
-    for ax, quantity in zip(axes.flat, names):
+    fig, axes = plt.subplots(len(names), 2, figsize=(8.2, 3.3 * len(names)), squeeze=False,
+                             layout="constrained", gridspec_kw={"width_ratios": [1.5, 1.0]})
+    for (ax, qq), quantity in zip(axes, names):
         e = np.asarray(pairs[quantity]["measured"], dtype=float)
         m = np.asarray(pairs[quantity]["predicted"], dtype=float)
         row = table["quantities"][quantity]
         delta = float(row["bias"])
-        sigma_m = float(row["sigma_model"])
-        band = math.exp(2.0 * sigma_m)
+        ratio = m / e
+        ln_r = np.log(ratio)
+        mean_ln = float(np.mean(ln_r))
+        sd_ln = float(np.std(ln_r, ddof=1)) if ln_r.size > 1 else 0.0
+        check = checks.get(quantity) or fit_checks(e, m)
+        label = _display(quantity, row.get("basis") or pairs[quantity].get("basis"))
+        unit = pairs[quantity].get("unit")
 
-        lo = float(min(e.min(), m.min())) / 1.5
-        hi = float(max(e.max(), m.max())) * 1.5
-        x = np.geomspace(lo, hi, 50)
-        ax.fill_between(
-            x, delta * x / band, delta * x * band, color=_BAND, linewidth=0,
-            label=r"$\pm 2\,\tilde\sigma_M$ about bias",
-        )
-        ax.plot(x, x, color=_UNITY, linestyle=":", linewidth=1.0, label="M = E")
-        ax.plot(x, delta * x, color=_BIAS, linestyle="--", linewidth=1.4,
-                label=rf"M = {delta:.3g} E")
-        ax.plot(e, m, linestyle="none", marker="o", markersize=4.5, markerfacecolor="white",
-                markeredgecolor=_INK, markeredgewidth=1.0, label=f"pairs (n = {e.size})")
+        x_lo, x_hi = float(e.min()) / 1.3, float(e.max()) * 1.3
+        x = np.geomspace(x_lo, x_hi, 60)
+        ax.axhspan(math.exp(mean_ln - 2 * sd_ln), math.exp(mean_ln + 2 * sd_ln), color=_BAND, linewidth=0,
+                   label="where 95 % of ratios fall if ln(M/E) is normal")
+        ax.axhline(1.0, color=_REF, linewidth=0.8, label="M = E")
+        ax.axhline(delta, color=_BIAS, linewidth=1.6, label="fitted bias factor")
+        ax.annotate(f"{delta:.3g}", (1.0, delta), xycoords=("axes fraction", "data"), xytext=(3, 0),
+                    textcoords="offset points", va="center", fontsize=8, color=_BIAS)
+        tr = check["trend"]
+        trend_words = "trend not computed"
+        if tr["slope"] is not None:
+            fit = stats.linregress(np.log(e), ln_r)
+            ax.plot(x, np.exp(fit.intercept + fit.slope * np.log(x)), color=_TREND, linewidth=1.1,
+                    label="least-squares trend of ln(M/E) on ln(E)")
+            trend_words = f"trend with size p = {tr['p_value']:.2g}" + (" (significant)" if tr["passed"] is False
+                                                                        else "")
+        ax.plot(e, ratio, linestyle="none", marker="o", markersize=4.2, markerfacecolor=_INK,
+                markeredgecolor="white", markeredgewidth=0.6, label="pairs")
         ax.set_xscale("log")
         ax.set_yscale("log")
-        ax.set_xlim(lo, hi)
-        ax.set_ylim(lo, hi)
-        ax.set_aspect("equal", adjustable="box")
-        label = _DISPLAY.get(quantity, quantity.replace("_", " "))
-        ax.set_xlabel(f"Measured {label}", color=_INK)
-        ax.set_ylabel(f"Predicted {label}", color=_INK)
-        ax.set_title(
-            rf"{label}: $\delta$ = {delta:.3g}, $\tilde\sigma_M$ = {sigma_m:.3g}",
-            fontsize=10, color=_INK, loc="left",
-        )
-        ax.xaxis.set_minor_formatter(NullFormatter())  # decade labels only
-        ax.yaxis.set_minor_formatter(NullFormatter())
-        ax.tick_params(which="both", colors=_INK, labelsize=8)
-        for spine in ("top", "right"):
-            ax.spines[spine].set_visible(False)
-        ax.grid(True, which="major", color="#e4e4e4", linewidth=0.6)
-        ax.legend(fontsize=7, frameon=False, loc="upper left")
+        ax.set_xlim(x_lo, x_hi)
+        name_in_text = label if quantity in _DISPLAY else label.lower()
+        ax.set_xlabel(f"Measured {name_in_text}" + (f" [{unit}]" if unit else ""), color=_INK)
+        ax.set_ylabel("Predicted / measured", color=_INK)
+        ax.set_title(f"{label}, {e.size} pairs: {trend_words}", fontsize=9, color=_INK, loc="left")
 
-    fig.savefig(path, format=fmt, dpi=150)
+        (osm, osr), _ = stats.probplot(ln_r, dist="norm")
+        z = np.array([osm.min(), osm.max()]) if osm.size else np.array([-1.0, 1.0])
+        qq.plot(z, mean_ln + sd_ln * z, color=_TREND, linewidth=1.2, label="normal line, sample mean and sd")
+        qq.plot(osm, osr, linestyle="none", marker="s", markersize=4.0, markerfacecolor="white",
+                markeredgecolor=_INK, markeredgewidth=0.9, label="ordered ln(M/E)")
+        nt = check["normality"]
+        words = (f"Shapiro-Wilk W = {nt['statistic']:.3f}, p = {nt['p_value']:.2g}" if nt["p_value"] is not None
+                 else f"Shapiro-Wilk {nt.get('note', 'not computed')}")
+        qq.set_title(words + (" (not normal)" if nt["passed"] is False else ""), fontsize=9, color=_INK,
+                     loc="left")
+        qq.set_xlabel("Standard normal quantile", color=_INK)
+        qq.set_ylabel("ln(M/E)", color=_INK)
+        for a in (ax, qq):
+            a.tick_params(which="both", colors=_INK, labelsize=8)
+            for spine in ("top", "right"):
+                a.spines[spine].set_visible(False)
+            a.grid(True, which="major", color="#ececec", linewidth=0.6)
+        y_lo = min(float(ratio.min()), math.exp(mean_ln - 2 * sd_ln), delta, 1.0) / 1.1
+        y_hi = max(float(ratio.max()), math.exp(mean_ln + 2 * sd_ln), delta, 1.0) * 1.1
+        ax.set_ylim(y_lo, y_hi)
+        for axis, lo, hi in ((ax.xaxis, x_lo, x_hi), (ax.yaxis, y_lo, y_hi)):
+            if hi / lo < 8.0:   # less than a decade: plain ticks read better than powers of ten
+                ticks = [v for v in MaxNLocator(nbins=6, steps=[1, 2, 2.5, 5, 10]).tick_values(lo, hi)
+                         if lo <= v <= hi]
+                axis.set_major_locator(FixedLocator(ticks))
+            elif hi / lo < 1000.0:
+                axis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0)))
+            axis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+            axis.set_minor_formatter(NullFormatter())
+    handles = {}
+    for a in axes[0]:
+        for h, lab in zip(*a.get_legend_handles_labels()):
+            handles.setdefault(lab, h)
+    fig.legend(list(handles.values()), list(handles), loc="outside upper center", ncols=3, fontsize=7,
+               frameon=False)
+
+    _write_atomically(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=150))
     plt.close(fig)
