@@ -351,6 +351,8 @@ CHILD = textwrap.dedent("""\
 
     if stage == "compute":
         pipeline.build_results = wait_here
+    elif stage == "workers":           # inside the forked scenario workers
+        pipeline.assess_scenario = wait_here
     else:
         sys.modules["egressmargin.report"] = types.SimpleNamespace(render_report=wait_here)
     sys.exit(cli.main(sys.argv[3:]))
@@ -390,6 +392,18 @@ def test_sigterm_while_computing_exits_143_cleanly(good_study, tmp_path):
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and "SIGTERM" in lines[0] and "Traceback" not in done.stderr
     assert sorted(os.listdir(tmp_path)) == ["study"]          # no output, staging folder or lock
+
+
+def test_sigterm_stops_the_scenario_workers_too(kit, make_study, tmp_path):
+    """Scenarios in two worker processes that would never finish: SIGTERM to the main process
+    alone still ends the run at once (the workers are stopped, not waited for)."""
+    second = kit.study.split("scenarios:\n", 1)[1].split("egress:")[0].replace("id: fire-a", "id: fire-b")
+    study = make_study(kit.study.replace("egress:", second + "egress:", 1))
+    done = _interrupt(tmp_path, study, tmp_path / "out", "workers", signal.SIGTERM, "--no-pdf", "--quiet",
+                      "--jobs", "2")
+    assert done.returncode == 128 + signal.SIGTERM, done.stderr
+    assert len(done.stderr.strip().splitlines()) == 1 and "Traceback" not in done.stderr
+    assert sorted(os.listdir(tmp_path)) == ["study"]
 
 
 def test_sigint_while_writing_the_report_exits_130_and_keeps_the_earlier_output(cli, good_study, tmp_path):
