@@ -226,19 +226,19 @@ def inspect_target(out: Path, inputs: Iterable[Path] = (), force: bool = False,
     if not out.exists():
         _check_parent(given, out)
         return Plan(out, "new")
-    entries = listing(out)
-    if not entries:
+    top = sorted(p.name + ("/" if p.is_dir() and not p.is_symlink() else "") for p in out.iterdir())
+    if not top:
         _check_parent(given, out)
         return Plan(out, "empty")
     manifest, why = read_manifest(out)
-    if manifest is None:
+    if manifest is None:             # only the top level is listed: the folder may be large
         hint = (" (--force applies only to an earlier egressmargin output)" if force else "")
-        raise _refuse(f"'{given}' holds {len(entries)} item(s) ({_some(entries)}) and is not an earlier egressmargin "
+        raise _refuse(f"'{given}' holds {len(top)} item(s) ({_some(top)}) and is not an earlier egressmargin "
                       f"output ({why}); nothing was changed. Give a new or empty folder, or move those files away "
                       f"yourself{hint}")
+    entries = listing(out)
     listed = {w for w in manifest["written"] if _safe_entry(w)}
     extra = [e for e in entries if e != MANIFEST_NAME and e not in listed]
-    # a folder the tool wrote that now holds only the user's files is the user's too
     tool_entries = tuple(e for e in entries if e in listed)
     if extra and not force:
         raise _refuse(f"'{given}' is an earlier egressmargin output but also holds {len(extra)} item(s) egressmargin "
