@@ -359,8 +359,10 @@ CHILD = textwrap.dedent("""\
     """)
 
 
-def _interrupt(tmp_path: Path, study: Path, out: Path, stage: str, sig: int, *extra) -> subprocess.CompletedProcess:
-    """Start a run that waits inside ``stage``, send ``sig`` once it is there; return the finished process."""
+def _interrupt(tmp_path: Path, study: Path, out: Path, stage: str, sig: int, *extra,
+               meanwhile=None) -> subprocess.CompletedProcess:
+    """Start a run that waits inside ``stage``, call ``meanwhile(pid)`` once it is there, then send
+    ``sig``; return the finished process."""
     marker = tmp_path / "ready.marker"
     env = dict(os.environ, PYTHONPATH=str(REPO / "src") + os.pathsep + os.environ.get("PYTHONPATH", ""))
     proc = subprocess.Popen([sys.executable, "-c", CHILD, str(marker), stage, "run", str(study), "--out", str(out),
@@ -375,6 +377,8 @@ def _interrupt(tmp_path: Path, study: Path, out: Path, stage: str, sig: int, *ex
             except subprocess.TimeoutExpired:
                 pass
         assert marker.exists(), f"child never reached the {stage} stage: {proc.communicate()}"
+        if meanwhile is not None:
+            meanwhile(proc.pid)
         proc.send_signal(sig)
         stdout, stderr = proc.communicate(timeout=120)
     finally:
@@ -392,6 +396,23 @@ def test_sigterm_while_computing_exits_143_cleanly(good_study, tmp_path):
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and "SIGTERM" in lines[0] and "Traceback" not in done.stderr
     assert sorted(os.listdir(tmp_path)) == ["study"]          # no output, staging folder or lock
+
+
+def test_a_second_run_while_the_first_computes_stops_with_exit_2(cli, good_study, tmp_path):
+    """Issue 13 item 3: two runs on one folder. The second stops at once, naming the first's
+    process; the first is not disturbed by it."""
+    out, seen = tmp_path / "out", {}
+
+    def second_run(pid):
+        seen["pid"] = pid
+        seen["status"], _, seen["err"] = cli(["run", good_study, "--out", out, *RUN])
+
+    done = _interrupt(tmp_path, good_study, out, "compute", signal.SIGTERM, "--no-pdf", "--quiet",
+                      meanwhile=second_run)
+    assert seen["status"] == 2
+    assert f"another egressmargin run (process {seen['pid']}) is writing" in seen["err"]
+    assert done.returncode == 128 + signal.SIGTERM
+    assert sorted(os.listdir(tmp_path)) == ["study"]
 
 
 def test_sigterm_stops_the_scenario_workers_too(kit, make_study, tmp_path):

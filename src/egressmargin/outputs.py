@@ -270,12 +270,16 @@ def _check_parent(given: Path, out: Path) -> None:
 
 
 def user_os_error(exc: OSError, fallback: Path) -> InputError | None:
-    """An :class:`InputError` naming the path for an OS error that is the user's situation, else None."""
+    """An :class:`InputError` naming the path for an OS error that is the user's situation, else None.
+
+    Reading or writing the output folder or beside it: a full disk, a missing permission, a
+    read-only disk. Any other OS error is a bug and keeps its traceback.
+    """
     if exc.errno not in USER_ERRNOS:
         return None
     path = exc.filename or fallback
     full = exc.errno in (errno.ENOSPC, errno.EDQUOT, errno.EFBIG)
-    return _refuse(f"could not write '{path}': {exc.strerror or exc}. "
+    return _refuse(f"'{path}': {exc.strerror or exc}. "
                    f"{'Free some space there' if full else 'Choose a folder you can write to'}, or give another "
                    "--out; no half-written output was left")
 
@@ -388,8 +392,8 @@ class OutputFolder:
         self._lock_fd = None
 
     def __enter__(self) -> "OutputFolder":
-        with signals_held():
-            try:
+        try:
+            with signals_held():     # a signal delivered when the block ends is still caught below
                 self._make_parents()
                 self._lock()
                 # under the lock: what is there now (another run may just have finished)
@@ -398,12 +402,15 @@ class OutputFolder:
                     shutil.rmtree(p, ignore_errors=True)
                 self.staging = Path(tempfile.mkdtemp(prefix=_hidden(self.out, f"{_TMP_TAG}-{os.getpid()}-"),
                                                      dir=self.out.parent))
-            except OSError as exc:
-                self._release()
-                raise user_os_error(exc, self.out.parent) or exc from None
-            except BaseException:
-                self._release()
+        except OSError as exc:
+            self._release()
+            problem = user_os_error(exc, self.out.parent)
+            if problem is None:
                 raise
+            raise problem from None
+        except BaseException:
+            self._release()
+            raise
         return self
 
     def __exit__(self, *exc) -> None:
@@ -518,5 +525,11 @@ def claim(out: Path, inputs: Iterable[Path] = (), force: bool = False) -> Output
     :func:`inspect_target`) or ``SOURCE_DATE_EPOCH`` is malformed.
     """
     inputs = tuple(Path(i) for i in inputs if i is not None)
-    plan = inspect_target(Path(out), inputs, force)
+    try:
+        plan = inspect_target(Path(out), inputs, force)
+    except OSError as exc:            # an unreadable folder, say
+        problem = user_os_error(exc, Path(out))
+        if problem is None:
+            raise
+        raise problem from None
     return OutputFolder(plan, Path(out), inputs, force, run_time())
