@@ -500,3 +500,30 @@ def test_an_internal_os_error_keeps_its_traceback(good_study, tmp_path, monkeypa
     with pytest.raises(OSError, match="invalid argument"):
         main(["run", str(good_study), "--out", str(tmp_path / "out"), "--no-pdf", "--html", "--samples", "20"])
     assert sorted(os.listdir(tmp_path)) == ["study"]
+
+
+def test_a_mount_point_is_written_in_place(cli, good_study, tmp_path, monkeypatch):
+    """A mount point (a container's volume) cannot be renamed: its staging folder and lock go
+    inside it and the output is moved in; an earlier output there is replaced the same way."""
+    out = tmp_path / "volume"
+    out.mkdir()
+    monkeypatch.setattr(outputs, "_is_mount", lambda p: Path(p) == out)
+    renames = []
+    real_rename = os.rename
+
+    def rename(src, dst):
+        assert Path(src) != out, "a mount point was renamed"
+        renames.append(Path(dst))
+        real_rename(src, dst)
+    monkeypatch.setattr(outputs.os, "rename", rename)
+    for seed in ("1", "2"):
+        status, _, err = cli(["run", good_study, "--out", out, *RUN, "--seed", seed])
+        assert status == 0, err
+        assert sorted(os.listdir(out)) == [outputs.MANIFEST_NAME, "results.json"]
+        assert json.loads((out / "results.json").read_text(encoding="utf-8"))["seed"] == int(seed)
+    assert all(p.parent == out or out in p.parents for p in renames)
+    (out / "notes.txt").write_text("mine", encoding="utf-8")
+    status, _, err = cli(["run", good_study, "--out", out, *RUN, "--force"])
+    assert status == 0, err
+    assert sorted(os.listdir(out)) == [outputs.MANIFEST_NAME, "notes.txt", "results.json"]
+    assert sorted(os.listdir(tmp_path)) == ["study", "volume"]

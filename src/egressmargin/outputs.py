@@ -226,7 +226,8 @@ def inspect_target(out: Path, inputs: Iterable[Path] = (), force: bool = False,
     if not out.exists():
         _check_parent(given, out)
         return Plan(out, "new")
-    top = sorted(p.name + ("/" if p.is_dir() and not p.is_symlink() else "") for p in out.iterdir())
+    top = sorted(p.name + ("/" if p.is_dir() and not p.is_symlink() else "") for p in out.iterdir()
+                 if not _is_own(out, p.name))
     if not top:
         _check_parent(given, out)
         return Plan(out, "empty")
@@ -236,7 +237,7 @@ def inspect_target(out: Path, inputs: Iterable[Path] = (), force: bool = False,
         raise _refuse(f"'{given}' holds {len(top)} item(s) ({_some(top)}) and is not an earlier egressmargin "
                       f"output ({why}); nothing was changed. Give a new or empty folder, or move those files away "
                       f"yourself{hint}")
-    entries = listing(out)
+    entries = [e for e in listing(out) if not _is_own(out, e.split("/")[0])]
     listed = {w for w in manifest["written"] if _safe_entry(w)}
     extra = [e for e in entries if e != MANIFEST_NAME and e not in listed]
     tool_entries = tuple(e for e in entries if e in listed)
@@ -255,8 +256,8 @@ def inspect_target(out: Path, inputs: Iterable[Path] = (), force: bool = False,
 
 
 def _check_parent(given: Path, out: Path) -> None:
-    """The nearest existing ancestor of ``out`` is a folder this process can write in."""
-    p = out.parent
+    """The folder the run works in (see :func:`workspace`) is one this process can write in."""
+    p = workspace(out)
     while not p.exists() and not p.is_symlink() and p != p.parent:
         p = p.parent
     if not p.is_dir():
@@ -313,12 +314,32 @@ def _hidden(out: Path, tag: str) -> str:
     return f".{out.name}.{tag}"
 
 
+def _is_own(out: Path, name: str) -> bool:
+    """Whether ``name`` is one of the hidden lock, staging or set-aside entries for ``out``."""
+    return re.fullmatch(rf"{re.escape(_hidden(out, ''))}(?:{_LOCK_TAG}|(?:{_TMP_TAG}|{_OLD_TAG})-\d+-[A-Za-z0-9_]+)",
+                        name) is not None
+
+
+def _is_mount(path: Path) -> bool:
+    return os.path.ismount(path)
+
+
+def workspace(out: Path) -> Path:
+    """Where the lock, staging and set-aside folders go: beside ``out``, or inside it when
+    ``out`` is a mount point (a container's volume, say), which cannot be renamed and whose
+    contents can be moved only within it."""
+    out = Path(out)
+    if out.is_dir() and not out.is_symlink() and _is_mount(out):
+        return out
+    return out.parent
+
+
 def stale_folders(out: Path) -> list[Path]:
-    """Staging and set-aside folders beside ``out`` whose process is gone."""
+    """Staging and set-aside folders of ``out`` (in its :func:`workspace`) whose process is gone."""
     pattern = re.compile(rf"{re.escape(_hidden(out, ''))}(?:{_TMP_TAG}|{_OLD_TAG})-(\d+)-[A-Za-z0-9_]+")
     found = []
     try:
-        beside = list(out.parent.iterdir())
+        beside = list(workspace(out).iterdir())
     except OSError:
         return []
     for p in beside:
@@ -338,7 +359,8 @@ class OutputFolder:
     def __init__(self, plan: Plan, given: Path, inputs: tuple[Path, ...], force: bool, when: datetime):
         self.plan, self.given, self.inputs, self.force, self.when = plan, given, inputs, force, when
         self.out = plan.out
-        self.lock_path = self.out.parent / _hidden(self.out, _LOCK_TAG)
+        self.home = workspace(self.out)
+        self.lock_path = self.home / _hidden(self.out, _LOCK_TAG)
         self.staging: Path | None = None
         self._aside: Path | None = None
         self._lock_fd: int | None = None
@@ -401,10 +423,10 @@ class OutputFolder:
                 for p in stale_folders(self.out):
                     shutil.rmtree(p, ignore_errors=True)
                 self.staging = Path(tempfile.mkdtemp(prefix=_hidden(self.out, f"{_TMP_TAG}-{os.getpid()}-"),
-                                                     dir=self.out.parent))
+                                                     dir=self.home))
         except OSError as exc:
             self._release()
-            problem = user_os_error(exc, self.out.parent)
+            problem = user_os_error(exc, self.home)
             if problem is None:
                 raise
             raise problem from None
@@ -445,7 +467,7 @@ class OutputFolder:
         (self.staging / MANIFEST_NAME).write_text(json.dumps(manifest, indent=2) + "\n", encoding="utf-8")
         plan = inspect_target(self.given, self.inputs, self.force)
         with signals_held():
-            if plan.keep:
+            if plan.keep or self.home == self.out:
                 self._merge(plan)
             else:
                 self._swap(plan)
@@ -455,7 +477,7 @@ class OutputFolder:
             self._aside = None
 
     def _set_aside_folder(self) -> Path:
-        return Path(tempfile.mkdtemp(prefix=_hidden(self.out, f"{_OLD_TAG}-{os.getpid()}-"), dir=self.out.parent))
+        return Path(tempfile.mkdtemp(prefix=_hidden(self.out, f"{_OLD_TAG}-{os.getpid()}-"), dir=self.home))
 
     def _swap(self, plan: Plan) -> None:
         if plan.kind != "new":
