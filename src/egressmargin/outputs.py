@@ -15,7 +15,9 @@ wrote, the run's UTC date-time and the command. A run:
    (:meth:`OutputFolder.commit`): the old output is renamed aside, the staging folder
    renamed into place, and only then the old output deleted. With ``force`` and an
    earlier output that also holds files the tool did not write, only the tool's own files
-   are replaced; the others stay where they are, untouched.
+   are replaced; the others stay where they are, untouched. A mount point (a container's
+   volume) cannot be renamed: there the lock and staging folder go inside it and the
+   output's entries are moved in (:func:`workspace`).
 
 Nothing but an earlier output (its listed entries) is ever moved or deleted. Signals
 (SIGINT, SIGTERM) are held off while folders are renamed, so an interruption never
