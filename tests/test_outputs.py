@@ -351,14 +351,18 @@ CHILD = textwrap.dedent("""\
 
     if stage == "compute":
         pipeline.build_results = wait_here
+    elif stage == "workers":           # inside the forked scenario workers
+        pipeline.assess_scenario = wait_here
     else:
         sys.modules["egressmargin.report"] = types.SimpleNamespace(render_report=wait_here)
     sys.exit(cli.main(sys.argv[3:]))
     """)
 
 
-def _interrupt(tmp_path: Path, study: Path, out: Path, stage: str, sig: int, *extra) -> subprocess.CompletedProcess:
-    """Start a run that waits inside ``stage``, send ``sig`` once it is there; return the finished process."""
+def _interrupt(tmp_path: Path, study: Path, out: Path, stage: str, sig: int, *extra,
+               meanwhile=None) -> subprocess.CompletedProcess:
+    """Start a run that waits inside ``stage``, call ``meanwhile(pid)`` once it is there, then send
+    ``sig``; return the finished process."""
     marker = tmp_path / "ready.marker"
     env = dict(os.environ, PYTHONPATH=str(REPO / "src") + os.pathsep + os.environ.get("PYTHONPATH", ""))
     proc = subprocess.Popen([sys.executable, "-c", CHILD, str(marker), stage, "run", str(study), "--out", str(out),
@@ -373,6 +377,8 @@ def _interrupt(tmp_path: Path, study: Path, out: Path, stage: str, sig: int, *ex
             except subprocess.TimeoutExpired:
                 pass
         assert marker.exists(), f"child never reached the {stage} stage: {proc.communicate()}"
+        if meanwhile is not None:
+            meanwhile(proc.pid)
         proc.send_signal(sig)
         stdout, stderr = proc.communicate(timeout=120)
     finally:
@@ -390,6 +396,35 @@ def test_sigterm_while_computing_exits_143_cleanly(good_study, tmp_path):
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and "SIGTERM" in lines[0] and "Traceback" not in done.stderr
     assert sorted(os.listdir(tmp_path)) == ["study"]          # no output, staging folder or lock
+
+
+def test_a_second_run_while_the_first_computes_stops_with_exit_2(cli, good_study, tmp_path):
+    """Issue 13 item 3: two runs on one folder. The second stops at once, naming the first's
+    process; the first is not disturbed by it."""
+    out, seen = tmp_path / "out", {}
+
+    def second_run(pid):
+        seen["pid"] = pid
+        seen["status"], _, seen["err"] = cli(["run", good_study, "--out", out, *RUN])
+
+    done = _interrupt(tmp_path, good_study, out, "compute", signal.SIGTERM, "--no-pdf", "--quiet",
+                      meanwhile=second_run)
+    assert seen["status"] == 2
+    assert f"another egressmargin run (process {seen['pid']}) is writing" in seen["err"]
+    assert done.returncode == 128 + signal.SIGTERM
+    assert sorted(os.listdir(tmp_path)) == ["study"]
+
+
+def test_sigterm_stops_the_scenario_workers_too(kit, make_study, tmp_path):
+    """Scenarios in two worker processes that would never finish: SIGTERM to the main process
+    alone still ends the run at once (the workers are stopped, not waited for)."""
+    second = kit.study.split("scenarios:\n", 1)[1].split("egress:")[0].replace("id: fire-a", "id: fire-b")
+    study = make_study(kit.study.replace("egress:", second + "egress:", 1))
+    done = _interrupt(tmp_path, study, tmp_path / "out", "workers", signal.SIGTERM, "--no-pdf", "--quiet",
+                      "--jobs", "2")
+    assert done.returncode == 128 + signal.SIGTERM, done.stderr
+    assert len(done.stderr.strip().splitlines()) == 1 and "Traceback" not in done.stderr
+    assert sorted(os.listdir(tmp_path)) == ["study"]
 
 
 def test_sigint_while_writing_the_report_exits_130_and_keeps_the_earlier_output(cli, good_study, tmp_path):
@@ -465,3 +500,30 @@ def test_an_internal_os_error_keeps_its_traceback(good_study, tmp_path, monkeypa
     with pytest.raises(OSError, match="invalid argument"):
         main(["run", str(good_study), "--out", str(tmp_path / "out"), "--no-pdf", "--html", "--samples", "20"])
     assert sorted(os.listdir(tmp_path)) == ["study"]
+
+
+def test_a_mount_point_is_written_in_place(cli, good_study, tmp_path, monkeypatch):
+    """A mount point (a container's volume) cannot be renamed: its staging folder and lock go
+    inside it and the output is moved in; an earlier output there is replaced the same way."""
+    out = tmp_path / "volume"
+    out.mkdir()
+    monkeypatch.setattr(outputs, "_is_mount", lambda p: Path(p) == out)
+    renames = []
+    real_rename = os.rename
+
+    def rename(src, dst):
+        assert Path(src) != out, "a mount point was renamed"
+        renames.append(Path(dst))
+        real_rename(src, dst)
+    monkeypatch.setattr(outputs.os, "rename", rename)
+    for seed in ("1", "2"):
+        status, _, err = cli(["run", good_study, "--out", out, *RUN, "--seed", seed])
+        assert status == 0, err
+        assert sorted(os.listdir(out)) == [outputs.MANIFEST_NAME, "results.json"]
+        assert json.loads((out / "results.json").read_text(encoding="utf-8"))["seed"] == int(seed)
+    assert all(p.parent == out or out in p.parents for p in renames)
+    (out / "notes.txt").write_text("mine", encoding="utf-8")
+    status, _, err = cli(["run", good_study, "--out", out, *RUN, "--force"])
+    assert status == 0, err
+    assert sorted(os.listdir(out)) == [outputs.MANIFEST_NAME, "notes.txt", "results.json"]
+    assert sorted(os.listdir(tmp_path)) == ["study", "volume"]

@@ -108,6 +108,9 @@ class Stopped(BaseException):
 
 
 def _raise_stopped(signum, frame):
+    import multiprocessing
+    for child in multiprocessing.active_children():   # this run's scenario workers: stop them now,
+        child.kill()                                  # rather than wait for their scenarios to finish
     raise Stopped(signum)
 
 

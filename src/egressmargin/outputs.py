@@ -15,7 +15,9 @@ wrote, the run's UTC date-time and the command. A run:
    (:meth:`OutputFolder.commit`): the old output is renamed aside, the staging folder
    renamed into place, and only then the old output deleted. With ``force`` and an
    earlier output that also holds files the tool did not write, only the tool's own files
-   are replaced; the others stay where they are, untouched.
+   are replaced; the others stay where they are, untouched. A mount point (a container's
+   volume) cannot be renamed: there the lock and staging folder go inside it and the
+   output's entries are moved in (:func:`workspace`).
 
 Nothing but an earlier output (its listed entries) is ever moved or deleted. Signals
 (SIGINT, SIGTERM) are held off while folders are renamed, so an interruption never
@@ -226,19 +228,20 @@ def inspect_target(out: Path, inputs: Iterable[Path] = (), force: bool = False,
     if not out.exists():
         _check_parent(given, out)
         return Plan(out, "new")
-    entries = listing(out)
-    if not entries:
+    top = sorted(p.name + ("/" if p.is_dir() and not p.is_symlink() else "") for p in out.iterdir()
+                 if not _is_own(out, p.name))
+    if not top:
         _check_parent(given, out)
         return Plan(out, "empty")
     manifest, why = read_manifest(out)
-    if manifest is None:
+    if manifest is None:             # only the top level is listed: the folder may be large
         hint = (" (--force applies only to an earlier egressmargin output)" if force else "")
-        raise _refuse(f"'{given}' holds {len(entries)} item(s) ({_some(entries)}) and is not an earlier egressmargin "
+        raise _refuse(f"'{given}' holds {len(top)} item(s) ({_some(top)}) and is not an earlier egressmargin "
                       f"output ({why}); nothing was changed. Give a new or empty folder, or move those files away "
                       f"yourself{hint}")
+    entries = [e for e in listing(out) if not _is_own(out, e.split("/")[0])]
     listed = {w for w in manifest["written"] if _safe_entry(w)}
     extra = [e for e in entries if e != MANIFEST_NAME and e not in listed]
-    # a folder the tool wrote that now holds only the user's files is the user's too
     tool_entries = tuple(e for e in entries if e in listed)
     if extra and not force:
         raise _refuse(f"'{given}' is an earlier egressmargin output but also holds {len(extra)} item(s) egressmargin "
@@ -255,8 +258,8 @@ def inspect_target(out: Path, inputs: Iterable[Path] = (), force: bool = False,
 
 
 def _check_parent(given: Path, out: Path) -> None:
-    """The nearest existing ancestor of ``out`` is a folder this process can write in."""
-    p = out.parent
+    """The folder the run works in (see :func:`workspace`) is one this process can write in."""
+    p = workspace(out)
     while not p.exists() and not p.is_symlink() and p != p.parent:
         p = p.parent
     if not p.is_dir():
@@ -270,12 +273,16 @@ def _check_parent(given: Path, out: Path) -> None:
 
 
 def user_os_error(exc: OSError, fallback: Path) -> InputError | None:
-    """An :class:`InputError` naming the path for an OS error that is the user's situation, else None."""
+    """An :class:`InputError` naming the path for an OS error that is the user's situation, else None.
+
+    Reading or writing the output folder or beside it: a full disk, a missing permission, a
+    read-only disk. Any other OS error is a bug and keeps its traceback.
+    """
     if exc.errno not in USER_ERRNOS:
         return None
     path = exc.filename or fallback
     full = exc.errno in (errno.ENOSPC, errno.EDQUOT, errno.EFBIG)
-    return _refuse(f"could not write '{path}': {exc.strerror or exc}. "
+    return _refuse(f"'{path}': {exc.strerror or exc}. "
                    f"{'Free some space there' if full else 'Choose a folder you can write to'}, or give another "
                    "--out; no half-written output was left")
 
@@ -309,12 +316,32 @@ def _hidden(out: Path, tag: str) -> str:
     return f".{out.name}.{tag}"
 
 
+def _is_own(out: Path, name: str) -> bool:
+    """Whether ``name`` is one of the hidden lock, staging or set-aside entries for ``out``."""
+    return re.fullmatch(rf"{re.escape(_hidden(out, ''))}(?:{_LOCK_TAG}|(?:{_TMP_TAG}|{_OLD_TAG})-\d+-[A-Za-z0-9_]+)",
+                        name) is not None
+
+
+def _is_mount(path: Path) -> bool:
+    return os.path.ismount(path)
+
+
+def workspace(out: Path) -> Path:
+    """Where the lock, staging and set-aside folders go: beside ``out``, or inside it when
+    ``out`` is a mount point (a container's volume, say), which cannot be renamed and whose
+    contents can be moved only within it."""
+    out = Path(out)
+    if out.is_dir() and not out.is_symlink() and _is_mount(out):
+        return out
+    return out.parent
+
+
 def stale_folders(out: Path) -> list[Path]:
-    """Staging and set-aside folders beside ``out`` whose process is gone."""
+    """Staging and set-aside folders of ``out`` (in its :func:`workspace`) whose process is gone."""
     pattern = re.compile(rf"{re.escape(_hidden(out, ''))}(?:{_TMP_TAG}|{_OLD_TAG})-(\d+)-[A-Za-z0-9_]+")
     found = []
     try:
-        beside = list(out.parent.iterdir())
+        beside = list(workspace(out).iterdir())
     except OSError:
         return []
     for p in beside:
@@ -334,7 +361,8 @@ class OutputFolder:
     def __init__(self, plan: Plan, given: Path, inputs: tuple[Path, ...], force: bool, when: datetime):
         self.plan, self.given, self.inputs, self.force, self.when = plan, given, inputs, force, when
         self.out = plan.out
-        self.lock_path = self.out.parent / _hidden(self.out, _LOCK_TAG)
+        self.home = workspace(self.out)
+        self.lock_path = self.home / _hidden(self.out, _LOCK_TAG)
         self.staging: Path | None = None
         self._aside: Path | None = None
         self._lock_fd: int | None = None
@@ -388,8 +416,8 @@ class OutputFolder:
         self._lock_fd = None
 
     def __enter__(self) -> "OutputFolder":
-        with signals_held():
-            try:
+        try:
+            with signals_held():     # a signal delivered when the block ends is still caught below
                 self._make_parents()
                 self._lock()
                 # under the lock: what is there now (another run may just have finished)
@@ -397,13 +425,16 @@ class OutputFolder:
                 for p in stale_folders(self.out):
                     shutil.rmtree(p, ignore_errors=True)
                 self.staging = Path(tempfile.mkdtemp(prefix=_hidden(self.out, f"{_TMP_TAG}-{os.getpid()}-"),
-                                                     dir=self.out.parent))
-            except OSError as exc:
-                self._release()
-                raise user_os_error(exc, self.out.parent) or exc from None
-            except BaseException:
-                self._release()
+                                                     dir=self.home))
+        except OSError as exc:
+            self._release()
+            problem = user_os_error(exc, self.home)
+            if problem is None:
                 raise
+            raise problem from None
+        except BaseException:
+            self._release()
+            raise
         return self
 
     def __exit__(self, *exc) -> None:
@@ -438,7 +469,7 @@ class OutputFolder:
         (self.staging / MANIFEST_NAME).write_text(json.dumps(manifest, indent=2) + "\n", encoding="utf-8")
         plan = inspect_target(self.given, self.inputs, self.force)
         with signals_held():
-            if plan.keep:
+            if plan.keep or self.home == self.out:
                 self._merge(plan)
             else:
                 self._swap(plan)
@@ -448,7 +479,7 @@ class OutputFolder:
             self._aside = None
 
     def _set_aside_folder(self) -> Path:
-        return Path(tempfile.mkdtemp(prefix=_hidden(self.out, f"{_OLD_TAG}-{os.getpid()}-"), dir=self.out.parent))
+        return Path(tempfile.mkdtemp(prefix=_hidden(self.out, f"{_OLD_TAG}-{os.getpid()}-"), dir=self.home))
 
     def _swap(self, plan: Plan) -> None:
         if plan.kind != "new":
@@ -518,5 +549,11 @@ def claim(out: Path, inputs: Iterable[Path] = (), force: bool = False) -> Output
     :func:`inspect_target`) or ``SOURCE_DATE_EPOCH`` is malformed.
     """
     inputs = tuple(Path(i) for i in inputs if i is not None)
-    plan = inspect_target(Path(out), inputs, force)
+    try:
+        plan = inspect_target(Path(out), inputs, force)
+    except OSError as exc:            # an unreadable folder, say
+        problem = user_os_error(exc, Path(out))
+        if problem is None:
+            raise
+        raise problem from None
     return OutputFolder(plan, Path(out), inputs, force, run_time())

@@ -726,9 +726,13 @@ def run(study_path: Path, options: RunOptions) -> Path:
               loaded.table.path if loaded.table else None]
     inputs += [d.path for d in loaded.data.values()]
     inputs += [d.path for runs in loaded.resolutions.values() for _, d in runs]
-    with outputs.claim(out, inputs, force=options.force) as target:
-        results, plots = build_results(loaded, options)
-        write_outputs(results, plots, out, options, target)
+    try:
+        with outputs.claim(out, inputs, force=options.force) as target:
+            results, plots = build_results(loaded, options)
+            write_outputs(results, plots, out, options, target)
+    finally:
+        if options.progress:
+            options.progress.done()       # a live line is cleared before any message that follows
     return out
 
 
@@ -742,8 +746,12 @@ def write_outputs(results: dict, plots: dict, out: Path, options: RunOptions,
     """
     if target is None:
         inputs = [Path(f["path"]) for f in results.get("inputs") or []]
-        with outputs.claim(out, inputs, force=options.force) as own:
-            return write_outputs(results, plots, out, options, own)
+        try:
+            with outputs.claim(out, inputs, force=options.force) as own:
+                return write_outputs(results, plots, out, options, own)
+        finally:
+            if options.progress:
+                options.progress.done()
     progress = options.progress
     tmp = target.staging
     try:
@@ -765,6 +773,3 @@ def write_outputs(results: dict, plots: dict, out: Path, options: RunOptions,
         if problem is None:
             raise
         raise problem from None
-    finally:
-        if progress:
-            progress.done()
