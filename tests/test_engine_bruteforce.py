@@ -53,8 +53,8 @@ def _brute(prep, crit, factors, S):
                 out[cid][:, s] = first_crossing(prep.t_s, prep.flux * f.get("heat_flux", 1.0), c.limit)
             else:
                 names = aset.dose_quantities(c)
-                rate = aset.dose_rate(c, aset.corrected_inputs(prep, names, f))
-                dose = cumulative_trapezoid(prep.t_s, rate)
+                inputs = aset.corrected_inputs(prep, names, f)
+                dose = aset.cumulative_dose(c, prep.t_s, inputs, (prep.n_loc, len(prep.t_s)))
                 out[cid][:, s] = first_crossing(prep.t_s, dose, c.limit)
     return out
 

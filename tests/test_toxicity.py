@@ -19,6 +19,7 @@ from hypothesis import strategies as st
 from egressmargin.tenability.crossing import cumulative_trapezoid, first_crossing
 from egressmargin.tenability.toxicity import (
     METHOD_GASES,
+    TOXIC_DOSES,
     TOXIC_GASES,
     TOXIC_METHODS,
     iso13571_co2_multiplier,
@@ -129,9 +130,10 @@ def test_purser_combination():
     hypoxia = 1.0 / math.exp(8.13 - 0.54 * (20.9 - 15))
     rate = float(purser_fed_rate(co=co, co2=co2, o2=o2))
     assert rate == pytest.approx(asph + hypoxia, rel=1e-12)
-    # CO2 alone at 9 %: narcosis (1/exp(1.4922) = 0.225/min) exceeds the other terms.
-    rate = float(purser_fed_rate(co2=9 * PERCENT))
-    assert rate == pytest.approx(1.0 / math.exp(6.1623 - 0.5189 * 9), rel=1e-12)
+    # CO2 narcosis is the alternative endpoint, a dose of its own (not part of this rate).
+    assert float(purser_fed_rate(co2=9 * PERCENT)) == 0.0
+    assert TOXIC_DOSES["purser"][1](co2=9 * PERCENT) == pytest.approx(
+        1.0 / math.exp(6.1623 - 0.5189 * 9), rel=1e-12)
 
 
 def test_hcn_terms_never_negative():

@@ -30,13 +30,16 @@ from .criteria import CriteriaSet, Criterion
 from .histories import O2_AMBIENT, ScenarioData
 from .study import SMOKE_KEYS
 from .tenability import heat, layer, toxicity, visibility
-from .tenability.crossing import crossing_times_for_levels, cumulative_trapezoid
+from .tenability.crossing import crossing_times_for_levels, cumulative_trapezoid, first_crossing
 
 #: Grid nodes per uncertain quantity for dose interpolation, by number of quantities
 #: (project choice: memory G**k * L * N kept moderate; the bound is reported).
-GRID_NODES = {1: 21, 2: 10, 3: 6, 4: 5}
+GRID_NODES = {1: 41, 2: 10, 3: 6, 4: 5}
 #: Cap on the bytes of one dose grid; locations are processed in chunks below it.
 GRID_BYTES = 160e6
+
+#: Criteria that are accumulated doses (FED), found by :func:`dose_times`.
+DOSE_CRITERIA = ("fed_toxic", "fed_heat", "fed_hypoxia")
 
 #: Which factor each criterion's inputs use, for the validated-range check and reporting.
 CRITERION_QUANTITIES = {
@@ -141,36 +144,63 @@ def prepare(data: ScenarioData, criteria: CriteriaSet, ambient_c: float | None =
 # applying factors to validated quantities
 # ----------------------------------------------------------------------------------------
 
-def corrected_inputs(prep: Prepared, names, factor: dict[str, float], rows=slice(None)) -> dict:
-    """The corrected series (internal units) that a dose needs, at one set of factors."""
+def corrected_inputs(prep: Prepared, names, factor: dict, rows=slice(None), n_time: int | None = None) -> dict:
+    """The corrected series (internal units) that a dose needs, at one set of factors.
+
+    ``factor[q]`` is a number, or an array broadcastable to (rows, 1) (one factor per
+    row, for the exact per-draw integration); ``n_time`` keeps only the first samples.
+    Temperature is corrected on its rise above ambient, O2 on its depletion below
+    ambient, every other quantity as given (see :mod:`egressmargin.uncertainty`).
+    """
     out = {}
+    cut = slice(None, n_time)
     for q in names:
         f = factor.get(q, 1.0)
         if q == "temperature" and prep.rise is not None:
-            out[q] = prep.amb_c[rows, None] + prep.rise[rows] * f
+            out[q] = prep.amb_c[rows, None] + prep.rise[rows, cut] * f
         elif q == "heat_flux" and prep.flux is not None:
-            out[q] = prep.flux[rows] * f
-        elif q in ("co", "hcn", "co2") and q in prep.gases:
-            out[q] = prep.gases[q][rows] * f
+            out[q] = prep.flux[rows, cut] * f
+        elif q in prep.gases:
+            out[q] = prep.gases[q][rows, cut] * f
         elif q == "o2" and prep.o2_depletion is not None:
-            out[q] = np.clip(prep.o2_amb - prep.o2_depletion[rows] * f, 0.0, None)
+            out[q] = np.clip(prep.o2_amb - prep.o2_depletion[rows, cut] * f, 0.0, None)
     return out
 
 
-def dose_rate(criterion: Criterion, inputs: dict) -> np.ndarray:
-    """FED rate per minute for a dose criterion from corrected inputs."""
+def dose_rates(criterion: Criterion, inputs: dict) -> tuple[np.ndarray, ...]:
+    """FED rates per minute of a dose criterion from corrected inputs, one per endpoint.
+
+    A criterion with several endpoints (Purser's asphyxiant FED "or" CO2 narcosis) gives
+    one rate each; :func:`cumulative_dose` combines their integrals.
+    """
     if criterion.id == "fed_toxic":
-        fn = toxicity.toxic_method(criterion.params.get("method", "iso13571"))
-        return fn(co=inputs.get("co"), hcn=inputs.get("hcn"), co2=inputs.get("co2"), o2=inputs.get("o2"))
-    return heat.fed_heat_rate(temperature_degc=inputs.get("temperature"), flux_kw_m2=inputs.get("heat_flux"),
-                              radiant_threshold_kw_m2=criterion.params.get(
-                                  "radiant_threshold", heat.RADIANT_THRESHOLD_KW_M2))
+        fns = toxicity.TOXIC_DOSES[criterion.params.get("method", "iso13571")]
+        return tuple(fn(co=inputs.get("co"), hcn=inputs.get("hcn"), co2=inputs.get("co2"), o2=inputs.get("o2"))
+                     for fn in fns)
+    if criterion.id == "fed_hypoxia":
+        return (toxicity.purser_o2_rate(inputs.get("o2")),)
+    return (heat.fed_heat_rate(temperature_degc=inputs.get("temperature"), flux_kw_m2=inputs.get("heat_flux"),
+                               radiant_threshold_kw_m2=criterion.params.get(
+                                   "radiant_threshold", heat.RADIANT_THRESHOLD_KW_M2)),)
+
+
+def cumulative_dose(criterion: Criterion, t_s: np.ndarray, inputs: dict, shape) -> np.ndarray:
+    """Cumulative FED of a dose criterion [-], shape ``shape`` = (rows, time).
+
+    Each endpoint's rate is integrated with the trapezoidal rule; alternative endpoints
+    combine by the published "or" (whichever dose reaches the limit first), which is the
+    pointwise maximum of the accumulated doses (not of the rates).
+    """
+    doses = [cumulative_trapezoid(t_s, np.broadcast_to(r, shape)) for r in dose_rates(criterion, inputs)]
+    return doses[0] if len(doses) == 1 else np.maximum.reduce(doses)
 
 
 def dose_quantities(criterion: Criterion) -> tuple[str, ...]:
+    """The series keys a dose criterion can use (each may carry a model-error factor)."""
     if criterion.id == "fed_toxic":
-        gases = getattr(toxicity, "METHOD_GASES", {}).get(criterion.params.get("method", "iso13571"))
-        return tuple(gases) if gases else toxicity.TOXIC_GASES
+        return tuple(toxicity.METHOD_GASES[criterion.params.get("method", "iso13571")])
+    if criterion.id == "fed_hypoxia":
+        return ("o2",)
     return ("temperature", "heat_flux")
 
 
@@ -254,12 +284,25 @@ def smoke_factor_key(kind: str | None) -> str:
 
 
 # ----------------------------------------------------------------------------------------
-# doses: grid over factors, multilinear interpolation, vectorised bisection
+# doses: grid over factors, interpolation with proven error bounds, exact where needed
 # ----------------------------------------------------------------------------------------
+
+#: Largest error [s] accepted from interpolating a dose between grid nodes; a draw whose
+#: proven bound is wider is integrated exactly (project choice, well inside the 1 s the
+#: engine promises).
+EXACT_TOLERANCE_S = 0.5
+#: Cap on float64 elements per array in one block of the exact per-draw integration.
+EXACT_BLOCK_ELEMENTS = 1_000_000
+
 
 @dataclass
 class DoseField:
-    """Cumulative dose on a grid of factors, for a set of locations, and per-sample weights."""
+    """Cumulative dose on a grid of factors, for a set of locations, and per-sample weights.
+
+    ``values`` interpolates multilinearly between the corners of each sample's grid cell.
+    ``pos`` holds each sample's position in grid coordinates (node index plus fraction),
+    one column per varying factor; None when the grid has one node.
+    """
 
     t_s: np.ndarray
     grid: np.ndarray          # (M, Lc, N) cumulative dose
@@ -267,6 +310,7 @@ class DoseField:
     weights: np.ndarray       # (S, C)
     low: np.ndarray           # (S,) node index of the lower corner
     high: np.ndarray          # (S,) node index of the upper corner
+    pos: np.ndarray | None = None
     _base: np.ndarray | None = field(default=None, repr=False)
 
     def values(self, idx: np.ndarray) -> np.ndarray:
@@ -338,15 +382,14 @@ def _dose_grid(prep: Prepared, criterion: Criterion, names, fac: dict, varying: 
         if fits:
             return cached
     k = len(varying)
-    G = GRID_NODES.get(k, 4) if k else 1
+    G = (3 if _linear_in(criterion, varying) else GRID_NODES.get(k, 4)) if k else 1
     nodes = {q: np.linspace(fac[q].min(), fac[q].max(), G) for q in varying}
     fixed = {q: float(fac[q][0]) for q in names if q not in varying}
     grid = np.empty((G ** k, len(rows), len(prep.t_s)))
     for m, combo in enumerate(product(range(G), repeat=k)):
         f = dict(fixed)
         f.update({q: nodes[q][j] for q, j in zip(varying, combo)})
-        rate = dose_rate(criterion, corrected_inputs(prep, names, f, rows))
-        grid[m] = cumulative_trapezoid(prep.t_s, np.broadcast_to(rate, grid.shape[1:]))
+        grid[m] = cumulative_dose(criterion, prep.t_s, corrected_inputs(prep, names, f, rows), grid.shape[1:])
     prep.dose_grids[key] = (grid, varying, nodes, fixed)
     return prep.dose_grids[key]
 
@@ -354,7 +397,7 @@ def _dose_grid(prep: Prepared, criterion: Criterion, names, fac: dict, varying: 
 def dose_field(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
                rows: np.ndarray) -> DoseField:
     """The cumulative dose of ``criterion`` at locations ``rows`` for each of S factor samples."""
-    names = [q for q in dose_quantities(criterion) if _has(prep, q)]
+    names = dose_names(prep, criterion)
     fac = {q: np.broadcast_to(np.asarray(factors.get(q, 1.0), float), (S,)) for q in names}
     varying = [q for q in names if np.ptp(fac[q]) > 0]
     grid, g_vary, nodes, _ = _dose_grid(prep, criterion, names, fac, varying, rows)
@@ -366,14 +409,30 @@ def dose_field(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
     pos = np.empty((S, k))
     for j, q in enumerate(g_vary):
         lo, hi = nodes[q][0], nodes[q][-1]
-        pos[:, j] = (fac[q] - lo) / (hi - lo) * (G - 1)
+        pos[:, j] = np.clip((fac[q] - lo) / (hi - lo) * (G - 1), 0.0, G - 1)
     i0 = np.clip(np.floor(pos).astype(int), 0, G - 2)
     w = np.clip(pos - i0, 0.0, 1.0)
     strides = G ** np.arange(k - 1, -1, -1)
     bits = np.array(list(product((0, 1), repeat=k)))                      # (C, k)
     corners = ((i0[:, None, :] + bits[None, :, :]) * strides).sum(-1)      # (S, C)
     weights = np.prod(np.where(bits[None, :, :] == 1, w[:, None, :], 1 - w[:, None, :]), axis=-1)
-    return DoseField(prep.t_s, grid, corners, weights, (i0 * strides).sum(-1), ((i0 + 1) * strides).sum(-1))
+    return DoseField(prep.t_s, grid, corners, weights, (i0 * strides).sum(-1), ((i0 + 1) * strides).sum(-1), pos)
+
+
+def _linear_in(criterion: Criterion, varying: list[str]) -> bool:
+    """True where the dose is linear in its one varying factor: the ISO 13571 CO term.
+
+    ISO 13571's FED rate is (phi_CO / 35 000 + HCN term) x CO2 multiplier, linear in the
+    CO factor when the others are fixed; three nodes then both represent it exactly and
+    let the grid check confirm it (:func:`_one_factor_times`).
+    """
+    return (criterion.id == "fed_toxic" and criterion.params.get("method", "iso13571") == "iso13571"
+            and varying == ["co"])
+
+
+def dose_names(prep: Prepared, criterion: Criterion) -> list[str]:
+    """The quantities of a dose that the scenario supplies (each may carry a factor)."""
+    return [q for q in dose_quantities(criterion) if _has(prep, q)]
 
 
 def _has(prep: Prepared, q: str) -> bool:
@@ -405,58 +464,252 @@ def node_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float) -> np.ndarra
     return np.where(reached, t, np.inf)
 
 
+def _monotone(grid: np.ndarray, k: int, G: int) -> np.ndarray:
+    """Per location: is the dose grid nondecreasing along every factor axis, at every time?
+
+    To a rounding tolerance of 1e-9 of the location's largest dose (:func:`_tolerance`).
+    """
+    Lc, N = grid.shape[1:]
+    g = grid.reshape((G,) * k + (Lc, N))
+    mono = np.ones(Lc, bool)
+    for ax in range(k):
+        mono &= np.diff(g, axis=ax).min(axis=tuple(range(k)) + (k + 1,)) >= -_tolerance(grid)
+    return mono
+
+
+def _tolerance(grid: np.ndarray) -> np.ndarray:
+    """(Lc,) rounding tolerance of a dose grid's shape checks: 1e-9 of each location's largest dose."""
+    return np.abs(grid.max(axis=(0, 2))) * 1e-9 + 1e-300     # doses are >= 0
+
+
+def _index_bracket(t_s: np.ndarray, t_from: np.ndarray, t_to: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Sample indices (lo, hi) with t[lo] <= t_from and t[hi] >= t_to (finite inputs)."""
+    n = len(t_s)
+    lo = np.clip(np.searchsorted(t_s, t_from, "left") - 1, 0, n - 1)
+    hi = np.clip(np.searchsorted(t_s, t_to, "left"), 0, n - 1)
+    return lo, np.minimum(np.maximum(hi, lo + 1), n - 1)
+
+
+def _interpolated_times(fld: DoseField, limit: float, t_early, t_late, t_first) -> np.ndarray:
+    """(S, Lc) crossing of the multilinearly interpolated dose (NaN if it never reaches)."""
+    t = np.full(t_early.shape, np.nan)
+    both = np.isfinite(t_late)
+    if both.any():
+        lo, hi = _index_bracket(fld.t_s, np.where(both, t_early, t_first), np.where(both, t_late, t_first))
+        t = np.where(both, fld.bracketed_crossing(limit, lo, hi), t)
+        t = np.where(both & (t_early <= t_first), t_first, t)
+    mixed = np.isfinite(t_early) & ~both
+    if mixed.any():
+        cols = np.flatnonzero(mixed.any(axis=0))
+        sub = DoseField(fld.t_s, fld.grid[:, cols, :], fld.corners, fld.weights, fld.low, fld.high)
+        t[:, cols] = np.where(mixed[:, cols], sub.crossing(limit), t[:, cols])
+    return t
+
+
+def _pair_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float, loc: np.ndarray, nodes: np.ndarray,
+                    weights: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """First crossing of ``sum_c weights[p, c] * grid[nodes[p, c], loc[p]]`` for each pair p.
+
+    The curves must be nondecreasing in time, below the limit at sample ``lo[p]`` (or
+    ``lo[p] == 0``); a bisection inside [lo, hi] finds the first sample that reaches it and
+    the crossing is interpolated linearly between the two bracketing samples, as for any
+    crossing. NaN where the curve does not reach the limit by sample ``hi[p]``.
+    """
+    N = grid.shape[2]
+    flat = grid.reshape(-1)
+    base = (nodes * grid.shape[1] + loc[:, None]) * N                     # (P, C)
+
+    def value(p, i):
+        return np.einsum("pc,pc->p", weights[p], flat[base[p] + i[:, None]])
+
+    reached = value(np.arange(lo.size), hi) >= limit
+    lo, hi = lo.copy(), hi.copy()
+    act = np.flatnonzero(hi - lo > 1)
+    while act.size:                       # bisection on the pairs still open only
+        mid = (lo[act] + hi[act]) // 2
+        hit = value(act, mid) >= limit
+        hi[act] = np.where(hit, mid, hi[act])
+        lo[act] = np.where(hit, lo[act], mid)
+        act = act[hi[act] - lo[act] > 1]
+    every = np.arange(lo.size)
+    d_lo, d_hi = value(every, lo), value(every, hi)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frac = np.where(d_hi > d_lo, (limit - d_lo) / (d_hi - d_lo), 1.0)
+    t = t_s[lo] + np.clip(frac, 0.0, 1.0) * (t_s[hi] - t_s[lo])
+    t = np.where(d_lo >= limit, t_s[lo], t)                 # reached at the first sample
+    return np.where(reached, t, np.nan)
+
+
+def _one_factor_times(fld: DoseField, limit: float):
+    """Reported crossings and their proven error bounds [s] for a dose with one varying factor.
+
+    Upper estimate: the chord between the cell's nodes (the interpolated dose). Where the
+    dose is convex in the factor, the chord lies above it and the left chord extended past
+    node j lies below it on [j, j+1] (``D(f) >= D_j + w (D_j - D_{j-1})``, w the place in
+    the cell; in the first cell the lower node D_0): the truth lies between the two
+    crossings, the midpoint is reported with half their distance as its bound. Otherwise
+    the bound is the distance to the farther of the crossings at the cell's two nodes
+    (monotone doses). Linear doses are exact. Every curve is searched only between the
+    crossings of its cell's two nodes, where the monotone doses must cross. +inf bounds
+    mark draws to integrate exactly (a location whose grid is not monotone; a draw whose
+    lower bound does not reach the limit by the end).
+
+    Returns (reported times, bounds, latest possible crossing), each (S, Lc) [s].
+    """
+    G, Lc, N = fld.grid.shape
+    t_s = fld.t_s
+    S = fld.pos.shape[0]
+    pos = fld.pos[:, 0]
+    cell = np.clip(np.floor(pos).astype(int), 0, G - 2)
+    w = np.clip(pos - cell, 0.0, 1.0)
+    t_nodes = node_crossings(t_s, fld.grid, limit)            # (G, Lc)
+    finite = np.isfinite(t_nodes)
+    reach_end = int(np.searchsorted(t_s, t_nodes[finite].max(), "left")) + 1 if finite.any() else 1
+    g = fld.grid[:, :, :min(reach_end, N)]                    # the checks need no later times
+    slope = np.diff(g, axis=0)
+    tol = _tolerance(g)
+    mono = slope.min(axis=(0, 2)) >= -tol
+    if G >= 3:
+        curv = np.diff(slope, axis=0)
+        lowest = curv.min(axis=(0, 2))
+        convex = lowest >= -tol
+        linear = convex & (curv.max(axis=(0, 2)) <= tol)
+    else:
+        convex = linear = np.zeros(Lc, bool)
+    del slope
+    t_early, t_late = t_nodes[cell + 1], t_nodes[cell]        # (S, Lc)
+    t_rep = np.full((S, Lc), np.nan)
+    err = np.zeros((S, Lc))
+    s_idx, l_idx = np.nonzero(np.isfinite(t_early))           # the others never reach (upper node)
+    if s_idx.size:
+        te, tl = t_early[s_idx, l_idx], t_late[s_idx, l_idx]
+        lo = np.clip(np.searchsorted(t_s, te, "left") - 1, 0, N - 1)
+        hi = np.where(np.isfinite(tl), np.clip(np.searchsorted(t_s, np.where(np.isfinite(tl), tl, 0.0), "left"),
+                                                 0, N - 1), N - 1)
+        hi = np.maximum(hi, np.minimum(lo + 1, N - 1))
+        c, ww = cell[s_idx], w[s_idx]
+        up = _pair_crossings(t_s, fld.grid, limit, l_idx, np.stack([c, c + 1], 1), np.stack([1 - ww, ww], 1),
+                             lo, hi)
+        with np.errstate(invalid="ignore"):
+            e = np.maximum(np.nan_to_num(up - te, nan=np.inf), np.nan_to_num(tl - up, nan=np.inf))
+        rep = up
+        e = np.where(linear[l_idx], 0.0, e)
+        cx = convex[l_idx] & ~linear[l_idx]
+        if cx.any():
+            j = np.flatnonzero(cx)
+            left = c[j] >= 1
+            low = _pair_crossings(t_s, fld.grid, limit, l_idx[j], np.stack([c[j], np.maximum(c[j] - 1, 0)], 1),
+                                  np.stack([np.where(left, 1 + ww[j], 1.0), np.where(left, -ww[j], 0.0)], 1),
+                                  lo[j], hi[j])
+            low = np.where(np.isfinite(tl[j]), np.fmin(low, tl[j]), low)
+            u = up[j]
+            # an upper bound that never reaches proves the truth never reaches (NaN, exact)
+            rep[j] = np.where(np.isfinite(low), 0.5 * (u + low), u)
+            e[j] = np.where(np.isnan(u), 0.0, np.where(np.isfinite(low), 0.5 * (low - u), np.inf))
+        t_rep[s_idx, l_idx] = rep
+        err[s_idx, l_idx] = e
+    return t_rep, np.where(mono[None, :], err, np.inf), np.where(mono[None, :], t_late, np.inf)
+
+
+def exact_dose_times(prep: Prepared, criterion: Criterion, fac: dict[str, np.ndarray], loc: np.ndarray,
+                     draw: np.ndarray, t_stop: np.ndarray) -> np.ndarray:
+    """Exact crossing for each (location ``loc[p]``, draw ``draw[p]``) pair, vectorised.
+
+    Each pair's corrected series are rebuilt, its dose rate integrated with the
+    trapezoidal rule and its first crossing searched, as a per-draw loop would, but only
+    up to ``t_stop[p]`` (the latest time the crossing can be, +inf: the end) and in
+    blocks of at most :data:`EXACT_BLOCK_ELEMENTS` values.
+    """
+    t = prep.t_s
+    N = len(t)
+    names = dose_names(prep, criterion)
+    n_up = np.where(np.isfinite(t_stop), np.searchsorted(t, np.minimum(t_stop, t[-1]), "left") + 1, N)
+    n_up = np.clip(n_up, 2, N)
+    order = np.argsort(n_up, kind="stable")
+    out = np.full(loc.shape, np.nan)
+    start = 0
+    while start < order.size:
+        n = int(n_up[order[start]])
+        stop = start + 1
+        while stop < order.size and (stop - start + 1) * int(n_up[order[stop]]) <= EXACT_BLOCK_ELEMENTS:
+            stop += 1
+        block = order[start:stop]
+        n = int(n_up[block].max())
+        f = {q: fac[q][draw[block]][:, None] for q in names}
+        inputs = corrected_inputs(prep, names, f, loc[block], n)
+        dose = cumulative_dose(criterion, t[:n], inputs, (block.size, n))
+        out[block] = first_crossing(t[:n], dose, criterion.limit)
+        start = stop
+    return out
+
+
 def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int, ok: np.ndarray,
                with_bound: bool = True) -> tuple[np.ndarray, np.ndarray | None]:
-    """(L, S) dose crossing times and, per location, the largest interpolation bracket [s].
+    """(L, S) dose crossing times and, per location, a proven bound of their error [s].
 
-    The crossing time is first found on every node of the factor grid. Crossing times are
-    monotone in every factor, so for each sample both the truth and the crossing of the
-    multilinearly interpolated dose lie between the times at the upper and the lower
-    corner of its grid cell: that bracket is the reported bound, and a short bisection
-    inside it finds the interpolated crossing (exact where the dose is linear in the
-    factor, as the ISO 13571 CO term is). Where only the upper corner reaches the limit the
-    whole time axis is searched. The bracket is None when the grid has a single node.
+    1. The dose is computed on a grid of factor values and each draw's crossing found on
+       the multilinear interpolation between the corners of its grid cell.
+    2. Every dose rate is nondecreasing in every factor (checked on the grid nodes at
+       every time), so the true crossing lies between the crossings at the cell's upper
+       corner (earliest) and lower corner (latest); the interpolated crossing lies there
+       too, and its error is at most the larger distance to either end.
+    3. With one varying factor (:func:`_one_factor_times`): a dose convex in it (checked
+       on the nodes at every time) is bracketed between the chord and the extended left
+       chord; the midpoint of their crossings is reported with half their distance as its
+       bound (second order in the node spacing). A dose linear in its factor (ISO 13571 CO
+       alone) is exact.
+    4. Every draw whose bound exceeds :data:`EXACT_TOLERANCE_S`, and every draw of a
+       location whose grid is not monotone, is integrated exactly
+       (:func:`exact_dose_times`), vectorised over those draws only, up to the latest
+       time its crossing can be.
+
+    The bound returned per location is the largest over its draws (0 where every draw is
+    exact); None when the grid has a single node (no varying factor: the times are exact).
     """
     out = np.full((prep.n_loc, S), np.nan)
     rows_all = np.flatnonzero(ok)
     if rows_all.size == 0:
         return out, None
     bound = np.full(prep.n_loc, np.nan)
-    exact = True
-    k = len(dose_quantities(criterion))
-    per_loc = 8 * len(prep.t_s) * GRID_NODES.get(k, 4) ** k
+    single = True
+    names = dose_names(prep, criterion)
+    fac = {q: np.broadcast_to(np.asarray(factors.get(q, 1.0), float), (S,)) for q in names}
+    k = sum(1 for q in names if np.ptp(fac[q]) > 0)
+    per_loc = 8 * len(prep.t_s) * GRID_NODES.get(k, 4) ** k * (3 if k == 1 else 1)   # with temporaries
     chunk = max(1, int(GRID_BYTES // per_loc))
-    end = prep.t_s[-1]
+    t_first = prep.t_s[0]
     for start in range(0, rows_all.size, chunk):
         rows = rows_all[start:start + chunk]
         fld = dose_field(prep, criterion, factors, S, rows)
-        t_nodes = node_crossings(prep.t_s, fld.grid, criterion.limit)            # (M, Lc)
-        t_early = t_nodes[fld.high]      # upper corner of each sample's cell: most dose, earliest
-        t_late = t_nodes[fld.low]        # lower corner: least dose, latest
-        t = np.full(t_early.shape, np.nan)
-        # Both corners reach the limit: the sample's crossing on the interpolated dose lies
-        # between theirs, so a bisection inside that bracket finds it.
-        both = np.isfinite(t_late)
-        if both.any():
-            n = len(prep.t_s)
-            lo = np.clip(np.searchsorted(prep.t_s, np.where(both, t_early, prep.t_s[0]), "left") - 1, 0, n - 1)
-            hi = np.clip(np.searchsorted(prep.t_s, np.where(both, t_late, prep.t_s[0]), "left"), 0, n - 1)
-            hi = np.maximum(hi, lo + 1)
-            t = np.where(both, fld.bracketed_crossing(criterion.limit, lo, np.minimum(hi, n - 1)), t)
-            t = np.where(both & (t_early <= prep.t_s[0]), prep.t_s[0], t)
-        # Only the upper corner reaches it: the sample may or may not; full search there.
-        mixed = np.isfinite(t_early) & ~both
-        if mixed.any():
-            cols = np.flatnonzero(mixed.any(axis=0))
-            sub = DoseField(fld.t_s, fld.grid[:, cols, :], fld.corners, fld.weights, fld.low, fld.high)
-            t_mixed = sub.crossing(criterion.limit)
-            t[:, cols] = np.where(mixed[:, cols], t_mixed, t[:, cols])
-        out[rows] = t.T
-        if with_bound and fld.grid.shape[0] > 1:
-            exact = False
-            width = np.where(np.isfinite(t_early), np.where(np.isfinite(t_late), t_late, end) - t_early, 0.0)
-            bound[rows] = width.max(axis=0)
-    return out, (None if exact else bound)
+        if fld.grid.shape[0] == 1:
+            out[rows] = np.repeat(node_crossings(prep.t_s, fld.grid, criterion.limit), S, axis=0).T
+            out[rows] = np.where(np.isinf(out[rows]), np.nan, out[rows])
+            continue
+        single = False
+        kv = fld.pos.shape[1]
+        if kv == 1:
+            t_rep, err, t_stop = _one_factor_times(fld, criterion.limit)
+        else:
+            G = round(fld.grid.shape[0] ** (1.0 / kv))
+            mono = _monotone(fld.grid, kv, G)
+            t_nodes = node_crossings(prep.t_s, fld.grid, criterion.limit)            # (M, Lc)
+            t_early = t_nodes[fld.high]      # upper corner of each sample's cell: most dose, earliest
+            t_late = t_nodes[fld.low]        # lower corner: least dose, latest
+            t_rep = _interpolated_times(fld, criterion.limit, t_early, t_late, t_first)
+            with np.errstate(invalid="ignore"):
+                err = np.maximum(np.nan_to_num(t_rep - t_early, nan=np.inf),
+                                 np.nan_to_num(t_late - t_rep, nan=np.inf))
+            err = np.where(np.isfinite(t_early), err, 0.0)
+            err = np.where(mono[None, :], err, np.inf)          # no proven bracket: integrate every draw
+            t_stop = np.where(mono[None, :], t_late, np.inf)
+        need = err > EXACT_TOLERANCE_S
+        if need.any():
+            s_idx, c_idx = np.nonzero(need)
+            t_rep[s_idx, c_idx] = exact_dose_times(prep, criterion, fac, rows[c_idx], s_idx, t_stop[s_idx, c_idx])
+            err[s_idx, c_idx] = 0.0
+        out[rows] = t_rep.T
+        bound[rows] = err.max(axis=0)
+    return out, (None if single or not with_bound else bound)
 
 
 # ----------------------------------------------------------------------------------------
@@ -474,7 +727,7 @@ class CriterionResult:
 def criterion_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
                     with_bound: bool = True) -> CriterionResult:
     ok, missing = status(prep, criterion)
-    if criterion.id in ("fed_toxic", "fed_heat"):
+    if criterion.id in DOSE_CRITERIA:
         times, bound = dose_times(prep, criterion, factors, S, ok, with_bound)
         return CriterionResult(times, ok, missing, bound)
     return CriterionResult(single_series_times(prep, criterion, factors, S, ok), ok, missing)

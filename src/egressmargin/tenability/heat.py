@@ -89,7 +89,7 @@ def t_iconv_min(temperature_degc):
     positive = t > 0.0
     safe = np.where(positive, t, 1.0)
     with np.errstate(over="ignore", under="ignore"):
-        tol = CONVECTIVE_COEFF_MIN * safe ** (-CONVECTIVE_EXPONENT)
+        tol = CONVECTIVE_COEFF_MIN * np.exp(-CONVECTIVE_EXPONENT * np.log(safe))   # = safe**-3.4, faster
     out = np.where(positive, tol, np.inf)
     out = np.where(np.isnan(t), np.nan, out)
     return out if out.ndim else float(out)
@@ -192,12 +192,12 @@ def fed_heat_rate(
     shapes = [np.shape(a) for a in (temperature_degc, flux_kw_m2) if a is not None]
     shape = np.broadcast_shapes(*shapes) if shapes else ()
     rate = np.zeros(shape, dtype=float)
-    t = _series(temperature_degc)
-    if t is not None:
-        clean, missing = t
-        with np.errstate(divide="ignore"):  # 1/inf = 0 at or below 0 degC
-            conv = 1.0 / np.asarray(t_iconv_min(clean))
-        rate = rate + np.where(missing, 0.0, conv)
+    if temperature_degc is not None:
+        # 1/t_Iconv = T^3.4 / 5e7 for T > 0 degC, 0 at or below (as t_iconv_min, one pass)
+        temp = np.asarray(temperature_degc, dtype=float)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            conv = np.exp(CONVECTIVE_EXPONENT * np.log(np.maximum(temp, 0.0))) / CONVECTIVE_COEFF_MIN
+        rate = rate + np.where(np.isnan(temp), 0.0, conv)
     q = _series(flux_kw_m2)
     if q is not None:
         clean, missing = q

@@ -43,6 +43,8 @@ __all__ = [
     "purser_o2_rate",
     "purser_co2_rate",
     "purser_fed_rate",
+    "purser_co2_narcosis_rate",
+    "TOXIC_DOSES",
 ]
 
 #: Gas series keys (as in the study file) that the toxic FED methods can use.
@@ -499,7 +501,7 @@ def purser_co2_rate(co2):
 
 
 def purser_fed_rate(co=None, hcn=None, co2=None, o2=None):
-    """Purser fractional incapacitating dose rate for the asphyxiant gases.
+    """Purser fractional incapacitating dose rate of the asphyxiant gases and hypoxia.
 
     Parameters
     ----------
@@ -515,21 +517,25 @@ def purser_fed_rate(co=None, hcn=None, co2=None, o2=None):
 
     Notes
     -----
-    .. math:: \\dot F_{IN} = \\max\\!\\left[(\\dot F_{I,CO} + \\dot F_{I,CN})\\, V_{CO_2}
-              + \\dot F_{I,O},\\ \\dot F_{I,CO_2}\\right]
+    .. math:: \\dot F_{IN} = (\\dot F_{I,CO} + \\dot F_{I,CN})\\, V_{CO_2} + \\dot F_{I,O}
 
     Purser writes the combination as
     :math:`F_{IN} = [(F_{I,CO} + F_{I,CN} + FLD_{irr}) \\times V_{CO_2} + F_{I,O}]`
-    *or* :math:`F_{I,CO_2}` (CO2 narcosis as the alternative endpoint); the "or" is
-    taken here as the larger of the two rates (from memory of the combination). The
-    irritant term :math:`FLD_{irr}` is not included: irritant gases are not among the
-    study's series. Terms: :func:`purser_co_rate`, :func:`purser_hcn_rate`,
-    :func:`purser_co2_multiplier`, :func:`purser_o2_rate`, :func:`purser_co2_rate`.
+    *or* :math:`F_{I,CO_2}`: CO2 narcosis is the alternative endpoint, a dose of its
+    own (:func:`purser_co2_rate`). "Or" means whichever of the two cumulative doses
+    reaches its limit first; both are integrated separately and the FED is the larger
+    of the two *accumulated* doses at each time (:data:`TOXIC_DOSES` lists both rates;
+    the engine takes the pointwise maximum of their integrals, which has the same first
+    crossing as the earlier of the two). The irritant term :math:`FLD_{irr}` is not
+    included: irritants are assessed by their own concentration criterion
+    (``fec_irritant``, ISO 13571). Terms: :func:`purser_co_rate`,
+    :func:`purser_hcn_rate`, :func:`purser_co2_multiplier`, :func:`purser_o2_rate`.
 
     References
     ----------
     Purser, D. A., "Assessment of Hazards to Occupants from Smoke, Toxic Gases, and
-    Heat", SFPE Handbook of Fire Protection Engineering, 5th ed., Springer, 2016.
+    Heat", SFPE Handbook of Fire Protection Engineering, 5th ed., Springer, 2016
+    (combination of the asphyxiant doses, "or" CO2 narcosis; from memory).
 
     Examples
     --------
@@ -537,9 +543,32 @@ def purser_fed_rate(co=None, hcn=None, co2=None, o2=None):
     0.03544
     """
     shape = _result_shape(co, hcn, co2, o2)
-    asphyxiant = (purser_co_rate(co) + purser_hcn_rate(hcn)) * purser_co2_multiplier(co2)
-    rate = np.maximum(asphyxiant + purser_o2_rate(o2), purser_co2_rate(co2))
+    rate = (purser_co_rate(co) + purser_hcn_rate(hcn)) * purser_co2_multiplier(co2) + purser_o2_rate(o2)
     return np.broadcast_to(np.asarray(rate, dtype=float), shape).copy()
+
+
+def purser_co2_narcosis_rate(co=None, hcn=None, co2=None, o2=None):
+    """CO2 narcosis dose rate with the method signature (see :func:`purser_co2_rate`).
+
+    Parameters
+    ----------
+    co, hcn, o2 : array_like or None
+        Accepted for a uniform signature; not used.
+    co2 : array_like or None
+        CO2 volume fraction [mol/mol]; NaN or None = not supplied.
+
+    Returns
+    -------
+    numpy.ndarray
+        Dose rate [1/min], the broadcast shape of the supplied arrays.
+
+    Examples
+    --------
+    >>> round(1.0 / float(purser_co2_narcosis_rate(co2=0.07)), 1)
+    12.6
+    """
+    shape = _result_shape(co, hcn, co2, o2)
+    return np.broadcast_to(np.asarray(purser_co2_rate(co2), dtype=float), shape).copy()
 
 
 # =====================================================================================
@@ -551,6 +580,15 @@ def purser_fed_rate(co=None, hcn=None, co2=None, o2=None):
 TOXIC_METHODS: dict[str, Callable[..., np.ndarray]] = {
     "iso13571": iso13571_fed_rate,
     "purser": purser_fed_rate,
+}
+
+#: The dose rates whose cumulative doses make up each method's FED. Where a method
+#: lists more than one, the endpoints are alternatives (Purser's "or"): the FED at a
+#: time is the largest of the accumulated doses, so the limit is first reached when the
+#: earliest of them reaches it.
+TOXIC_DOSES: dict[str, tuple[Callable[..., np.ndarray], ...]] = {
+    "iso13571": (iso13571_fed_rate,),
+    "purser": (purser_fed_rate, purser_co2_narcosis_rate),
 }
 
 #: The gases each method actually uses. A location with none of them supplied cannot
