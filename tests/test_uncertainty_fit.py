@@ -23,10 +23,10 @@ from egressmargin.uncertainty_fit import (
     MIN_PAIRS_ADVISED,
     fit_quantity,
     fit_table,
-    plot_fit,
     read_pairs,
     write_table,
 )
+from egressmargin.uncertainty_plot import plot_fit
 
 # Hand-worked table (five pairs). Measured values are arbitrary; each prediction is
 # measured * exp(l) with the logs below, so ln(M/E) = l exactly.

@@ -93,3 +93,12 @@ def test_non_finite_range_is_a_located_error(tmp_path, which):
             f"    range: {{min: {bounds['min']}, max: {bounds['max']}, unit: ppm}}\n")
     errors = _errors(_table(tmp_path, body))
     assert len(errors) == 1 and "quantities.co.range" in errors[0] and "finite" in errors[0]
+
+
+def test_failed_fit_checks_recorded_in_the_table_are_warned_at_load(tmp_path):
+    body = ("  co: {bias: 1.2, sigma_model: 0.2}\n"
+            "fitted:\n  checks:\n    co:\n      trend: {test: slope t-test, p_value: 0.001, passed: false}\n"
+            "      normality: {test: Shapiro-Wilk, p_value: 0.4, passed: true}\n")
+    table = load_table(_table(tmp_path, body))
+    words = [str(w) for w in table.warnings]
+    assert len(words) == 1 and "fitted.checks.co.trend" in words[0] and "p = 0.001" in words[0]

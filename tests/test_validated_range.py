@@ -89,3 +89,31 @@ def test_pipeline_excursion_flagged_with_its_size(tmp_path):
     note = c["range_note"]
     assert "250 degC, 50 degC above it" in note and "(20 to 200 degC)" in note
     assert "up to the end of the data (1200 s)" in note
+
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.integers(-50, 500), min_size=1, max_size=40), st.integers(0, 100), st.integers(101, 300))
+def test_property_inside_never_flagged_and_excursions_measured(values, low, high):
+    """Values clipped into the range are never flagged. Otherwise, after the series first
+    reaches ``low`` (the ambient stretch before it is not counted), above_by and below_by
+    are exactly how far the counted values pass the bounds; a series that never reaches
+    ``low`` is reported as staying outside. Whole numbers keep the comparison exact."""
+    v = np.asarray(values, dtype=float)
+    t = np.arange(v.size, dtype=float)
+    assert range_excursion(t, np.clip(v, low, high), t[-1], low, high) is None
+    exc = range_excursion(t, v, t[-1], low, high)
+    reached = np.flatnonzero(v >= low)
+    if not reached.size:
+        assert exc["stays_outside"] is True and exc["peak"] == v.max()
+        return
+    counted = v[reached[0]:]
+    if exc is None:
+        assert np.all((counted >= low) & (counted <= high))
+    else:
+        assert exc["above_by"] == max(counted.max() - high, 0.0)
+        assert exc["below_by"] == max(low - counted.min(), 0.0)
+        assert exc["above_by"] > 0 or exc["below_by"] > 0

@@ -273,7 +273,8 @@ def _fit(args) -> int:
         for w in ws:
             print(f"{args.pairs}: warning: {q}: {w}", file=sys.stderr)
     if args.plot:
-        uf.plot_fit(pairs, table, args.plot)
+        from .uncertainty_plot import plot_fit
+        plot_fit(pairs, table, args.plot)
     if args.out:
         uf.write_table(table, args.out)
         print(f"wrote {args.out}")

@@ -184,8 +184,27 @@ def load_table(path: Path) -> UncertaintyTable:
                         f"{_BASIS_WORDS[applied_basis(q)]}, as the run applies it; add 'basis: "
                         f"{applied_basis(q)}' to say so (egressmargin fit-uncertainty writes it)", warning=True)
                 for q in unstated]
+    warnings += _failed_checks(doc, data.get("fitted"), quantities)
     return UncertaintyTable(source.strip(), dist, quantities, Path(path), params if isinstance(params, dict) else {},
                             warnings)
+
+
+def _failed_checks(doc, fitted, quantities) -> list[Problem]:
+    """Warnings for the fit checks a fitted table records as failed (``fitted.checks``)."""
+    checks = fitted.get("checks") if isinstance(fitted, dict) else None
+    out = []
+    for q, check in (checks.items() if isinstance(checks, dict) else ()):
+        if q not in quantities or not isinstance(check, dict):
+            continue
+        for name, words in (("normality", "ln(M/E) failed its normality test"),
+                            ("trend", "the bias changes with the size of the quantity")):
+            test = check.get(name)
+            if isinstance(test, dict) and test.get("passed") is False:
+                out.append(Problem(doc.where(("fitted", "checks", q, name)),
+                                   f"{q}: {words} when the table was fitted ({test.get('test', name)}, "
+                                   f"p = {test.get('p_value')}); its correction may misstate the model's error",
+                                   warning=True))
+    return out
 
 
 _BASIS_WORDS = {"rise": "rise above ambient", "depletion": "depletion below ambient",
