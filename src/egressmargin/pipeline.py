@@ -250,6 +250,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
               for cid in locations[prep.ids.index(loc)]["not_assessed"]]
         entry = {
             "id": route.id, "title": route.title, "occupants": route.occupants,
+            "exposed_at": list(route.exposed_at),
             "rset_s": summarise(out.rset),
             "rset_components_s": {k: summarise(v) for k, v in out.components.items()},
             "movement": {"travel_s": round(float(np.mean(out.movement.travel_s)), 2),
