@@ -659,21 +659,36 @@ TREE_W1 = {"heights": (0.5, 1.0, 1.5, 2.0, 2.5, 2.9), "ceiling": LOBBY["ceiling"
 #: SOOT [mg/m^3], VIS visibility [m], FLUX [kW/m^2], ZL layer height [m], U [m/s],
 #: TREE thermocouple tree [degC, unit given in the study].
 LOCATIONS = {
-    "reading-area": ("reading", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX")),
+    "reading-area": ("reading", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
     "reading-soffit": ("soffit_det", ("T", "U")),
     "atrium-l2": ("atrium_L2", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
     "atrium-l3": ("atrium_L3", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "TREE")),
     "atrium-roof": ("roof_beam", ("T", "OD")),
-    "corridor-l3-east": ("corr_L3E", ("T", "CO", "EXT")),
-    "lobby-east-l3": ("lobby_E3", ("T", "CO", "XCO2", "O2", "EXT")),
-    "stair-east": ("stair_E", ("TK", "CO", "VIS")),
-    "exit-east": ("exit_E", ("T", "CO", "CO2", "O2", "EXT")),
-    "lobby-west-l2": ("lobby_W2", ("T", "CO", "CO2", "O2", "SOOT")),
-    "stair-west": ("stair_W", ("T", "CO", "CO2", "O2", "EXT")),
+    "corridor-l3-east": ("corr_L3E", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
+    "lobby-east-l3": ("lobby_E3", ("T", "CO", "XCO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
+    "stair-east": ("stair_E", ("TK", "CO", "CO2", "O2", "HCN", "VIS", "FLUX", "ZL")),
+    "exit-east": ("exit_E", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
+    "lobby-west-l2": ("lobby_W2", ("T", "CO", "CO2", "O2", "HCN", "SOOT", "FLUX", "ZL")),
+    "stair-west": ("stair_W", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
     "lobby-west-l1": ("lobby_W1", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "TREE")),
-    "corridor-west-l1": ("corr_W1", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX")),
-    "exit-main": ("exit_main", ("T", "CO", "CO2", "O2", "EXT")),
+    "corridor-west-l1": ("corr_W1", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
+    "exit-main": ("exit_main", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
 }
+
+#: Floor level [m, absolute] of each location, for its layer height above the local floor.
+LOCATION_FLOOR_M = {
+    "reading-area": 0.0, "atrium-l2": LEVEL_FLOOR[2], "corridor-l3-east": LEVEL_FLOOR[3],
+    "lobby-east-l3": LEVEL_FLOOR[3], "stair-east": LEVEL_FLOOR[2], "exit-east": 0.0,
+    "lobby-west-l2": LEVEL_FLOOR[2], "stair-west": 0.0, "corridor-west-l1": 0.0, "exit-main": 0.0,
+}
+#: Ceiling height above the local floor [m] of the spaces behind doors (assumed).
+LOCAL_CEILING_M = 3.0
+#: A space behind a door fills with the smoke it receives: its interface falls from the
+#: ceiling by this multiple of the received share of the layer excess (assumed).
+LOCAL_FILL_FACTOR = 1.5
+#: View factor to the local hot layer for the radiant flux in a space behind a door (assumed).
+LOCAL_VIEW = 0.5
+
 
 #: Header prefix and unit, and the number of decimals written, per series code.
 COLUMN_FORMAT = {
@@ -709,8 +724,10 @@ def location_columns(zones: dict, t: np.ndarray, connections: dict, amp: float =
             "SOOT": ex["K"] / K_M_M2_KG * 1e6,
             "VIS": np.minimum(VISIBILITY_SIGN_CONSTANT / np.maximum(ex["K"], 1e-9), VISIBILITY_CAP_M),
             "FLUX": ex["flux"],
-            "ZL": np.clip(zones[spec["zone"]]["z_int"] - LEVEL_FLOOR[2], 0.0, None),
+            "ZL": local_layer_height(zones, spec, ex, LOCATION_FLOOR_M.get(lid, 0.0)),
         }
+        if "view" not in spec and "f" in spec:
+            values["FLUX"] = local_layer_flux(ex, values["ZL"])
         if "U" in codes or lid == "reading-soffit":
             values["T"], values["U"] = soffit_detector(zones, t, spec, amp)
         for code in codes:
@@ -723,6 +740,32 @@ def location_columns(zones: dict, t: np.ndarray, connections: dict, amp: float =
             template, decimals = COLUMN_FORMAT[code]
             cols[template.format(stem)] = (values[code], decimals)
     return cols
+
+
+def local_layer_height(zones: dict, spec: dict, ex: dict, floor_m: float) -> np.ndarray:
+    """Smoke layer interface above the local floor [m].
+
+    In the space of the zone itself (no connection share ``f``), the zone's interface above
+    the floor. In a space behind a door, the interface falls from the local ceiling as the
+    space receives smoke: ``H (1 - min(1, LOCAL_FILL_FACTOR w))`` with w the received share
+    of the layer excess (lagged like the other series); an assumed illustration, not a
+    filling calculation.
+    """
+    if "f" not in spec:
+        return np.clip(zones[spec["zone"]]["z_int"] - floor_m, 0.0, None)
+    layer = zones[spec["zone"]]
+    share = ex["dT"] / np.maximum(layer["dT"], 1e-9)
+    share = np.clip(lag(np.vstack([share]), spec.get("tau", 0.0))[0], 0.0, 1.0)
+    return LOCAL_CEILING_M * (1.0 - np.minimum(1.0, LOCAL_FILL_FACTOR * share))
+
+
+def local_layer_flux(ex: dict, z_local_m: np.ndarray) -> np.ndarray:
+    """Radiant flux [kW/m^2] from the local hot layer of a space behind a door: grey
+    emission eps sigma (T^4 - T0^4) times LOCAL_VIEW, eps from the extinction over the
+    local layer depth (the extinction standing in for the absorption coefficient; assumed)."""
+    eps = 1.0 - np.exp(-ex["K"] * np.maximum(LOCAL_CEILING_M - z_local_m, 0.0))
+    t_k = T0_K + ex["dT"]
+    return LOCAL_VIEW * eps * SIGMA_KW * (t_k**4 - T0_K**4)
 
 
 def soffit_detector(zones: dict, t: np.ndarray, spec: dict, amp: float):

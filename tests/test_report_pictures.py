@@ -57,3 +57,63 @@ def test_raw_dose_line_is_the_raw_dose_not_a_grid_node(tmp_path):
     # the corrected band straddles the raw line (median bias 1.0), never lies wholly above it
     lo, hi = curve["band"]
     assert np.all(lo[1:] < curve["raw"][1:]) and np.all(hi[1:] > curve["raw"][1:])
+
+
+def test_detector_role_is_detection_only(tmp_path):
+    """Contract (turn 2): a location with role: detector is not assessed for tenability and
+    not counted as "not assessed"; it can still drive a detection rule."""
+    t = np.arange(0.0, 601.0, 5.0)
+    path = write_study(
+        tmp_path, t, {"T_room": ("degC", 20 + 0.2 * t), "T_det": ("degC", 20 + 1.0 * t)},
+        [{"id": "room", "temperature": "T_room"},
+         {"id": "det", "role": "detector", "temperature": "T_det"}],
+        routes=[{"id": "out", "occupants": 10,
+                 "detection": {"heat": {"location": "det", "rti": 50, "activation": "57 degC",
+                                        "velocity": "1 m/s"}},
+                 "alarm": "10 s", "premovement": "30 s", "path": [{"door": {"width": "1.0 m"}}],
+                 "exposed_at": ["room"]}],
+        samples=50)
+    results, plots = results_for(path)
+    det = results["scenarios"][0]["locations"][1]
+    assert det["role"] == "detector" and det["criteria"] == {} and det["not_assessed"] == []
+    assert "det" not in plots["s1"]["locations"]
+    route = results["scenarios"][0]["routes"][0]
+    assert route["rset_components_s"]["detection"]["p50"] > 0
+
+
+def test_a_route_cannot_be_exposed_at_a_detector(tmp_path):
+    from egressmargin.errors import InputError
+    from egressmargin.study import load_study
+    import pytest
+
+    t = np.arange(0.0, 61.0, 5.0)
+    path = write_study(tmp_path, t, {"T_det": ("degC", 20 + t)},
+                       [{"id": "det", "role": "detector", "temperature": "T_det"}],
+                       routes=[{"id": "out", "occupants": 10, "detection": "30 s", "alarm": "10 s",
+                                "premovement": "30 s", "path": [{"door": {"width": "1.0 m"}}],
+                                "exposed_at": ["det"]}])
+    with pytest.raises(InputError) as err:
+        load_study(path)
+    assert "exposed_at" in str(err.value) and "role: detector" in str(err.value)
+
+
+def test_design_fire_keys_are_kept_as_given_and_checked(tmp_path):
+    from egressmargin.errors import InputError
+    from egressmargin.study import load_study
+    import pytest
+
+    t = np.arange(0.0, 61.0, 5.0)
+    path = write_study(tmp_path, t, {"T_room": ("degC", 20 + t)}, [{"id": "room", "temperature": "T_room"}])
+    study = yaml.safe_load(path.read_text(encoding="utf-8"))
+    study["scenarios"][0]["design_fire"] = {"growth": "fast t-squared", "peak_hrr": "2.5 MW",
+                                            "yields": {"co": "0.03 kg/kg"}}
+    path.write_text(yaml.safe_dump(study, sort_keys=False), encoding="utf-8")
+    assert load_study(path).scenarios[0].design_fire == {
+        "growth": "fast t-squared", "peak_hrr": "2.5 MW", "yields": {"co": "0.03 kg/kg"}}
+    results, _ = results_for(path)
+    assert results["scenarios"][0]["design_fire"]["peak_hrr"] == "2.5 MW"
+    study["scenarios"][0]["design_fire"] = {"peak": "2.5 MW"}
+    path.write_text(yaml.safe_dump(study, sort_keys=False), encoding="utf-8")
+    with pytest.raises(InputError) as err:
+        load_study(path)
+    assert "peak" in str(err.value) and "peak_hrr" in str(err.value)

@@ -212,6 +212,14 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     locations = []
     governing_raw = []
     for li, lid in enumerate(prep.ids):
+        if spec.locations[li].role == "detector":
+            # a detection point: not assessed for tenability, and not counted as "not assessed"
+            governing_raw.append(None)
+            locations.append({"id": lid, "title": spec.locations[li].title, "role": "detector",
+                              "criteria": {}, "aset_raw_s": None,
+                              "aset_s": {"p05": None, "p50": None, "p95": None},
+                              "governing": None, "governing_raw": None, "not_assessed": []})
+            continue
         crits, na = {}, []
         for cid, c in crit.items.items():
             r, rr = corr[cid], raw[cid]
@@ -278,6 +286,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
               for cid in locations[prep.ids.index(loc)]["not_assessed"]]
         entry = {
             "id": route.id, "title": route.title, "occupants": route.occupants,
+            "exposed_at": list(route.exposed_at),
             "rset_s": summarise(out.rset),
             "rset_components_s": {k: summarise(v) for k, v in out.components.items()},
             "movement": {"travel_s": round(float(np.mean(out.movement.travel_s)), 2),
@@ -319,10 +328,13 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),
                 "ignition_s": data.ignition_s, "clock": data.clock_note or "times count from the histories' first time (0 s), taken as ignition",
                 "locations": locations, "routes": routes}
+    if spec.design_fire:
+        scenario["design_fire"] = spec.design_fire
     cred, cred_plot = credibility(loaded, index, crit)
     if cred is not None:
         scenario["credibility"] = cred
-    plot = {"t_s": data.t_s, "locations": _plot_locations(prep, crit, factors, corr) if plots else {},
+    detectors = {loc.id for loc in spec.locations if loc.role == "detector"}
+    plot = {"t_s": data.t_s, "locations": _plot_locations(prep, crit, factors, corr, detectors) if plots else {},
             "routes": route_plots, "credibility": cred_plot}
     return scenario, plot
 
@@ -429,15 +441,18 @@ def _excursion_words(q, st, exc, upto) -> str:
     return f"{head} " + " and ".join(parts) + f", first at {exc['first_outside_s']:.0f} s{tail}"
 
 
-def _plot_locations(prep, crit, factors, corr) -> dict:
-    out = {lid: {} for lid in prep.ids}
+def _plot_locations(prep, crit, factors, corr, skip=frozenset()) -> dict:
+    """Curves for the report's location figures; none for the locations in ``skip`` (detectors)."""
+    out = {lid: {} for lid in prep.ids if lid not in skip}
     sub = {k: v[:BAND_SAMPLES] for k, v in factors.items()}
     S = len(next(iter(sub.values()))) if sub else 0
     labels = {"temperature": ("Gas temperature", "degC"), "visibility": ("Visibility", "m"),
               "heat_flux": ("Radiant heat flux", "kW/m^2"), "layer_height": ("Smoke layer height", "m"),
               "fed_toxic": ("FED, asphyxiant gases", "-"), "fed_heat": ("FED, heat", "-")}
     for cid, c in crit.items.items():
-        rows = np.flatnonzero(corr[cid].assessed)
+        if cid not in labels:          # a criterion this figure does not know how to draw
+            continue
+        rows = np.array([li for li in np.flatnonzero(corr[cid].assessed) if prep.ids[li] not in skip], int)
         if rows.size == 0:
             continue
         if cid in ("fed_toxic", "fed_heat"):

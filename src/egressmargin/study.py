@@ -29,8 +29,12 @@ ELEMENT_OPTIONAL = {"boundary", "length"}
 TOP_KEYS = {"title", "criteria", "uncertainty", "samples", "seed", "acceptance", "scenarios", "egress", "credibility",
             "reference", "prepared_by", "prepared_for", "paper", "max_samples"}
 SCENARIO_KEYS = {"id", "title", "histories", "time", "units_row", "locations", "ambient", "resolutions",
-                 "ignition"}
-LOCATION_KEYS = {"id", "title", "temperature_profile", *SERIES_KEYS}
+                 "ignition", "design_fire"}
+LOCATION_KEYS = {"id", "title", "temperature_profile", "role", *SERIES_KEYS}
+#: A location's role: an occupied point assessed for tenability, or a detection point only.
+LOCATION_ROLES = ("occupied", "detector")
+#: Optional description of a scenario's design fire, printed in the report as given.
+DESIGN_FIRE_KEYS = ("growth", "peak_hrr", "sprinklers", "ventilation", "yields", "notes")
 ROUTE_KEYS = {"id", "title", "scenarios", "occupants", "detection", "alarm", "premovement", "path",
               "exposed_at", "movement", "exposure"}
 #: A scenario's CSV format: field delimiters it may declare (``delimiter:``), and decimal marks (``decimal:``).
@@ -71,6 +75,7 @@ class LocationSpec:
     series: dict[str, SeriesRef]
     profile: ProfileRef | None
     where: str
+    role: str = "occupied"          # "detector": detection only, not assessed for tenability
 
 
 @dataclass
@@ -92,6 +97,7 @@ class ScenarioSpec:
     ambient_o2: float | None = None
     resolutions: list[ResolutionSpec] = field(default_factory=list)
     where: str = ""
+    design_fire: dict | None = None   # as given (text and numbers), for the report
     ignition_s: float | None = None     # ignition on the file's clock; None: its first time
     delimiter: str = ","
     decimal: str = "."
@@ -441,9 +447,10 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
         if "ignition" in sc:
             ignition = ck.quantity(sc["ignition"], kp + ("ignition",), "duration")
         locations = _locations(ck, sc.get("locations"), kp + ("locations",))
+        design_fire = _design_fire(ck, sc["design_fire"], kp + ("design_fire",)) if "design_fire" in sc else None
         out.append(ScenarioSpec(sid, ck.text(sc.get("title"), kp + ("title",), default=sid), hist, time,
                                 units_row, locations, amb_t, amb_o2, resolutions, ck.doc.where(kp),
-                                ignition_s=ignition))
+                                design_fire, ignition_s=ignition))
         out[-1].delimiter, out[-1].decimal = _csv_format(ck, sc, kp)
     return out
 
@@ -537,8 +544,36 @@ def _locations(ck, value, kp) -> list[LocationSpec]:
                 ck.warn(lkp, "both 'layer_height' and 'temperature_profile' given; the given layer_height is used")
         if not series and profile is None:
             ck.warn(lkp, "no series mapped at this location; every criterion will be 'not assessed' here")
+        role = loc.get("role", "occupied")
+        if role not in LOCATION_ROLES:
+            ck.err(lkp + ("role",), f"found {_show(role)}; expected one of {', '.join(LOCATION_ROLES)} "
+                   f"(detector: a detection point, not assessed for tenability){did_you_mean(str(role), LOCATION_ROLES)}")
+            role = "occupied"
         out.append(LocationSpec(lid, ck.text(loc.get("title"), lkp + ("title",), default=lid), series, profile,
-                                ck.doc.where(lkp)))
+                                ck.doc.where(lkp), role))
+    return out
+
+
+def _design_fire(ck, value, kp) -> dict | None:
+    """The optional design-fire description: text or numbers per key, kept as given."""
+    if not ck.keys(value, kp, set(DESIGN_FIRE_KEYS), "a design-fire description"):
+        return None
+    out = {}
+    for key in DESIGN_FIRE_KEYS:
+        if key not in value:
+            continue
+        v = value[key]
+        if key == "yields" and isinstance(v, dict):
+            bad = [k for k, x in v.items() if isinstance(x, (dict, list)) or x is None]
+            if bad:
+                ck.err(kp + (key,), f"found {_show(v)}; expected a mapping of species to yields as text, "
+                       "e.g. {co: 0.03 kg/kg}")
+                continue
+            out[key] = {str(k): x if isinstance(x, (int, float, str)) else str(x) for k, x in v.items()}
+        elif isinstance(v, (str, int, float)) and not isinstance(v, bool):
+            out[key] = v
+        else:
+            ck.err(kp + (key,), f"found {_show(v)}; expected text (or a number), shown in the report as given")
     return out
 
 
@@ -628,6 +663,12 @@ def _routes(ck, value, loc_ids: dict[str, dict]) -> list[RouteSpec]:
                     if not isinstance(lid, (str, int)) or isinstance(lid, bool):
                         ck.err(kp + ("exposed_at", j), f"found {_show(lid)}; expected a location id")
                         continue
+                    detectors = [s for s in covered if s in loc_ids and lid in loc_ids[s]
+                                 and loc_ids[s][lid].role == "detector"]
+                    if detectors:
+                        ck.err(kp + ("exposed_at", j), f"location '{lid}' has role: detector in scenario "
+                               f"{', '.join(detectors)}; a detection point is not assessed for tenability, "
+                               "so occupants cannot be exposed at it (remove the role or the location)")
                     missing = [s for s in covered if s in loc_ids and lid not in loc_ids[s]]
                     if missing:
                         known = sorted({x for s in covered if s in loc_ids for x in loc_ids[s]})

@@ -34,6 +34,7 @@ _UNIT_WORDS: dict[str, str] = {
     "kelvin": "K",
     "percent": "%",
     "dimensionless": "",
+    "-": "",
     "1": "",
     "s": "s",
     "second": "s",
@@ -178,6 +179,17 @@ def fmt_time(value_s: Any, end_s: Any = None, signed: bool = False) -> str:
     return f"{text}{NBSP}s"
 
 
+def fmt_time_cell(value_s: Any) -> str:
+    """A time in a table whose header gives the unit: whole seconds, ``—`` not reached.
+
+    >>> fmt_time_cell(215.4), fmt_time_cell(None), fmt_time_cell(-3)
+    ('215', '—', '−3')
+    """
+    if _is_missing(value_s) or (isinstance(value_s, (int, float)) and math.isinf(value_s)):
+        return "\u2014"
+    return _minus(str(int(round(float(value_s)))))
+
+
 def fmt_margin(value_s: Any, end_s: Any = None) -> str:
     """A safety margin (ASET minus RSET) in seconds, signed; ``None`` when ASET was
     not reached by the end of the histories, so the margin is unbounded above.
@@ -188,6 +200,19 @@ def fmt_margin(value_s: Any, end_s: Any = None) -> str:
     if _is_missing(value_s):
         return f"ASET{NBSP}{fmt_time(None, end_s)}"
     return fmt_time(value_s, end_s, signed=True)
+
+
+def fmt_route_margin(margin: Any) -> str:
+    """A route's margin as :func:`egressmargin.report.render.route_margin` returns it:
+    ``{"value": s, "at_least": bool}``; a lower bound is written ``≥ +484 s``.
+
+    >>> fmt_route_margin({"value": 484.2, "at_least": True}), fmt_route_margin({"value": -12})
+    ('≥\xa0+484\xa0s', '−12\xa0s')
+    """
+    if not isinstance(margin, Mapping) or _is_missing(margin.get("value")):
+        return NOT_AVAILABLE
+    text = fmt_time(margin["value"], signed=True)
+    return f"≥{NBSP}{text}" if margin.get("at_least") else text
 
 
 def fmt_trio(trio: Any, end_s: Any = None, keys: tuple[str, ...] = ("p05", "p50", "p95"),
@@ -306,7 +331,9 @@ FILTERS = {
     "unit": fmt_unit,
     "qty": fmt_quantity,
     "time": fmt_time,
+    "tnum": fmt_time_cell,
     "margin": fmt_margin,
+    "route_margin": fmt_route_margin,
     "trio": fmt_trio,
     "prob": fmt_prob,
     "pct": fmt_pct,

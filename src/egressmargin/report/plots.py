@@ -1,16 +1,19 @@
-"""Report figures: matplotlib drawings returned as inline SVG text.
+"""Report figures: matplotlib drawings returned as PNG bytes (or inline SVG text).
 
-Each public function draws one figure from plain numbers and returns the SVG markup
-without its XML prolog, ready to paste into the HTML report. The SVG's element ids are
-prefixed with a caller-given ``uid`` so that many figures can share one HTML page
-without their clip paths and glyph definitions clashing.
+Each public function draws one figure from plain numbers. By default it returns PNG
+bytes at :data:`FIG_DPI`, which the report inlines as a data URI: the PDF engine draws a
+raster image in a fraction of the time an SVG with hundreds of elements takes
+(measured: shared/report-performance.md). With ``fmt="svg"`` it returns the SVG markup
+without its XML prolog; the SVG's element ids are then prefixed with a caller-given
+``uid`` so that many figures can share one HTML page.
 
 matplotlib is imported inside the functions (Agg backend) so that importing
 :mod:`egressmargin` stays quick.
 
 Greyscale rule (common practice for printed submittals): every distinction drawn in
-colour is also drawn with a line style, a marker or a hatch, and pass/fail is written
-in words next to the figure, never shown by colour alone.
+colour is also drawn with a line style, a marker, a grey value or a written label, and
+pass/fail is written in words next to the figure, never shown by colour alone. No hatch
+patterns: they cost more to draw than the rest of a figure and add nothing to a label.
 """
 
 from __future__ import annotations
@@ -25,7 +28,7 @@ import numpy as np
 from .format import fmt_num, fmt_prob, fmt_time, fmt_unit
 
 # The report's own palette (chosen for this project; reads in greyscale because each
-# colour pairs with a distinct line style or hatch).
+# colour pairs with a distinct line style, marker or grey value).
 INK = "#1f2a36"
 GRID = "#d5dbe1"
 BAND = "#4f8aa6"
@@ -33,18 +36,16 @@ BAND_FILL = "#d6e5ec"
 LIMIT = "#a3392a"
 ASET = "#5c7a2e"
 ASET_FILL = "#e9f0de"
-ASET_HATCH = "#a9bf86"
 PASS = "#2e6b4f"
 FAIL = "#a3392a"
 PASS_FILL = "#cfe2d7"
 FAIL_FILL = "#f0d3cd"
-SEGMENTS = {  # RSET components: colour, hatch, label
-    "detection": ("#29536b", "", "Detection"),
-    "alarm": ("#b9d0db", "....", "Alarm"),
-    "premovement": ("#e6bd6a", "////", "Pre-movement"),
-    "movement": ("#7d4f35", "xxx", "Movement"),
+SEGMENTS = {  # RSET components: colour (adjacent ones differ in grey value), label
+    "detection": ("#29536b", "Detection"),
+    "alarm": ("#c4d8e2", "Alarm"),
+    "premovement": ("#c9893a", "Pre-movement"),
+    "movement": ("#5a3826", "Movement"),
 }
-SEGMENT_HATCH_COLOUR = {"alarm": INK, "premovement": INK, "movement": "#f3e6dc"}
 SERIES_STYLES = [  # (colour, line style, marker) for several lines on one axis
     (INK, "-", "o"),
     ("#4f8aa6", "--", "s"),
@@ -55,7 +56,8 @@ SERIES_STYLES = [  # (colour, line style, marker) for several lines on one axis
 ]
 
 FIG_WIDTH_IN = 6.7  # fits the A4 and Letter text width of the report CSS
-MAX_POINTS = 300  # points kept per plotted curve (min/max per bucket)
+FIG_DPI = 130  # PNG resolution: sharp at the printed size, small files (project choice)
+MAX_POINTS = 240  # points kept per plotted curve (min/max per bucket)
 
 _RC = {
     "font.family": "DejaVu Sans",
@@ -74,7 +76,6 @@ _RC = {
     "ytick.labelsize": 7,
     "legend.fontsize": 7,
     "legend.frameon": False,
-    "hatch.linewidth": 0.6,
     "svg.fonttype": "none",
     "svg.hashsalt": "egressmargin",
 }
@@ -92,6 +93,20 @@ def _plt():
     import matplotlib.pyplot as plt
 
     return matplotlib, plt
+
+
+def finish(fig: Any, uid: str = "f", fmt: str = "png") -> bytes | str:
+    """The figure as PNG bytes (``fmt="png"``) or inline SVG text (``"svg"``); closes it."""
+    if fmt == "svg":
+        return svg_from_figure(fig, uid)
+    _, plt = _plt()
+    buf = io.BytesIO()
+    try:
+        # No metadata: the same numbers give the same bytes.
+        fig.savefig(buf, format="png", dpi=FIG_DPI, metadata={"Software": None})
+    finally:
+        plt.close(fig)
+    return buf.getvalue()
 
 
 def svg_from_figure(fig: Any, uid: str = "f") -> str:
@@ -175,8 +190,8 @@ def _grid_shape(n_panels: int, max_cols: int = 3) -> tuple[int, int]:
 
 def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
                     raw_times_s: Mapping[str, Any] | None = None,
-                    end_s: float | None = None, uid: str = "loc") -> str:
-    """Small multiples: each assessed quantity at one location against time.
+                    end_s: float | None = None, uid: str = "loc", fmt: str = "png"):
+    """Small multiples: each given quantity at one location against time.
 
     Parameters
     ----------
@@ -185,7 +200,8 @@ def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
     specs : mapping
         criterion id -> ``{"label", "unit", "raw": ndarray (N,), "band": (p05, p95)
         or None, "limit": float, "direction": "above"|"below", "log": bool}``. The
-        band is the corrected p05-p95 of the quantity at each time.
+        band is the corrected p05-p95 of the quantity at each time. The caller passes
+        only the quantities worth a panel (the report: those whose limit is reached).
     raw_times_s : mapping, optional
         criterion id -> raw time to limit [s] (``None`` when not reached), drawn as a
         dotted vertical line.
@@ -193,19 +209,16 @@ def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
         Last time of the histories [s]; the time axis ends there.
     uid : str
         Id prefix for the SVG.
-
-    Returns
-    -------
-    str
-        Inline SVG.
+    fmt : str
+        ``"png"`` (bytes) or ``"svg"`` (text).
     """
     matplotlib, plt = _plt()
     t = np.asarray(t_s, dtype=float)
     keys = list(specs)
     nrows, ncols = _grid_shape(len(keys))
+    height = 1.75 * nrows + 0.45
     with matplotlib.rc_context(_RC):
-        fig, axes = plt.subplots(nrows, ncols, figsize=(FIG_WIDTH_IN, 1.95 * nrows + 0.45),
-                                 squeeze=False)
+        fig, axes = plt.subplots(nrows, ncols, figsize=(FIG_WIDTH_IN, height), squeeze=False)
         handles = {}
         for i, ax in enumerate(axes.flat):
             if i >= len(keys):
@@ -222,7 +235,7 @@ def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
             if band is not None:
                 lo, hi = (np.asarray(band[0], float)[idx], np.asarray(band[1], float)[idx])
                 h = ax.fill_between(tt, lo, hi, facecolor=BAND_FILL, edgecolor=BAND,
-                                    hatch="///", linewidth=0.0, zorder=1.5)
+                                    linewidth=0.5, zorder=1.5)
                 handles.setdefault("band", (h, "Corrected p05–p95"))
             (h,) = ax.plot(tt, raw[idx], color=INK, lw=1.2, zorder=3)
             handles.setdefault("raw", (h, "Raw prediction"))
@@ -244,7 +257,8 @@ def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
                 ax.text(0.0, 1.015, f"untenable {sign} {fmt_num(limit)}"
                         f"{(' ' + unit) if unit else ''}", transform=ax.transAxes,
                         ha="left", va="bottom", color=LIMIT, fontsize=6.3)
-            ax.set_ylabel(f"[{unit}]" if unit else "[–]")
+            if unit:
+                ax.set_ylabel(f"[{unit}]")
             if end_s is not None:
                 ax.set_xlim(float(t[0]) if t.size else 0.0, float(end_s))
             if i // ncols == nrows - 1 or i + ncols >= len(keys):
@@ -254,242 +268,226 @@ def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
             fig.legend([h for h, _ in order], [lab for _, lab in order], loc="upper center",
                        ncol=len(order), bbox_to_anchor=(0.5, 1.0))
         # Fixed margins in inches instead of tight_layout, which costs about half of
-        # the report's plotting time; sizes fit the 7.5 pt labels used here.
-        height = 1.95 * nrows + 0.45
-        fig.subplots_adjust(left=0.085, right=0.985, bottom=0.40 / height, top=1 - 0.66 / height,
-                            wspace=0.42, hspace=0.62)
-        return svg_from_figure(fig, uid)
+        # the plotting time; sizes fit the 7.5 pt labels used here.
+        fig.subplots_adjust(left=0.085, right=0.985, bottom=0.40 / height, top=1 - 0.62 / height,
+                            wspace=0.42, hspace=0.70)
+        return finish(fig, uid, fmt)
 
 
-def timeline_figure(components_s: Mapping[str, Mapping[str, Any]],
-                    rset_s: Mapping[str, Any], aset_s: Mapping[str, Any],
-                    aset_raw_s: Any = None, end_s: float | None = None,
-                    uid: str = "tl") -> str:
-    """ASET/RSET timeline of one route.
+def _val(d, k):
+    v = (d or {}).get(k)
+    return None if v is None or not np.isfinite(v) else float(v)
 
-    The top row stacks the RSET components (detection, alarm, pre-movement,
-    movement) at their medians; the middle row shows the RSET p05-p95 interval with
-    its median; the bottom row the ASET p05-p95 interval with its median. The ASET
-    band and median are also drawn across the whole chart.
+
+def _timeline(ax, components_s, rset_s, aset_s, aset_raw_s, end_s) -> list:
+    """RSET components stacked at their medians, the RSET and ASET p05-p95 intervals.
+
+    Returns the legend entries ``[(handle, label), ...]`` for the caller to place."""
+    left = 0.0
+    handles = []
+    for key, (colour, label) in SEGMENTS.items():
+        d = _val(components_s.get(key, {}), "p50") if components_s else None
+        if d is None:
+            continue
+        h = ax.barh(2, d, left=left, height=0.5, color=colour, edgecolor="white", linewidth=0.8)
+        handles.append((h, f"{label} {fmt_time(d)}"))
+        left += d
+    r05, r50, r95 = (_val(rset_s, k) for k in ("p05", "p50", "p95"))
+    a05, a50, a95 = (_val(aset_s, k) for k in ("p05", "p50", "p95"))
+    open_ended = a95 is None or a50 is None or a05 is None
+    finite = [x for x in (left, r95, a05, a50, a95, aset_raw_s) if x is not None]
+    if open_ended and end_s is not None:
+        finite.append(float(end_s))
+    xmax = max(finite) * 1.12 if finite else 1.0
+    lo = a05 if a05 is not None else (float(end_s) if end_s is not None else xmax)
+    hi = a95 if a95 is not None else xmax
+    band = ax.axvspan(lo, hi, facecolor=ASET_FILL, edgecolor=ASET, linewidth=0.5, zorder=0)
+    handles.append((band, "ASET p05–p95"))
+    if a50 is not None:
+        ln = ax.axvline(a50, color=ASET, lw=1.4)
+        handles.append((ln, f"ASET p50 {fmt_time(a50)}"))
+    else:
+        (ln,) = ax.plot([], [], color=ASET, lw=1.4)
+        handles.append((ln, f"ASET p50 {fmt_time(None, end_s)}"))
+    if aset_raw_s is not None and np.isfinite(aset_raw_s):
+        ln = ax.axvline(float(aset_raw_s), color=INK, lw=0.9, ls=(0, (1, 1.5)))
+        handles.append((ln, f"ASET raw {fmt_time(aset_raw_s)}"))
+    if end_s is not None and float(end_s) <= xmax:
+        ax.axvline(float(end_s), color="#777777", lw=0.8, ls=(0, (6, 3)))
+        ax.text(float(end_s), 2.45, "end of histories ", fontsize=6.3, color="#555555",
+                va="bottom", ha="right")
+
+    def interval(y, p05, p50, p95, colour, marker):
+        a = p05 if p05 is not None else xmax
+        b = p95 if p95 is not None else xmax
+        ax.plot([a, b], [y, y], color=colour, lw=2.2, solid_capstyle="butt")
+        ax.plot([a, a], [y - 0.15, y + 0.15], color=colour, lw=1.2)
+        if p95 is not None:
+            ax.plot([b, b], [y - 0.15, y + 0.15], color=colour, lw=1.2)
+        else:
+            ax.annotate("", xy=(xmax, y), xytext=(xmax * 0.97, y),
+                        arrowprops=dict(arrowstyle="-|>", color=colour, lw=1.2))
+        if p50 is not None:
+            ax.plot([p50], [y], marker=marker, color=colour, ms=6, mfc="white", mew=1.4)
+
+    interval(1, r05, r50, r95, INK, "D")
+    interval(0, a05, a50, a95, ASET, "o")
+    ax.set_yticks([0, 1, 2], ["ASET p05–p95", "RSET p05–p95", "RSET components\n(medians)"])
+    ax.set_ylim(-0.6, 2.8)
+    ax.set_xlim(0, xmax)
+    ax.set_xlabel("Time from ignition [s]")
+    ax.grid(axis="y", visible=False)
+    return handles
+
+
+def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05) -> None:
+    m = np.asarray(margin_samples_s, dtype=float).ravel()
+    fin = m[np.isfinite(m)]
+    n_open = int(m.size - fin.size)
+    lo, hi = float(fin.min()), float(fin.max())
+    edges = np.linspace(lo, hi, 41)
+    if lo < 0.0 < hi:   # put a bin edge on zero so no bar straddles it
+        w = (hi - lo) / 40.0
+        edges = np.arange(np.floor(lo / w) * w, hi + w * 1.001, w)
+    counts, edges = np.histogram(fin, bins=edges)
+    neg = edges[1:] <= 0
+    width = np.diff(edges)
+    ax.bar(edges[:-1][neg], counts[neg], width=width[neg], align="edge", color=FAIL,
+           edgecolor="white", linewidth=0.3, label="ASET < RSET (fails)")
+    ax.bar(edges[:-1][~neg], counts[~neg], width=width[~neg], align="edge", color=PASS_FILL,
+           edgecolor=PASS, linewidth=0.3, label="ASET ≥ RSET")
+    ax.axvline(0.0, color=INK, lw=1.5, label="zero margin")
+    if margin_p05 is not None and np.isfinite(margin_p05):
+        ax.axvline(float(margin_p05), color=INK, lw=1.0, ls=(0, (4, 2)),
+                   label=f"margin p05 {fmt_time(margin_p05, signed=True)}")
+    txt = f"P(ASET < RSET) = {fmt_prob(p_fail)}"
+    if max_p_fail is not None:
+        txt += f"; acceptable if ≤ {fmt_prob(max_p_fail)}"
+    if n_open:
+        txt += f"\n{n_open} of {m.size} draws reach no limit (not drawn)"
+    ax.text(0.01, 0.95, txt, transform=ax.transAxes, va="top", ha="left", fontsize=6.8,
+            bbox=dict(boxstyle="square,pad=0.3", facecolor="white", edgecolor=INK, linewidth=0.5))
+    ax.set_xlabel("Margin ASET − RSET per draw [s]")
+    ax.set_ylabel("Draws")
+    ax.legend(loc="upper right", fontsize=6.5)
+
+
+def _tornado(ax, rows, base_margin_s) -> list:
+    n = len(rows)
+    for i, r in enumerate(rows):
+        y = n - 1 - i
+        a, b = _val(r, "margin_low_s"), _val(r, "margin_high_s")
+        if a is None or b is None:
+            continue
+        ax.barh(y, abs(b - a), left=min(a, b), height=0.55, color=BAND_FILL, edgecolor=BAND,
+                linewidth=0.6)
+        ax.plot([a], [y], marker="o", color=INK, ms=4.5, ls="none")
+        ax.plot([b], [y], marker="s", color=INK, ms=4.5, mfc="white", ls="none")
+    ax.plot([], [], marker="o", color=INK, ls="none", label="input at low value")
+    ax.plot([], [], marker="s", color=INK, mfc="white", ls="none", label="input at high value")
+    ax.axvline(0.0, color=LIMIT, lw=1.3, ls=(0, (5, 2)), label="zero margin")
+    if base_margin_s is not None and np.isfinite(base_margin_s):
+        ax.axvline(float(base_margin_s), color=INK, lw=0.9, ls=(0, (1, 1.5)),
+                   label=f"median-input margin {fmt_time(base_margin_s, signed=True)}")
+    ax.set_yticks(range(n), [_plain(r.get("input", "?")) for r in reversed(rows)])
+    xs = [0.0] + [v for r in rows for v in (_val(r, "margin_low_s"), _val(r, "margin_high_s"))
+                  if v is not None]
+    if base_margin_s is not None and np.isfinite(base_margin_s):
+        xs.append(float(base_margin_s))
+    pad = 0.06 * (max(xs) - min(xs) or 1.0)
+    ax.set_xlim(min(xs) - pad, max(xs) + pad)
+    ax.set_ylim(-0.7, n - 0.3)
+    ax.set_xlabel("Margin ASET − RSET [s], one input at a time")
+    ax.grid(axis="y", visible=False)
+    return list(zip(*ax.get_legend_handles_labels()))
+
+
+def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[str, Any],
+                 aset_s: Mapping[str, Any], aset_raw_s: Any = None, end_s: float | None = None,
+                 margin_samples_s: np.ndarray | None = None, p_fail: Any = None,
+                 max_p_fail: Any = None, margin_p05_s: Any = None,
+                 sensitivity: Sequence[Mapping[str, Any]] = (), base_margin_s: Any = None,
+                 uid: str = "rt", fmt: str = "png"):
+    """One route in one scenario: timeline, margin histogram and sensitivity, stacked.
 
     Parameters
     ----------
     components_s : mapping
-        component -> ``{"p05", "p50", "p95"}`` [s].
+        RSET component -> ``{"p05", "p50", "p95"}`` [s], stacked at their medians.
     rset_s, aset_s : mapping
-        ``{"p05", "p50", "p95"}`` [s]; an ASET percentile of ``None`` is "not
-        reached by ``end_s``" and is drawn as an arrow past the end.
+        ``{"p05", "p50", "p95"}`` [s]; an ASET percentile of ``None`` is "not reached
+        by ``end_s``" and is drawn as an arrow past the end.
     aset_raw_s : float, optional
         ASET on the raw predictions [s].
     end_s : float, optional
         Last time of the histories [s].
-    uid : str
-        Id prefix for the SVG.
-    """
-    matplotlib, plt = _plt()
-
-    def val(d, k):
-        v = (d or {}).get(k)
-        return None if v is None or not np.isfinite(v) else float(v)
-
-    with matplotlib.rc_context(_RC):
-        fig, ax = plt.subplots(figsize=(FIG_WIDTH_IN, 2.25))
-        left = 0.0
-        seg_handles = []
-        for key, (colour, hatch, label) in SEGMENTS.items():
-            d = val(components_s.get(key, {}), "p50") if components_s else None
-            if d is None:
-                continue
-            h = ax.barh(2, d, left=left, height=0.5, color=colour, hatch=hatch,
-                        edgecolor=SEGMENT_HATCH_COLOUR.get(key, "white"), linewidth=0.5)
-            seg_handles.append((h, f"{label} {fmt_time(d)}"))
-            left += d
-        r05, r50, r95 = (val(rset_s, k) for k in ("p05", "p50", "p95"))
-        a05, a50, a95 = (val(aset_s, k) for k in ("p05", "p50", "p95"))
-        open_ended = a95 is None or a50 is None or a05 is None
-        finite = [x for x in (left, r95, a05, a50, a95, aset_raw_s) if x is not None]
-        if open_ended and end_s is not None:
-            finite.append(float(end_s))
-        xmax = max(finite) * 1.12 if finite else 1.0
-        # ASET band across the chart
-        lo = a05 if a05 is not None else (float(end_s) if end_s is not None else xmax)
-        hi = a95 if a95 is not None else xmax
-        band = ax.axvspan(lo, hi, facecolor=ASET_FILL, hatch="\\\\", edgecolor=ASET_HATCH,
-                          linewidth=0, zorder=0)
-        handles = list(seg_handles)
-        handles.append((band, "ASET p05–p95"))
-        if a50 is not None:
-            ln = ax.axvline(a50, color=ASET, lw=1.4)
-            handles.append((ln, f"ASET p50 {fmt_time(a50)}"))
-        else:
-            (ln,) = ax.plot([], [], color=ASET, lw=1.4)
-            handles.append((ln, f"ASET p50 {fmt_time(None, end_s)}"))
-        if aset_raw_s is not None and np.isfinite(aset_raw_s):
-            ln = ax.axvline(float(aset_raw_s), color=INK, lw=0.9, ls=(0, (1, 1.5)))
-            handles.append((ln, f"ASET raw {fmt_time(aset_raw_s)}"))
-        if end_s is not None and float(end_s) <= xmax:
-            ax.axvline(float(end_s), color="#777777", lw=0.8, ls=(0, (6, 3)))
-            ax.text(float(end_s), 2.45, "end of histories ", fontsize=6.3, color="#555555",
-                    va="bottom", ha="right")
-
-        def interval(y, p05, p50, p95, colour, marker):
-            a = p05 if p05 is not None else xmax
-            b = p95 if p95 is not None else xmax
-            ax.plot([a, b], [y, y], color=colour, lw=2.2, solid_capstyle="butt")
-            ax.plot([a, a], [y - 0.15, y + 0.15], color=colour, lw=1.2)
-            if p95 is not None:
-                ax.plot([b, b], [y - 0.15, y + 0.15], color=colour, lw=1.2)
-            else:
-                ax.annotate("", xy=(xmax, y), xytext=(xmax * 0.97, y),
-                            arrowprops=dict(arrowstyle="-|>", color=colour, lw=1.2))
-            if p50 is not None:
-                ax.plot([p50], [y], marker=marker, color=colour, ms=6, mfc="white", mew=1.4)
-
-        interval(1, r05, r50, r95, INK, "D")
-        interval(0, a05, a50, a95, ASET, "o")
-        ax.set_yticks([0, 1, 2], ["ASET", "RSET p05–p95", "RSET components\n(medians)"])
-        ax.set_ylim(-0.6, 2.8)
-        ax.set_xlim(0, xmax)
-        ax.set_xlabel("Time [s]")
-        ax.grid(axis="y", visible=False)
-        ax.legend([h for h, _ in handles], [lab for _, lab in handles], loc="upper center",
-                  bbox_to_anchor=(0.5, -0.3), ncol=4)
-        fig.tight_layout()
-        return svg_from_figure(fig, uid)
-
-
-def margin_histogram(margin_samples_s: np.ndarray, p_fail: Any, max_p_fail: Any = None,
-                     margin_s: Mapping[str, Any] | None = None, uid: str = "mh") -> str:
-    """Histogram of the Monte Carlo safety margin ASET − RSET with its zero line.
-
-    Parameters
-    ----------
-    margin_samples_s : ndarray, shape (S,)
-        Margin per sample [s]; +inf or NaN marks a sample whose ASET was not reached
-        by the end of the histories (counted and stated, not drawn).
-    p_fail : float
-        Share of samples with ASET < RSET, printed on the chart.
-    max_p_fail : float, optional
-        Acceptance limit on ``p_fail``, printed with it.
-    margin_s : mapping, optional
-        ``{"p05", "p50", "p95"}`` [s]; p05 is drawn as a dashed line.
-    uid : str
-        Id prefix for the SVG.
-    """
-    matplotlib, plt = _plt()
-    m = np.asarray(margin_samples_s, dtype=float).ravel()
-    fin = m[np.isfinite(m)]
-    n_open = int(m.size - fin.size)
-    with matplotlib.rc_context(_RC):
-        fig, ax = plt.subplots(figsize=(FIG_WIDTH_IN, 2.5))
-        if fin.size:
-            lo, hi = float(fin.min()), float(fin.max())
-            span = hi - lo
-            w = span / 40.0 if span > 0 else max(1.0, abs(lo) * 0.05)
-            start = math.floor(min(lo, 0.0 if lo < 0 < hi else lo) / w) * w
-            edges = np.arange(start, hi + w * 1.001, w)
-            if edges.size < 2:
-                edges = np.array([start, start + w])
-            counts, edges = np.histogram(fin, bins=edges)
-            neg = edges[1:] <= 0
-            ax.bar(edges[:-1][neg], counts[neg], width=np.diff(edges)[neg], align="edge",
-                   color=FAIL_FILL, hatch="xxxx", edgecolor=FAIL, linewidth=0.4,
-                   label="ASET < RSET (fails)")
-            ax.bar(edges[:-1][~neg], counts[~neg], width=np.diff(edges)[~neg], align="edge",
-                   color=PASS_FILL, edgecolor=PASS, linewidth=0.4,
-                   label="ASET ≥ RSET")
-        ax.axvline(0.0, color=INK, lw=1.5, label="Zero margin")
-        p05 = (margin_s or {}).get("p05")
-        if p05 is not None and np.isfinite(p05):
-            ax.axvline(float(p05), color=INK, lw=1.0, ls=(0, (4, 2)),
-                       label=f"Margin p05 {fmt_time(p05, signed=True)}")
-        txt = f"P(ASET < RSET) = {fmt_prob(p_fail)}"
-        if max_p_fail is not None:
-            txt += f"\nacceptable if ≤ {fmt_prob(max_p_fail)}"
-        if n_open:
-            txt += f"\n{n_open} of {m.size} samples: ASET not reached"
-        ax.text(0.015, 0.95, txt, transform=ax.transAxes, va="top", ha="left", fontsize=7,
-                bbox=dict(boxstyle="square,pad=0.35", facecolor="white", edgecolor=INK,
-                          linewidth=0.6))
-        ax.set_xlabel("Margin ASET − RSET [s]")
-        ax.set_ylabel("Samples [–]")
-        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.22), ncol=4)
-        fig.tight_layout()
-        return svg_from_figure(fig, uid)
-
-
-def tornado_figure(sensitivity: Sequence[Mapping[str, Any]], base_margin_s: Any = None,
-                   uid: str = "tor") -> str:
-    """One-at-a-time sensitivity of the margin, widest swing on top.
-
-    Parameters
-    ----------
+    margin_samples_s : ndarray, optional
+        Margin per draw [s]; non-finite where no limit is reached. The histogram is
+        drawn only when the finite margins differ (a single value shows nothing).
+    p_fail, max_p_fail : float, optional
+        Printed on the histogram.
+    margin_p05_s : float, optional
+        The margin's 5th percentile [s], drawn dashed.
     sensitivity : sequence of mapping
-        ``{"input", "low", "high", "margin_low_s", "margin_high_s", "swing_s"}``;
-        margins [s].
+        ``{"input", "margin_low_s", "margin_high_s", "swing_s"}``; drawn as a tornado,
+        widest swing on top, when any swing is non-zero.
     base_margin_s : float, optional
-        Margin with every input at its central value [s], drawn dotted.
-    uid : str
-        Id prefix for the SVG.
+        The margin with every input at its median [s] (the centre of the sweep).
+    uid, fmt
+        As for :func:`location_figure`.
     """
     matplotlib, plt = _plt()
-    rows = sorted(sensitivity, key=lambda r: -abs(float(r.get("swing_s") or 0.0)))
-    n = len(rows)
+    m = None if margin_samples_s is None else np.asarray(margin_samples_s, float).ravel()
+    show_hist = m is not None and np.isfinite(m).any() and np.ptp(m[np.isfinite(m)]) > 0
+    rows = sorted(sensitivity or [], key=lambda r: -abs(float(r.get("swing_s") or 0.0)))
+    show_tornado = any(abs(float(r.get("swing_s") or 0.0)) > 0 for r in rows)
+    # Heights in inches: each panel, then below it its x label (0.3) and its legend.
+    panels = [("timeline", 1.45, 0.62)]
+    if show_hist:
+        panels.append(("histogram", 1.3, 0.1))
+    if show_tornado:
+        panels.append(("tornado", 0.24 * len(rows) + 0.3, 0.34))
+    total = 0.1 + sum(h + 0.32 + leg for _, h, leg in panels)
     with matplotlib.rc_context(_RC):
-        fig, ax = plt.subplots(figsize=(FIG_WIDTH_IN, 0.42 * n + 1.1))
-        for i, r in enumerate(rows):
-            y = n - 1 - i
-            a = r.get("margin_low_s")
-            b = r.get("margin_high_s")
-            a = np.nan if a is None else float(a)
-            b = np.nan if b is None else float(b)
-            if not (np.isfinite(a) and np.isfinite(b)):
-                continue
-            ax.barh(y, abs(b - a), left=min(a, b), height=0.55, color=BAND_FILL,
-                    edgecolor=BAND, linewidth=0.6, hatch="///")
-            ax.plot([a], [y], marker="o", color=INK, ms=5, ls="none")
-            ax.plot([b], [y], marker="s", color=INK, ms=5, mfc="white", ls="none")
-        ax.plot([], [], marker="o", color=INK, ls="none", label="input at low value")
-        ax.plot([], [], marker="s", color=INK, mfc="white", ls="none",
-                label="input at high value")
-        ax.axvline(0.0, color=LIMIT, lw=1.3, ls=(0, (5, 2)), label="zero margin")
-        if base_margin_s is not None and np.isfinite(base_margin_s):
-            ax.axvline(float(base_margin_s), color=INK, lw=0.9, ls=(0, (1, 1.5)),
-                       label=f"central margin {fmt_time(base_margin_s, signed=True)}")
-        ax.set_yticks(range(n), [_plain(r.get("input", "?")) for r in reversed(rows)])
-        xs = [0.0] + [float(v) for r in rows for v in (r.get("margin_low_s"),
-                                                        r.get("margin_high_s"))
-                      if v is not None and np.isfinite(v)]
-        if base_margin_s is not None and np.isfinite(base_margin_s):
-            xs.append(float(base_margin_s))
-        pad = 0.06 * (max(xs) - min(xs) or 1.0)
-        ax.set_xlim(min(xs) - pad, max(xs) + pad)
-        ax.set_ylim(-0.7, n - 0.3)
-        ax.set_xlabel("Margin ASET − RSET [s]")
-        ax.grid(axis="y", visible=False)
-        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.18 - 0.2 / max(n, 1)), ncol=2)
-        fig.tight_layout()
-        return svg_from_figure(fig, uid)
+        fig = plt.figure(figsize=(FIG_WIDTH_IN, total))
+        top = 1.0 - 0.1 / total
+        for kind, h, leg in panels:
+            bottom = top - h / total
+            ax = fig.add_axes((0.25, bottom, 0.72, h / total))
+            if kind == "timeline":
+                entries = _timeline(ax, components_s, rset_s, aset_s, aset_raw_s, end_s)
+            elif kind == "histogram":
+                _histogram(ax, m, p_fail, max_p_fail, margin_p05_s)
+                entries = []
+            else:
+                entries = _tornado(ax, rows, base_margin_s)
+            if entries:
+                fig.legend([e[0] for e in entries], [e[1] for e in entries], loc="upper center",
+                           bbox_to_anchor=(0.55, bottom - 0.30 / total), ncol=4, fontsize=6.5)
+            top = bottom - (0.32 + leg) / total
+        return finish(fig, uid, fmt)
 
 
 def credibility_figure(cred: Mapping[str, Mapping[str, Mapping[str, Any]]],
                        labels: Mapping[str, str] | None = None,
                        location_titles: Mapping[str, str] | None = None,
-                       uid: str = "cred") -> str:
-    """Time to limit against cell size, one panel per location.
+                       uid: str = "cred", fmt: str = "png"):
+    """Time to limit against cell size, one panel per location (at most 3 x 3).
 
     Parameters
     ----------
     cred : mapping
         location id -> criterion id (or ``"aset"``) -> ``{"cells": [m],
         "values_s": [s or None], "extrapolated_s": s or None}``. ``None`` values
-        (not reached) are left out of the line.
+        (not reached) are left out; a criterion reached on no grid, and a location
+        with no such criterion, draws no line and no panel. The caller passes at most
+        nine locations (one figure of a page).
     labels : mapping, optional
         criterion id -> printed name.
     location_titles : mapping, optional
         location id -> printed title.
-    uid : str
-        Id prefix for the SVG.
+    uid, fmt
+        As for :func:`location_figure`.
 
     Notes
     -----
@@ -499,18 +497,24 @@ def credibility_figure(cred: Mapping[str, Mapping[str, Mapping[str, Any]]],
     matplotlib, plt = _plt()
     labels = labels or {}
     location_titles = location_titles or {}
-    locs = list(cred)
-    nrows, ncols = _grid_shape(len(locs))
+
+    def reached(d):
+        return any(v is not None for v in d.get("values_s", []))
+
+    panels = [(loc, {cid: d for cid, d in crits.items() if reached(d)}) for loc, crits in cred.items()]
+    panels = [(loc, c) for loc, c in panels if c][:9]
+    nrows, ncols = _grid_shape(len(panels))
+    height = 1.85 * nrows + 0.55
     with matplotlib.rc_context(_RC):
-        fig, axes = plt.subplots(nrows, ncols, figsize=(FIG_WIDTH_IN, 2.0 * nrows + 0.55),
-                                 squeeze=False)
+        fig, axes = plt.subplots(nrows, ncols, figsize=(FIG_WIDTH_IN, height), squeeze=False)
         legend = {}
         for i, ax in enumerate(axes.flat):
-            if i >= len(locs):
+            if i >= len(panels):
                 ax.set_visible(False)
                 continue
-            loc = locs[i]
-            for j, (cid, d) in enumerate(cred[loc].items()):
+            loc, crits = panels[i]
+            for cid, d in crits.items():
+                j = list(labels).index(cid) if cid in labels else len(labels)
                 colour, ls, marker = SERIES_STYLES[j % len(SERIES_STYLES)]
                 cells = np.asarray(d.get("cells", []), dtype=float)
                 vals = np.array([np.nan if v is None else float(v)
@@ -528,23 +532,28 @@ def credibility_figure(cred: Mapping[str, Mapping[str, Mapping[str, Any]]],
                     ax.plot([0.0], [ex], marker=marker, color=colour, mfc="white", ms=5,
                             ls="none")
             ax.set_xlim(left=0.0)
-            ax.set_title(_plain(location_titles.get(loc, loc)), loc="left", fontweight="bold")
-            ax.set_xlabel("Cell size [m]")
-            ax.set_ylabel("Time to limit [s]")
-        (hx,) = axes.flat[0].plot([], [], marker="o", color=INK, mfc="white", ls=(0, (1, 1.5)))
-        handles = list(legend.values()) + [hx]
-        names = list(legend.keys()) + ["extrapolated (zero cell size)"]
-        fig.legend(handles, names, loc="upper center", ncol=min(len(handles), 4),
-                   bbox_to_anchor=(0.5, 1.0))
-        fig.tight_layout(rect=(0, 0, 1, 1 - 0.4 / (2.0 * nrows + 0.55)))
-        return svg_from_figure(fig, uid)
+            title = str(location_titles.get(loc, loc))
+            ax.set_title(_plain(title if len(title) <= 34 else title[:33] + "…"), loc="left",
+                         fontweight="bold", fontsize=7)
+            if i // ncols == nrows - 1 or i + ncols >= len(panels):
+                ax.set_xlabel("Cell size [m]")
+            if i % ncols == 0:
+                ax.set_ylabel("Time to limit [s]")
+        if panels:
+            (hx,) = axes.flat[0].plot([], [], marker="o", color=INK, mfc="white", ls=(0, (1, 1.5)))
+            handles = list(legend.values()) + [hx]
+            names = list(legend.keys()) + ["extrapolated (zero cell size)"]
+            fig.legend(handles, names, loc="upper center", ncol=min(len(handles), 4),
+                       bbox_to_anchor=(0.5, 1.0))
+        fig.subplots_adjust(left=0.09, right=0.985, bottom=0.42 / height, top=1 - 0.62 / height,
+                            wspace=0.30, hspace=0.62)
+        return finish(fig, uid, fmt)
 
 
 __all__ = [
+    "finish",
     "svg_from_figure",
     "location_figure",
-    "timeline_figure",
-    "margin_histogram",
-    "tornado_figure",
+    "route_figure",
     "credibility_figure",
 ]

@@ -1,21 +1,31 @@
 """Render the submittal report: results + plot data -> self-contained HTML -> PDF.
 
 The HTML is built with jinja2 (autoescaping on: location, route and study names come
-from users) from ``report_templates/report.html.j2``; plots are inlined as SVG and the
-CSS is inlined, so ``report.html`` opens anywhere with no other file. WeasyPrint renders
-the same HTML to ``report.pdf`` with the print rules of ``report.css`` (page size, running
-header, "page N of M" footer, table of contents with page numbers).
+from users) from ``report_templates/report.html.j2``; figures are inlined as PNG data
+URIs and the CSS is inlined, so ``report.html`` opens anywhere with no other file.
+WeasyPrint renders the same HTML to ``report.pdf`` with the print rules of
+``report.css`` (page size, running header, "page N of M" footer, contents with page
+numbers).
+
+The report is ordered for review: (1) summary, (2) basis of design, (3) results per
+route, (4) location detail for the locations the routes use, (5) simulation
+credibility, (6) inputs, assumptions and cautions, then an appendix. Each margin is
+defined once, in the summary, and every table uses that definition.
 
 This module only arranges numbers that the pipeline computed; it computes no result.
+Figures are drawn in a process pool when there are enough of them to pay for it.
 """
 
 from __future__ import annotations
 
+import base64
+import multiprocessing as mp
+import os
 from pathlib import Path
-from typing import Any, Iterable, Mapping
+from typing import Any, Mapping
 
 from . import plots
-from .format import FILTERS, fmt_num, fmt_unit
+from .format import FILTERS, fmt_num, fmt_time, fmt_unit, fmt_value
 
 #: Printed names of the criterion ids of the contract (more ids print as themselves).
 CRITERION_LABELS: dict[str, str] = {
@@ -24,8 +34,16 @@ CRITERION_LABELS: dict[str, str] = {
     "heat_flux": "Radiant heat flux",
     "fed_toxic": "FED, asphyxiant gases",
     "fed_heat": "FED, heat",
+    "fec_irritant": "FEC, irritant gases",
     "layer_height": "Smoke layer height",
     "aset": "ASET (earliest criterion)",
+}
+
+#: Short column heads for the location matrix.
+CRITERION_SHORT: dict[str, str] = {
+    "temperature": "Temp.", "visibility": "Visib.", "heat_flux": "Rad. flux",
+    "fed_toxic": "FED tox.", "fed_heat": "FED heat", "fec_irritant": "FEC irr.",
+    "layer_height": "Layer",
 }
 
 #: Printed names of the location series (uncertainty quantities).
@@ -38,7 +56,7 @@ QUANTITY_LABELS: dict[str, str] = {
     "extinction": "Extinction coefficient",
     "optical_density": "Optical density",
     "soot": "Soot concentration",
-    "visibility": "Visibility",
+    "visibility": "Visibility (through the extinction coefficient)",
     "heat_flux": "Radiant heat flux",
     "layer_height": "Layer height",
 }
@@ -46,7 +64,13 @@ QUANTITY_LABELS: dict[str, str] = {
 COMPONENT_LABELS = {"detection": "Detection", "alarm": "Alarm",
                     "premovement": "Pre-movement", "movement": "Movement"}
 
-#: The cautions printed on the title page (short), in the summary and in full at the end.
+#: Printed names of the optional design-fire keys of a scenario, in print order.
+DESIGN_FIRE_LABELS: dict[str, str] = {
+    "growth": "Growth", "peak_hrr": "Peak heat release rate", "sprinklers": "Sprinklers",
+    "ventilation": "Ventilation", "yields": "Yields", "notes": "Notes",
+}
+
+#: The cautions printed on the title page and in full at the end.
 CAUTIONS: tuple[str, ...] = (
     "This analysis supports, and does not replace, the judgment of a qualified fire "
     "engineer.",
@@ -68,10 +92,10 @@ STANDING_LIMITATIONS: tuple[str, ...] = (
     "simulations recorded series; conditions elsewhere are not assessed.",
     "A criterion whose series is missing at a location is reported as not assessed. It "
     "is not counted in ASET there and is never treated as passed.",
-    "A limit not reached by the end of the histories is written as \u201c> end\u201d; "
-    "the true time may be any later time, and conditions after the end are unknown.",
-    "Percentiles and p_fail are Monte Carlo estimates and carry sampling error; a p_fail "
-    "close to the acceptance limit should be read with that in mind.",
+    "A limit not reached by the end of the histories is written \u201c> end\u201d; the "
+    "true time may be any later time, and conditions after the end are unknown.",
+    "Percentiles and p_fail are Monte Carlo estimates and carry sampling error; the "
+    "verdict takes it into account through the 95\u00a0% interval on p_fail.",
     "The design fires, scenarios and egress inputs are the engineer's choice; the tool "
     "checks their form, not their suitability.",
 )
@@ -81,6 +105,10 @@ UNCERTAINTY_METHOD_REFERENCE = (
     "McGrattan, K. and Toman, B. (2011). Quantifying the predictive uncertainty of "
     "complex numerical models. Metrologia 48(3), 173\u2013180."
 )
+
+#: Below this many figures one process draws them faster than starting a pool
+#: (measured on the 2-core reference machine; project choice).
+POOL_MIN_FIGURES = 6
 
 _PAPERS = {"a4": "A4", "letter": "letter"}
 
@@ -123,9 +151,7 @@ def page_size(paper: str) -> str:
 
 # ----------------------------------------------------------------------------- helpers
 
-def _label(cid: str, plot_labels: Mapping[str, str] | None = None) -> str:
-    if plot_labels and cid in plot_labels:
-        return str(plot_labels[cid])
+def _label(cid: str) -> str:
     return CRITERION_LABELS.get(cid, str(cid))
 
 
@@ -143,6 +169,28 @@ def _trio(d: Any) -> dict[str, Any]:
     return {k: d.get(k) for k in ("p05", "p50", "p95")}
 
 
+def _given(value: Any) -> str:
+    """A value from the study as given: mappings as ``key: value; ...``, lists joined."""
+    if isinstance(value, Mapping):
+        return "; ".join(f"{k}: {_given(v)}" for k, v in value.items())
+    if isinstance(value, (list, tuple)):
+        return ", ".join(_given(v) for v in value)
+    return fmt_value(value)
+
+
+def _sentence(text: Any) -> str:
+    """Text ending with exactly one full stop (no "counted.." or a bare fragment)."""
+    t = str(text or "").strip()
+    if not t:
+        return ""
+    return t if t[-1] in ".!?" else t + "."
+
+
+def is_detector(loc: Mapping[str, Any]) -> bool:
+    """A detection point (``role: detector``): not assessed for tenability."""
+    return str(loc.get("role") or "").lower() == "detector"
+
+
 class _Counter:
     def __init__(self) -> None:
         self.n = 0
@@ -152,328 +200,549 @@ class _Counter:
         return self.n
 
 
+class _Figures:
+    """Numbers figures in reading order and records what to draw for each."""
+
+    def __init__(self) -> None:
+        self.items: list[dict[str, Any]] = []
+
+    def add(self, fn: str, caption: str, **kwargs: Any) -> dict[str, Any]:
+        fig = {"number": len(self.items) + 1, "caption": caption, "job": (fn, kwargs),
+               "src": None}
+        self.items.append(fig)
+        return fig
+
+
+def route_margin(rt: Mapping[str, Any], key: str = "p05") -> dict[str, Any]:
+    """The route's margin percentile as the report prints it, in one place.
+
+    Where the percentile is not reached by the end of the histories (enough draws reach
+    no limit), the useful statement is the lower bound computed with ASET set to the end
+    of the histories in those draws (``margin_at_least_s``), printed ``≥ …``.
+    """
+    exact = (rt.get("margin_s") or {}).get(key)
+    if exact is not None:
+        return {"value": exact, "at_least": False}
+    bound = (rt.get("margin_at_least_s") or {}).get(key)
+    return {"value": bound, "at_least": bound is not None}
+
+
+def _verdict_word(v: Any) -> str:
+    return str(v or "").strip().lower()
+
+
 # ------------------------------------------------------------------------ view model
 
 def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None,
-                  paper: str = "A4") -> dict[str, Any]:
-    """Arrange ``results`` (and draw the plots) into the dict the template reads.
+                  paper: str = "A4", generated: str | None = None) -> dict[str, Any]:
+    """Arrange ``results`` into the dict the template reads, with the figures to draw.
 
     Parameters
     ----------
     results : mapping
         The results dict (``results.json`` content, contract keys plus extensions).
+        Keys that other parts of the tool add in turn (``verdict_reason``,
+        ``p_fail_bounds``, ``p_fail_ci95``, ``samples_used``, ``elements``,
+        ``shared_elements``, ``design_fire``, a location's ``role``) are read when
+        present and left out when not.
     plotdata : mapping or None
-        Per-scenario arrays for the figures (see the module docs); missing entries
-        simply leave their figure out.
+        Per-scenario arrays for the figures; missing entries leave their figure out.
     paper : str
         ``A4`` or ``Letter``.
+    generated : str, optional
+        The date printed as the date of the run (results.json carries none).
+
+    Returns
+    -------
+    dict
+        The template context; ``ctx["figures"]`` lists every figure with the job that
+        draws it (see :func:`draw_figures`).
     """
     size = page_size(paper)  # check the paper name before any work
     plotdata = plotdata or {}
-    figs = _Counter()
-    tabs = _Counter()
+    figs = _Figures()
     study_in = results.get("study") or {}
     study = {k: study_in.get(k) for k in ("title", "reference", "prepared_by", "prepared_for",
                                           "paper", "path", "sha256")}
     title = study.get("title") or "Egress margin assessment"
-    acceptance = (results.get("acceptance") or {}).get("max_p_fail")
+    acceptance_in = results.get("acceptance") or {}
+    acceptance = acceptance_in.get("max_p_fail")
     criteria = results.get("criteria") or {}
     applied = criteria.get("applied") or {}
     uncertainty = results.get("uncertainty")
+    raw_only = bool(results.get("raw_only") or (results.get("options") or {}).get("raw_only"))
     scenarios_in = list(results.get("scenarios") or [])
+    criterion_ids = list(applied) or sorted({cid for sc in scenarios_in
+                                             for loc in sc.get("locations") or []
+                                             for cid in loc.get("criteria") or {}})
 
-    toc: list[dict[str, Any]] = []
-    sec = _Counter()
-
-    def add_toc(anchor: str, text: str, level: int = 1) -> str:
-        number = str(sec.next()) if level == 1 else ""
-        toc.append({"anchor": anchor, "text": text, "level": level, "number": number})
-        return number
-
-    numbers = {"summary": add_toc("summary", "Summary"),
-               "method": add_toc("method", "Method")}
-
-    # --- scenarios
-    scenarios = []
-    not_assessed: list[dict[str, Any]] = []
-    seen_na: set[tuple[str, str, str]] = set()
-    summary_rows = []
-    numbers["results"] = add_toc("results", "Results")
+    scenarios, summary_rows, conclusions = [], [], []
+    na_groups: dict[tuple, dict[str, Any]] = {}
+    route_inputs: dict[str, dict[str, Any]] = {}
+    detectors: dict[str, str] = {}
     for i, sc in enumerate(scenarios_in):
         sid = str(sc.get("id", f"scenario-{i + 1}"))
-        sanchor = f"sc{i + 1}"
         end_s = sc.get("end_s")
         pd_sc = plotdata.get(sid) or {}
-        t_s = pd_sc.get("t_s")
-        pd_locs = pd_sc.get("locations") or {}
-        pd_routes = pd_sc.get("routes") or {}
-        add_toc(sanchor, f"Scenario {_named(sc)}", level=2)
-        loc_titles = {str(loc.get("id")): _named(loc) for loc in sc.get("locations") or []}
-
-        locations = []
-        for j, loc in enumerate(sc.get("locations") or []):
-            lid = str(loc.get("id", f"location-{j + 1}"))
-            specs = pd_locs.get(lid) or {}
-            plot_labels = {cid: s.get("label") for cid, s in specs.items() if s.get("label")}
-            rows = []
-            for cid, c in (loc.get("criteria") or {}).items():
-                status = str(c.get("status") or "assessed")
-                row = {
-                    "id": cid, "label": _label(cid, plot_labels),
-                    "limit": c.get("limit"), "unit": c.get("unit"), "status": status,
-                    "assessed": status != "not assessed",
-                    "raw_s": c.get("raw_s"), "corrected_s": _trio(c.get("corrected_s")),
-                    "p_reached": c.get("p_reached"),
-                    "missing_series": list(c.get("missing_series") or []),
-                    "note": c.get("note") or "",
-                    "outside": bool(c.get("outside_validated_range")),
-                }
-                rows.append(row)
-                if not row["assessed"]:
-                    key = (sid, lid, cid)
-                    if key not in seen_na:
-                        seen_na.add(key)
-                        not_assessed.append({
-                            "scenario": sid, "location": _named(loc), "location_id": lid,
-                            "criterion": row["label"], "criterion_id": cid,
-                            "missing_series": row["missing_series"], "note": row["note"],
-                            "routes": []})
-            for cid in loc.get("not_assessed") or []:
-                key = (sid, lid, str(cid))
-                if key not in seen_na:
-                    seen_na.add(key)
-                    not_assessed.append({
-                        "scenario": sid, "location": _named(loc), "location_id": lid,
-                        "criterion": _label(str(cid)), "criterion_id": str(cid),
-                        "missing_series": [], "note": "", "routes": []})
-            figure = None
-            plot_specs = {cid: s for cid, s in specs.items() if s.get("raw") is not None}
-            missing_plots = [r["label"] for r in rows if r["id"] not in plot_specs]
-            if t_s is not None and plot_specs:
-                n = figs.next()
-                raw_times = {r["id"]: r["raw_s"] for r in rows}
-                figure = {
-                    "number": n,
-                    "svg": plots.location_figure(t_s, plot_specs, raw_times, end_s,
-                                                 uid=f"fig{n}"),
-                    "caption": (f"{_named(loc)}: assessed quantities against time, "
-                                "raw prediction with the limit"
-                                + (" and the corrected p05–p95 band"
-                                   if any(s.get("band") is not None
-                                          for s in plot_specs.values()) else "")
-                                + f" (scenario {sid})."
-                                + ("" if not missing_plots else
-                                   " Not plotted (not assessed or no series): "
-                                   + ", ".join(missing_plots) + ".")),
-                }
-            governing = loc.get("governing")
-            governing_raw = loc.get("governing_raw")
-            locations.append({
-                "anchor": f"{sanchor}-loc{j + 1}", "id": lid, "name": _named(loc),
-                "rows": rows, "table_number": tabs.next(), "figure": figure,
-                "aset_raw_s": loc.get("aset_raw_s"), "aset_s": _trio(loc.get("aset_s")),
-                "governing": _label(governing, plot_labels) if governing else None,
-                "governing_raw": _label(governing_raw, plot_labels) if governing_raw else None,
-                "any_outside": any(r["outside"] for r in rows),
-            })
+        locs = list(sc.get("locations") or [])
+        loc_by_id = {str(loc.get("id")): loc for loc in locs}
+        loc_titles = {lid: _named(loc) for lid, loc in loc_by_id.items()}
+        for lid, loc in loc_by_id.items():
+            if is_detector(loc):
+                detectors[lid] = loc_titles[lid]
+        routes_in = list(sc.get("routes") or [])
+        used: list[str] = []
+        exposed_by: dict[str, list[str]] = {}
+        for rt in routes_in:
+            for lid in list(rt.get("exposed_at") or []) + [n.get("location") for n in
+                                                           rt.get("not_assessed") or []] + \
+                    [rt.get("governing_location")]:
+                if lid and str(lid) in loc_by_id and not is_detector(loc_by_id[str(lid)]):
+                    lid = str(lid)
+                    if lid not in used:
+                        used.append(lid)
+                    exposed_by.setdefault(lid, [])
+                    if str(rt.get("id")) not in exposed_by[lid]:
+                        exposed_by[lid].append(str(rt.get("id")))
+        # keep the study's order of locations
+        used = [lid for lid in loc_by_id if lid in used]
+        unused = [lid for lid in loc_by_id if lid not in used and not is_detector(loc_by_id[lid])]
 
         routes = []
-        for k, rt in enumerate(sc.get("routes") or []):
-            rid = str(rt.get("id", f"route-{k + 1}"))
-            for na in rt.get("not_assessed") or []:
-                lid_na, cid_na = str(na.get("location")), str(na.get("criterion"))
-                key = (sid, lid_na, cid_na)
-                if key not in seen_na:
-                    seen_na.add(key)
-                    not_assessed.append({
-                        "scenario": sid, "location": loc_titles.get(lid_na, lid_na),
-                        "location_id": lid_na, "criterion": _label(cid_na),
-                        "criterion_id": cid_na, "missing_series": [], "note": "",
-                        "routes": []})
-                for entry in not_assessed:
-                    if (entry["scenario"], entry["location_id"], entry["criterion_id"]) == key \
-                            and rid not in entry["routes"]:
-                        entry["routes"].append(rid)
-            comps = rt.get("rset_components_s") or {}
-            samples = pd_routes.get(rid) or {}
-            timeline = hist = tornado = None
-            if comps or rt.get("rset_s"):
-                n = figs.next()
-                timeline = {"number": n, "svg": plots.timeline_figure(
-                    comps, _trio(rt.get("rset_s")), _trio(rt.get("aset_s")),
-                    rt.get("aset_raw_s"), end_s, uid=f"fig{n}"),
-                    "caption": (f"Route {_named(rt)}: RSET components at their medians "
-                                "(their sum need not equal the RSET median), the RSET and "
-                                f"ASET p05–p95 intervals and the ASET band (scenario {sid}).")}
-            if samples.get("margin_samples") is not None:
-                n = figs.next()
-                hist = {"number": n, "svg": plots.margin_histogram(
-                    samples["margin_samples"], rt.get("p_fail"), acceptance,
-                    _trio(rt.get("margin_s")), uid=f"fig{n}"),
-                    "caption": (f"Route {_named(rt)}: distribution of the margin ASET − RSET "
-                                f"over the Monte Carlo samples (scenario {sid}).")}
-            sens = list(rt.get("sensitivity") or [])
-            if sens:
-                n = figs.next()
-                tornado = {"number": n, "svg": plots.tornado_figure(
-                    sens, (rt.get("margin_s") or {}).get("p50"), uid=f"fig{n}"),
-                    "caption": (f"Route {_named(rt)}: change of the margin when one input "
-                                f"at a time is set to its low and high value (scenario {sid}).")}
-            along = rt.get("along_route")
-            along_rows = []
-            if isinstance(along, Mapping):
-                for cid, a in (along.get("criteria") or {}).items():
-                    along_rows.append({"label": _label(cid), **_trio(a),
-                                       "limit": a.get("limit"), "exceeds_p": a.get("exceeds_p")})
-            mv = rt.get("movement") or {}
-            gl = rt.get("governing_location")
-            route = {
-                "anchor": f"{sanchor}-rt{k + 1}", "id": rid, "name": _named(rt),
-                "occupants": rt.get("occupants"),
-                "rset_s": _trio(rt.get("rset_s")), "aset_s": _trio(rt.get("aset_s")),
-                "aset_raw_s": rt.get("aset_raw_s"), "margin_s": _trio(rt.get("margin_s")),
-                "margin_raw_s": rt.get("margin_raw_s"), "p_fail": rt.get("p_fail"),
-                "verdict": rt.get("verdict"), "verdict_text": rt.get("verdict_text") or "",
-                "governing_location": loc_titles.get(str(gl), gl) if gl else None,
-                "governing_location_id": str(gl) if gl else None,
-                "governing_criterion": (_label(rt["governing_criterion"])
-                                        if rt.get("governing_criterion") else None),
-                "not_assessed": [{"location": loc_titles.get(str(na.get("location")),
-                                                             na.get("location")),
-                                  "criterion": _label(str(na.get("criterion")))}
-                                 for na in rt.get("not_assessed") or []],
-                "components": [{"label": COMPONENT_LABELS.get(c, c), **_trio(v)}
-                               for c, v in comps.items()],
-                "movement": {"travel_s": mv.get("travel_s"), "flow_s": mv.get("flow_s"),
-                             "controlling_element": mv.get("controlling_element"),
-                             "mode": mv.get("mode")} if mv else None,
-                "timeline": timeline, "histogram": hist, "tornado": tornado,
-                "sensitivity": sens,
-                "along_rows": along_rows,
-                "along_assumptions": list((along or {}).get("assumptions") or [])
-                if isinstance(along, Mapping) else [],
-                "table_number": tabs.next(),
-            }
+        for k, rt in enumerate(routes_in):
+            route = _route_view(rt, sid, f"sc{i + 1}-rt{k + 1}", end_s, loc_titles, acceptance,
+                                (pd_sc.get("routes") or {}).get(str(rt.get("id"))) or {}, figs)
             routes.append(route)
-            summary_rows.append({
-                "scenario": sid, "route": route, "end_s": end_s,
-            })
+            summary_rows.append(route)
+            conclusions.append(route)
+            route_inputs.setdefault(route["id"], {"route": route, "scenarios": []})
+            route_inputs[route["id"]]["scenarios"].append(sid)
+
+        matrix = [_matrix_row(loc_by_id[lid], loc_titles[lid], criterion_ids, exposed_by.get(lid, []))
+                  for lid in used]
+        matrix_unused = [_matrix_row(loc_by_id[lid], loc_titles[lid], criterion_ids, [])
+                         for lid in unused]
+        for lid in used + unused:
+            _collect_not_supplied(na_groups, sid, lid, loc_by_id[lid], loc_titles[lid],
+                                  exposed_by.get(lid, []))
+        loc_figures = []
+        for lid in used:
+            fig = _location_figure(figs, sid, loc_by_id[lid], loc_titles[lid], end_s,
+                                   pd_sc.get("t_s"), (pd_sc.get("locations") or {}).get(lid) or {})
+            if fig:
+                loc_figures.append(fig)
         scenarios.append({
-            "anchor": sanchor, "id": sid, "name": _named(sc), "title": sc.get("title"),
-            "end_s": end_s, "histories": sc.get("histories"),
-            "locations": locations, "routes": routes,
+            "anchor": f"sc{i + 1}", "id": sid, "name": _named(sc), "title": sc.get("title"),
+            "end_s": end_s, "histories": sc.get("histories"), "ignition_s": sc.get("ignition_s"),
+            "design_fire": [(DESIGN_FIRE_LABELS.get(k, str(k)), _given(v))
+                            for k, v in _ordered_design_fire(sc.get("design_fire"))],
+            "routes": routes, "matrix": matrix, "matrix_unused": matrix_unused,
+            "location_figures": loc_figures, "shared_elements": _shared_rows(sc),
         })
 
-    # --- credibility
-    credibility = []
+    credibility = _credibility(scenarios_in, plotdata, figs)
+    not_supplied = sorted(na_groups.values(), key=lambda r: (not r["routes"], r["location"]))
+    verdicts = [_verdict_word(r["verdict"]) for r in summary_rows]
+    corrected = isinstance(uncertainty, Mapping)
+
+    ctx = {
+        "title": title,
+        "study": study,
+        "version": results.get("version"),
+        "generated": generated,
+        "seed": results.get("seed"),
+        "samples": results.get("samples"),
+        "page_size": size,
+        "acceptance": acceptance,
+        "acceptance_method": acceptance_in.get("interval_method") or acceptance_in.get("ci_method"),
+        "corrected": corrected,
+        "raw_only": raw_only,
+        "criteria": {"name": criteria.get("name"), "description": criteria.get("description"),
+                     "sources": list(criteria.get("sources") or []),
+                     "rows": _criteria_rows(applied)},
+        "criterion_ids": criterion_ids,
+        "criterion_heads": [CRITERION_SHORT.get(c, c) for c in criterion_ids],
+        "uncertainty": _uncertainty_view(uncertainty) if corrected else None,
+        "uncertainty_reference": UNCERTAINTY_METHOD_REFERENCE,
+        "egress": _egress_view(results.get("egress_method") or {}),
+        "route_inputs": list(route_inputs.values()),
+        "assumptions": [_sentence(a) for a in results.get("assumptions") or []],
+        "warnings": [_sentence(w) for w in results.get("warnings") or []],
+        "limitations": list(STANDING_LIMITATIONS),
+        "cautions": list(CAUTIONS),
+        "scenarios": scenarios,
+        "summary_rows": summary_rows,
+        "conclusions": conclusions,
+        "n_fail": verdicts.count("fail"),
+        "n_pass": verdicts.count("pass"),
+        "n_indeterminate": verdicts.count("indeterminate"),
+        "n_other": sum(1 for v in verdicts if v not in ("pass", "fail", "indeterminate")),
+        "not_supplied": not_supplied,
+        "n_not_assessed_on_routes": sum(len(r["not_assessed"]) for r in summary_rows),
+        "detectors": sorted(detectors.values()),
+        "credibility": credibility,
+        "inputs": _inputs_view(results.get("inputs") or []),
+        "figures": figs.items,
+        "n_figures": len(figs.items),
+    }
+    return ctx
+
+
+def _ordered_design_fire(df: Any) -> list[tuple[str, Any]]:
+    if not isinstance(df, Mapping):
+        return []
+    keys = [k for k in DESIGN_FIRE_LABELS if k in df] + [k for k in df if k not in DESIGN_FIRE_LABELS]
+    return [(k, df[k]) for k in keys if df[k] not in (None, "", [], {})]
+
+
+def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -> dict[str, Any]:
+    rid = str(rt.get("id", "?"))
+    comps = rt.get("rset_components_s") or {}
+    sens_all = sorted(rt.get("sensitivity") or [], key=lambda r: -abs(float(r.get("swing_s") or 0.0)))
+    base_margin = next((r.get("base_margin_s") for r in sens_all if r.get("base_margin_s") is not None),
+                       None)
+    # Inputs that do not move the margin by a whole second are named in one line, not drawn.
+    sens = [r for r in sens_all if abs(float(r.get("swing_s") or 0.0)) >= 0.5]
+    no_effect = [str(r.get("input")) for r in sens_all if r not in sens]
+    m05, m50 = route_margin(rt, "p05"), route_margin(rt, "p50")
+    gl = rt.get("governing_location")
+    figure = None
+    if comps or rt.get("rset_s"):
+        figure = figs.add(
+            "route_figure",
+            f"Route {_named(rt)} in scenario {sid}: RSET components at their medians (their sum "
+            "need not equal the RSET median), the RSET and ASET p05\u2013p95 intervals"
+            + ("; the margin per Monte Carlo draw" if samples.get("margin_samples") is not None else "")
+            + ("; the margin with one input at a time at its low and high value" if sens else "")
+            + ".",
+            components_s=comps, rset_s=_trio(rt.get("rset_s")), aset_s=_trio(rt.get("aset_s")),
+            aset_raw_s=rt.get("aset_raw_s"), end_s=end_s,
+            margin_samples_s=samples.get("margin_samples"), p_fail=rt.get("p_fail"),
+            max_p_fail=acceptance, margin_p05_s=m05["value"] if not m05["at_least"] else None,
+            sensitivity=sens[:10], base_margin_s=base_margin, uid=f"fig-{anchor}")
+    along = rt.get("along_route") if isinstance(rt.get("along_route"), Mapping) else {}
+    mv = rt.get("movement") or {}
+    ci = rt.get("p_fail_ci95")
+    bounds = rt.get("p_fail_bounds") if isinstance(rt.get("p_fail_bounds"), Mapping) else None
+    na = [{"location": loc_titles.get(str(n.get("location")), n.get("location")),
+           "criterion": _label(str(n.get("criterion")))} for n in rt.get("not_assessed") or []]
+    view = {
+        "anchor": anchor, "id": rid, "name": _named(rt), "scenario": sid, "end_s": end_s,
+        "occupants": rt.get("occupants"),
+        "rset_s": _trio(rt.get("rset_s")), "aset_s": _trio(rt.get("aset_s")),
+        "aset_raw_s": rt.get("aset_raw_s"), "margin_p05": m05, "margin_p50": m50,
+        "p_fail": rt.get("p_fail"),
+        "p_fail_ci95": list(ci) if isinstance(ci, (list, tuple)) and len(ci) == 2 else None,
+        "p_fail_bounds": bounds, "samples_used": rt.get("samples_used"),
+        "verdict": _verdict_word(rt.get("verdict")) or "n/a",
+        "verdict_reason": _sentence(rt.get("verdict_reason")),
+        "verdict_text": _sentence(rt.get("verdict_text")),
+        "governing_location": loc_titles.get(str(gl), gl) if gl else None,
+        "governing_location_id": str(gl) if gl else None,
+        "governing_criterion": _label(rt["governing_criterion"]) if rt.get("governing_criterion") else None,
+        "not_assessed": na,
+        "share_aset_beyond_end": rt.get("share_aset_beyond_end"),
+        "share_not_detected": rt.get("share_not_detected"),
+        "components": [{"label": COMPONENT_LABELS.get(c, c), **_trio(v)} for c, v in comps.items()],
+        "movement": {k: mv.get(k) for k in ("travel_s", "flow_s", "controlling_element",
+                                             "controlling_type", "capacity_p_s")} if mv else None,
+        "movement_notes": [_sentence(n) for n in mv.get("notes") or []],
+        "elements": _element_rows(rt.get("elements")),
+        "inputs": [(str(k), _given(v)) for k, v in (rt.get("inputs") or {}).items()]
+        if isinstance(rt.get("inputs"), Mapping) else [],
+        "figure": figure,
+        "sensitivity": sens,
+        "no_effect": no_effect,
+        "sensitivity_bound": any(r.get("lower_bound") for r in sens),
+        "base_margin_s": base_margin,
+        "along_rows": [{"label": _label(cid), **_trio(a), "limit": a.get("limit"),
+                        "exceeds_p": a.get("exceeds_p")}
+                       for cid, a in (along.get("criteria") or {}).items()],
+        "along_assumptions": [_sentence(a) for a in along.get("assumptions") or []],
+    }
+    view["change"] = _what_would_change(view, acceptance)
+    return view
+
+
+def _what_would_change(rt: Mapping[str, Any], acceptance: Any) -> str:
+    """One sentence: what would change a failing or indeterminate verdict (from the numbers)."""
+    v = rt["verdict"]
+    if v == "pass":
+        if rt["not_assessed"]:
+            return ("The verdict covers only the criteria assessed; supply the missing series "
+                    "to complete it.")
+        return ""
+    words = []
+    m05 = rt["margin_p05"]
+    if v == "fail" and m05["value"] is not None and not m05["at_least"] and m05["value"] < 0:
+        words.append(f"To pass, the margin p05 must rise by at least "
+                     f"{fmt_time(-float(m05['value']))}, by a later ASET or a shorter RSET")
+    sens = [s for s in rt["sensitivity"] if float(s.get("swing_s") or 0.0) > 0]
+    if sens and v in ("fail", "indeterminate"):
+        s = sens[0]
+        words.append(f"the input with the largest effect is {s.get('input')} (margin "
+                     f"{fmt_time(s.get('margin_low_s'), signed=True)} at {fmt_value(s.get('low'))}, "
+                     f"{fmt_time(s.get('margin_high_s'), signed=True)} at {fmt_value(s.get('high'))})")
+    text = "; ".join(words)
+    if v == "indeterminate" and not rt["verdict_reason"]:
+        text = "The evidence does not settle the verdict" + (f"; {text}" if text else "")
+    return _sentence(text[:1].upper() + text[1:]) if text else ""
+
+
+def _element_rows(elements: Any) -> list[dict[str, Any]]:
+    rows = []
+    for j, e in enumerate(elements or []):
+        if not isinstance(e, Mapping):
+            continue
+        shared = e.get("shared_with") or []
+        rows.append({"n": j + 1, "type": e.get("type"), "id": e.get("id") or e.get("element"),
+                     "effective_width_m": e.get("effective_width_m"),
+                     "capacity_p_s": e.get("capacity_p_s"), "speed_m_s": e.get("speed_m_s"),
+                     "clearing_s": e.get("clearing_s"), "queue_s": e.get("queue_s"),
+                     "shared_with": ", ".join(map(str, shared)) if isinstance(shared, (list, tuple))
+                     else str(shared)})
+    return rows
+
+
+def _shared_rows(sc: Mapping[str, Any]) -> list[dict[str, Any]]:
+    rows = []
+    for e in sc.get("shared_elements") or []:
+        if not isinstance(e, Mapping):
+            continue
+        rows.append({"id": e.get("id") or e.get("element"),
+                     "text": "; ".join(f"{k.replace('_', ' ')}: {_given(v)}" for k, v in e.items()
+                                       if k not in ("id", "element"))})
+    return rows
+
+
+def _matrix_row(loc, name, criterion_ids, routes) -> dict[str, Any]:
+    """One location: per criterion the raw and corrected-median times to limit."""
+    cells = []
+    crit = loc.get("criteria") or {}
+    for cid in criterion_ids:
+        c = crit.get(cid)
+        if c is None:
+            cells.append({"kind": "absent"})
+        elif str(c.get("status")) == "not assessed":
+            cells.append({"kind": "na"})
+        else:
+            cells.append({"kind": "ok", "raw_s": c.get("raw_s"),
+                          "p50": (c.get("corrected_s") or {}).get("p50"),
+                          "partial": bool(c.get("missing_series")),
+                          "outside": bool(c.get("outside_validated_range"))})
+    return {"id": str(loc.get("id")), "name": name, "cells": cells, "routes": routes,
+            "aset_raw_s": loc.get("aset_raw_s"), "aset_s": _trio(loc.get("aset_s")),
+            "governing": _label(loc["governing"]) if loc.get("governing") else None}
+
+
+def _collect_not_supplied(groups, sid, lid, loc, name, routes) -> None:
+    """Group what a location lacks (criteria not assessed, doses without a gas) across scenarios."""
+    crit = loc.get("criteria") or {}
+    na = [(cid, tuple(c.get("missing_series") or [])) for cid, c in crit.items()
+          if str(c.get("status")) == "not assessed"]
+    partial = [(cid, tuple(c.get("missing_series") or [])) for cid, c in crit.items()
+               if str(c.get("status")) != "not assessed" and c.get("missing_series")]
+    if not na and not partial:
+        return
+    key = (lid, tuple(na), tuple(partial))
+    row = groups.setdefault(key, {
+        "location": name, "location_id": lid,
+        "not_assessed": [f"{_label(cid)} (needs {', '.join(ms) or 'its series'})" for cid, ms in na],
+        "partial": [f"{_label(cid)} without {', '.join(ms)}" for cid, ms in partial],
+        "scenarios": [], "routes": []})
+    row["scenarios"].append(sid)
+    for r in routes:
+        if r not in row["routes"]:
+            row["routes"].append(r)
+
+
+def _location_figure(figs, sid, loc, name, end_s, t_s, specs) -> dict[str, Any] | None:
+    """The location's quantities whose limit is reached (raw or in some draw), or none."""
+    if t_s is None:
+        return None
+    crit = loc.get("criteria") or {}
+    show = {}
+    for cid, spec in specs.items():
+        c = crit.get(cid) or {}
+        if spec.get("raw") is None or str(c.get("status")) == "not assessed":
+            continue
+        if c.get("raw_s") is not None or (c.get("p_reached") or 0) > 0:
+            show[cid] = dict(spec, label=spec.get("label") or _label(cid))
+    if not show:
+        return None
+    band = any(s.get("band") is not None for s in show.values())
+    quiet = [_label(cid) for cid, c in crit.items()
+             if cid not in show and str(c.get("status")) != "not assessed"]
+    caption = (f"{name}, scenario {sid}: the quantities whose limit is reached, raw prediction"
+               + (" with the corrected p05\u2013p95 band" if band else "") + " and the limit."
+               + (f" Not drawn (limit not reached by the end): {', '.join(quiet)}." if quiet else ""))
+    return figs.add("location_figure", caption, t_s=t_s, specs=show,
+                    raw_times_s={cid: crit.get(cid, {}).get("raw_s") for cid in show},
+                    end_s=end_s, uid=f"fig-{sid}-{loc.get('id')}")
+
+
+def _credibility(scenarios_in, plotdata, figs) -> list[dict[str, Any]]:
+    out = []
     for i, sc in enumerate(scenarios_in):
         cred = sc.get("credibility")
         if not isinstance(cred, Mapping):
             continue
         sid = str(sc.get("id"))
-        loc_titles = {str(loc.get("id")): _named(loc) for loc in sc.get("locations") or []}
+        locs = {str(loc.get("id")): loc for loc in sc.get("locations") or []}
+        skip = {lid for lid, loc in locs.items() if is_detector(loc)}
+        titles = {lid: _named(loc) for lid, loc in locs.items()}
         resolutions = list(cred.get("resolutions") or [])
-        rows = []
+        rows, not_reached = [], 0
         for cl in cred.get("locations") or []:
             lid = str(cl.get("id"))
+            if lid in skip:
+                continue
             entries = list((cl.get("criteria") or {}).items())
             if isinstance(cl.get("aset"), Mapping):
                 entries.append(("aset", cl["aset"]))
             for cid, c in entries:
+                values = _by_resolution(resolutions, c.get("cells_m"), c.get("values_s"))
+                reached = any(v is not None for v in values)
+                if not reached:
+                    not_reached += 1
+                    continue
                 rows.append({
                     "location": lid, "criterion": "ASET" if cid == "aset" else _label(cid),
-                    "values_s": list(c.get("values_s") or []),
-                    "relative_change": c.get("relative_change"),
-                    "flagged": c.get("flagged"), "convergence": c.get("convergence"),
+                    "values_s": values, "relative_change": c.get("relative_change"),
+                    "flagged": bool(c.get("flagged")), "convergence": c.get("convergence"),
                     "order": c.get("order"), "extrapolated_s": c.get("extrapolated_s"),
-                    "gci": c.get("gci"), "note": c.get("note") or "",
-                })
-        figure = None
-        pd_cred = (plotdata.get(sid) or {}).get("credibility") or {}
-        if pd_cred:
-            n = figs.next()
-            figure = {"number": n, "svg": plots.credibility_figure(
-                pd_cred, {cid: _label(cid) for cid in CRITERION_LABELS}, loc_titles,
-                uid=f"fig{n}"),
-                "caption": (f"Scenario {sid}: time to limit against cell size, with the "
-                            "value extrapolated to zero cell size where one was estimated.")}
-        credibility.append({"scenario": sid, "name": _named(sc), "end_s": sc.get("end_s"),
-                            "resolutions": resolutions, "threshold": cred.get("threshold"),
-                            "rows": rows, "figure": figure, "table_number": tabs.next(),
-                            "anchor": f"cred{i + 1}"})
-    if credibility:
-        numbers["credibility"] = add_toc("credibility", "Simulation credibility")
-    numbers["assumptions"] = add_toc("assumptions", "Assumptions and limitations")
-    numbers["inputs"] = add_toc("inputs", "Inputs")
-    numbers["appendix"] = add_toc("appendix", "Appendix: criteria and constants")
-    numbers["cautions"] = add_toc("cautions", "Cautions")
+                    "gci": c.get("gci"), "note": _sentence(c.get("note"))})
+        pd_cred = {lid: v for lid, v in ((plotdata.get(sid) or {}).get("credibility") or {}).items()
+                   if lid not in skip}
+        figures = []
+        panels = [lid for lid, crits in pd_cred.items()
+                  if any(any(v is not None for v in d.get("values_s", [])) for d in crits.values())]
+        for start in range(0, len(panels), 9):
+            chunk = {lid: pd_cred[lid] for lid in panels[start:start + 9]}
+            figures.append(figs.add(
+                "credibility_figure",
+                f"Scenario {sid}: time to limit against cell size"
+                + (f" (locations {start + 1}\u2013{start + len(chunk)} of {len(panels)})"
+                   if len(panels) > 9 else "")
+                + ", with the value extrapolated to zero cell size where one was estimated; "
+                "criteria reached on no grid are not drawn.",
+                cred=chunk, labels={cid: _label(cid) for cid in CRITERION_LABELS},
+                location_titles={lid: titles.get(lid, lid) for lid in chunk},
+                uid=f"fig-cred-{sid}-{start}"))
+        out.append({"scenario": sid, "name": _named(sc), "end_s": sc.get("end_s"),
+                    "resolutions": resolutions, "threshold": cred.get("threshold"),
+                    "method": cred.get("method"), "rows": rows, "not_reached": not_reached,
+                    "n_flagged": sum(1 for r in rows if r["flagged"]),
+                    "figures": figures, "anchor": f"cred{i + 1}"})
+    return out
 
-    # --- criteria, uncertainty, egress, inputs
-    criteria_rows = []
+
+def _by_resolution(resolutions, cells, values) -> list[Any]:
+    """Values in the order of the table's columns (the study's resolutions).
+
+    The grid study returns its values sorted fine to coarse with their cell sizes
+    (``cells_m``); the columns follow the order the study lists the resolutions in.
+    """
+    values = list(values or [])
+    if not cells or len(cells) != len(values):
+        return values + [None] * (len(resolutions) - len(values))
+    by_cell = {round(float(h), 9): v for h, v in zip(cells, values)}
+    return [by_cell.get(round(float(h), 9)) for h in resolutions]
+
+
+def _criteria_rows(applied: Mapping[str, Any]) -> list[dict[str, Any]]:
+    rows = []
     for cid, c in applied.items():
         c = c if isinstance(c, Mapping) else {"limit": c}
         extra = [(k, v) for k, v in c.items()
-                 if k not in ("limit", "unit", "source", "sources", "method")]
+                 if k not in ("limit", "unit", "source", "sources", "method", "limit_text")]
         src = c.get("source") or c.get("sources")
-        criteria_rows.append({"id": cid, "label": _label(cid), "limit": c.get("limit"),
-                              "unit": c.get("unit"), "method": c.get("method"),
-                              "source": src, "extra": extra})
-    unc = None
-    if isinstance(uncertainty, Mapping):
-        qrows = []
-        for q, s in (uncertainty.get("quantities") or {}).items():
-            rng = s.get("range") if isinstance(s, Mapping) else None
-            qrows.append({"id": q, "label": QUANTITY_LABELS.get(q, q),
-                          "bias": s.get("bias"), "sigma_model": s.get("sigma_model"),
-                          "sigma_exp": s.get("sigma_exp"),
-                          "range": (f"{fmt_num(rng.get('min'))}–{fmt_num(rng.get('max'))}"
-                                    + (f" {fmt_unit(rng.get('unit'))}"
-                                       if rng.get("unit") else ""))
-                          if isinstance(rng, Mapping) else None})
-        unc = {"source": uncertainty.get("source"),
-               "distribution": uncertainty.get("distribution") or "lognormal",
-               "path": uncertainty.get("path"), "sha256": uncertainty.get("sha256"),
-               "quantities": qrows}
-    egress = results.get("egress_method") or {}
-    inputs = []
-    for f in results.get("inputs") or []:
-        inputs.append({"path": f.get("path"), "sha256": f.get("sha256"),
-                       "rows": f.get("rows"), "t_start_s": f.get("t_start_s"),
-                       "t_end_s": f.get("t_end_s"),
-                       "columns": list(f.get("columns") or [])})
+        rows.append({"id": cid, "label": _label(cid), "limit": c.get("limit"), "unit": c.get("unit"),
+                     "method": c.get("method"), "extra": extra,
+                     "source": src if isinstance(src, str) or not src else "; ".join(map(str, src))})
+    return rows
 
-    verdicts = [r["route"]["verdict"] for r in summary_rows]
-    ctx = {
-        "title": title,
-        "study": study,
-        "version": results.get("version"),
-        "generated": results.get("generated"),
-        "seed": results.get("seed"),
-        "samples": results.get("samples"),
-        "page_size": size,
-        "acceptance": acceptance,
-        "criteria": {"name": criteria.get("name"), "description": criteria.get("description"),
-                     "sources": list(criteria.get("sources") or []), "rows": criteria_rows},
-        "uncertainty": unc,
-        "uncertainty_reference": UNCERTAINTY_METHOD_REFERENCE,
-        "egress": {"name": egress.get("name"), "text": egress.get("text"),
-                   "constants": list(egress.get("constants") or [])},
-        "assumptions": list(results.get("assumptions") or []),
-        "warnings": list(results.get("warnings") or []),
-        "limitations": list(STANDING_LIMITATIONS),
-        "cautions": list(CAUTIONS),
-        "scenarios": scenarios,
-        "summary_rows": summary_rows,
-        "n_fail": sum(1 for v in verdicts if str(v).lower() == "fail"),
-        "n_pass": sum(1 for v in verdicts if str(v).lower() == "pass"),
-        "not_assessed": not_assessed,
-        "credibility": credibility,
-        "inputs": inputs,
-        "toc": toc,
-        "numbers": numbers,
-        "n_figures": figs.n,
-    }
-    return ctx
+
+def _uncertainty_view(uncertainty: Mapping[str, Any]) -> dict[str, Any]:
+    qrows = []
+    for q, s in (uncertainty.get("quantities") or {}).items():
+        rng = s.get("range") if isinstance(s, Mapping) else None
+        if isinstance(rng, Mapping):
+            rng = (f"{fmt_num(rng.get('min'))}\u2013{fmt_num(rng.get('max'))}"
+                   + (f" {fmt_unit(rng.get('unit'))}" if rng.get("unit") else ""))
+        qrows.append({"id": q, "label": QUANTITY_LABELS.get(q, q), "bias": s.get("bias"),
+                      "sigma_model": s.get("sigma_model"), "sigma_exp": s.get("sigma_exp"),
+                      "basis": s.get("basis"), "range": rng or None})
+    return {"source": uncertainty.get("source"),
+            "distribution": uncertainty.get("distribution") or "lognormal",
+            "path": uncertainty.get("path"), "sha256": uncertainty.get("sha256"),
+            "quantities": qrows}
+
+
+def _egress_view(egress: Mapping[str, Any]) -> dict[str, Any]:
+    name = str(egress.get("name") or "").strip().rstrip(".")
+    return {"name": name[:1].upper() + name[1:] if name else "",
+            "text": _sentence(egress.get("text")),
+            "constants": list(egress.get("constants") or [])}
+
+
+def _inputs_view(inputs) -> list[dict[str, Any]]:
+    out = []
+    for f in inputs:
+        cols = [c for c in f.get("columns") or [] if c.get("series") not in (None, "time")]
+        out.append({"path": f.get("path"), "sha256": f.get("sha256"), "role": f.get("role"),
+                    "rows": f.get("rows"), "t_start_s": f.get("t_start_s"),
+                    "t_end_s": f.get("t_end_s"),
+                    "columns": "; ".join(
+                        f"{c.get('column')} \u2192 {c.get('series')}"
+                        + (f" at {c.get('location')}" if c.get("location") else "")
+                        + (f" [{fmt_unit(c.get('unit_as_read'))}]" if c.get("unit_as_read") else "")
+                        for c in cols)})
+    return out
+
+
+# ----------------------------------------------------------------------------- figures
+
+def _draw(job: tuple[str, dict[str, Any]]) -> bytes:
+    fn, kwargs = job
+    return getattr(plots, fn)(**kwargs)
+
+
+def _pool_size(n_figures: int) -> int:
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    if n_figures < POOL_MIN_FIGURES or cores < 2 or "fork" not in mp.get_all_start_methods():
+        return 1
+    return min(cores, 4)
+
+
+def draw_figures(figures: list[dict[str, Any]], progress: Any = None) -> None:
+    """Draw every figure (PNG) and set its ``src`` data URI; in a process pool when it pays.
+
+    The figures are independent, so the order they are drawn in does not change a byte.
+    """
+    if progress is not None:
+        progress.stage("figures", total=len(figures))
+    jobs = [f["job"] for f in figures]
+    workers = _pool_size(len(jobs))
+    if workers > 1:
+        from concurrent.futures import ProcessPoolExecutor, as_completed
+
+        with ProcessPoolExecutor(workers, mp_context=mp.get_context("fork")) as pool:
+            futures = {pool.submit(_draw, job): k for k, job in enumerate(jobs)}
+            images: list[bytes | None] = [None] * len(jobs)
+            for fut in as_completed(futures):
+                images[futures[fut]] = fut.result()
+                if progress is not None:
+                    progress.step()
+    else:
+        images = []
+        for job in jobs:
+            images.append(_draw(job))
+            if progress is not None:
+                progress.step()
+    for fig, png in zip(figures, images):
+        fig["png"] = png
+        fig["src"] = "data:image/png;base64," + base64.b64encode(png).decode("ascii")
 
 
 # ----------------------------------------------------------------------------- render
@@ -493,68 +762,63 @@ def _environment():
 
 
 def render_html(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None = None,
-                paper: str = "A4") -> str:
-    """The report as one self-contained HTML string (inline CSS and SVG plots)."""
-    return _render(results, plotdata, paper)[0]
+                paper: str = "A4", generated: str | None = None) -> str:
+    """The report as one self-contained HTML string (inline CSS and PNG figures)."""
+    return _render(results, plotdata, paper, generated)[0]
 
 
-def _render(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None,
-            paper: str) -> tuple[str, list[dict[str, Any]]]:
-    """The HTML and the figures in it (number, svg, caption)."""
+def _render(results, plotdata, paper, generated=None, progress=None):
+    """The HTML and the figures in it (number, caption, png, src)."""
     from markupsafe import Markup
 
-    ctx = build_context(results, plotdata, paper)
+    ctx = build_context(results, plotdata, paper, generated)
+    draw_figures(ctx["figures"], progress)
     css = (templates_dir() / "report.css").read_text(encoding="utf-8")
-    env = _environment()
-    # The stylesheet and the SVG plots are ours (not user text): mark them safe.
-    ctx["css"] = Markup(css)
-    figures = list(_iter_figures(ctx))
-    for fig in figures:
-        fig["svg"] = Markup(fig["svg"])
-    return env.get_template("report.html.j2").render(**ctx), figures
+    ctx["css"] = Markup(css)  # the stylesheet is ours, not user text
+    return _environment().get_template("report.html.j2").render(**ctx), ctx["figures"]
 
 
-def _iter_figures(ctx: Mapping[str, Any]) -> Iterable[dict[str, Any]]:
-    for sc in ctx["scenarios"]:
-        for loc in sc["locations"]:
-            if loc["figure"]:
-                yield loc["figure"]
-        for rt in sc["routes"]:
-            for key in ("timeline", "histogram", "tornado"):
-                if rt[key]:
-                    yield rt[key]
-    for cr in ctx["credibility"]:
-        if cr["figure"]:
-            yield cr["figure"]
+def _fetcher():
+    """WeasyPrint URL fetcher that loads inline ``data:`` URIs only: the report is
+    self-contained, so any other fetch is refused and stops the rendering."""
+    try:
+        from weasyprint.urls import URLFetcher
+    except ImportError:          # WeasyPrint before 68: a plain function is the fetcher
+        import weasyprint
+
+        def fetch(url: str, *args: Any, **kwargs: Any) -> dict:
+            if url.startswith("data:"):
+                return weasyprint.default_url_fetcher(url, *args, **kwargs)
+            raise ValueError(f"report.html must be self-contained; refused to fetch {url!r}")
+        return fetch
+    return URLFetcher(allowed_protocols={"data"}, fail_on_errors=True)
 
 
-def _refuse_fetch(url: str, *args: Any, **kwargs: Any) -> dict:
-    """WeasyPrint URL fetcher that loads nothing: the report is self-contained."""
-    raise ValueError(f"report.html must be self-contained; refused to fetch {url!r}")
-
-
-def write_pdf(html: str, path: Path) -> Path:
+def write_pdf(html: str, path: Path, progress: Any = None) -> Path:
     """Render ``html`` to a PDF at ``path`` with WeasyPrint (no external fetches)."""
     import logging
 
     import weasyprint
 
-    # WeasyPrint reads the inline SVG style attributes as CSS and warns once per SVG
-    # property (fill, stroke ...) it does not know as CSS, although its SVG renderer
-    # draws them. Quieten its logger for this call only.
     logger = logging.getLogger("weasyprint")
     level = logger.level
     logger.setLevel(logging.ERROR)
     try:
-        weasyprint.HTML(string=html, url_fetcher=_refuse_fetch,
-                        base_url=str(path.parent)).write_pdf(str(path))
+        if progress is not None:
+            progress.stage("PDF layout")
+        document = weasyprint.HTML(string=html, url_fetcher=_fetcher(),
+                                   base_url=str(path.parent)).render()
+        if progress is not None:
+            progress.stage("PDF writing")
+        document.write_pdf(str(path))
     finally:
         logger.setLevel(level)
     return path
 
 
 def render_report(results: dict, plotdata: dict, out_dir: Path, paper: str = "A4",
-                  pdf: bool = True, progress=None, generated: str | None = None) -> dict[str, Path]:
+                  pdf: bool = True, progress: Any = None, generated: str | None = None
+                  ) -> dict[str, Path]:
     """Write ``report.html`` (and ``report.pdf``) into ``out_dir``.
 
     Parameters
@@ -570,34 +834,33 @@ def render_report(results: dict, plotdata: dict, out_dir: Path, paper: str = "A4
     pdf : bool
         Also render ``report.pdf`` with WeasyPrint.
     progress : object, optional
-        ``stage(name, total)``, ``step(n)``, ``done()`` (see :mod:`egressmargin.progress`).
+        Told of the stages: ``stage("figures", total=N)`` and ``step()`` per figure,
+        ``stage("PDF layout")``, ``stage("PDF writing")``.
     generated : str, optional
-        The run's date-time the report prints (ISO 8601); results.json carries none.
+        Date of the run as printed on the cover (results.json carries none).
 
     Returns
     -------
     dict of str to Path
-        ``{"html": .../report.html}``, ``"plots": .../plots`` (one SVG file a figure, numbered
-        as in the report) and, with ``pdf``, ``"pdf": .../report.pdf``.
+        ``{"html": .../report.html}``, ``"plots": .../plots`` (one PNG file a figure,
+        numbered as in the report) and, with ``pdf``, ``"pdf": .../report.pdf``.
     """
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
-    results = results if generated is None else {**results, "generated": generated}
-    html, figures = _render(results, plotdata, paper)
+    html, figures = _render(results, plotdata, paper, generated, progress)
     paths = {"html": out_dir / "report.html"}
     paths["html"].write_text(html, encoding="utf-8")
     if figures:
-        # Each figure also as its own SVG file, numbered as in the report.
         plot_dir = out_dir / "plots"
         plot_dir.mkdir(exist_ok=True)
         for fig in figures:
-            (plot_dir / f"figure-{int(fig['number']):03d}.svg").write_text(
-                '<?xml version="1.0" encoding="utf-8"?>\n' + str(fig["svg"]), encoding="utf-8")
+            (plot_dir / f"figure-{int(fig['number']):03d}.png").write_bytes(fig["png"])
         paths["plots"] = plot_dir
     if pdf:
-        paths["pdf"] = write_pdf(html, out_dir / "report.pdf")
+        paths["pdf"] = write_pdf(html, out_dir / "report.pdf", progress)
     return paths
 
 
-__all__ = ["render_report", "render_html", "build_context", "templates_dir", "page_size",
-           "write_pdf", "CAUTIONS", "STANDING_LIMITATIONS", "CRITERION_LABELS"]
+__all__ = ["render_report", "render_html", "build_context", "draw_figures", "templates_dir",
+           "page_size", "write_pdf", "route_margin", "CAUTIONS", "STANDING_LIMITATIONS",
+           "CRITERION_LABELS"]
