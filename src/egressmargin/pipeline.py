@@ -20,7 +20,6 @@ from .credibility import flag_change, grid_convergence
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
 from .stats import share, summarise
-from .tenability.crossing import cumulative_trapezoid
 from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
 from .verdict import CI_METHOD, decide, needs_more_samples
@@ -474,8 +473,8 @@ def _dose_curves(prep, c, rows, sub, S) -> dict:
     engine does), never read off the engine's cached grid of factor values: a grid node
     is a corrected curve, not the raw one. The band comes from the Monte Carlo grid.
     """
-    rate = aset.dose_rate(c, aset.corrected_inputs(prep, aset.dose_quantities(c), {}, rows))
-    raw_dose = cumulative_trapezoid(prep.t_s, np.broadcast_to(rate, (len(rows), len(prep.t_s))))
+    raw_dose = aset.cumulative_dose(c, prep.t_s, aset.corrected_inputs(prep, aset.dose_quantities(c), {}, rows),
+                                    (len(rows), len(prep.t_s)))
     fld = aset.dose_field(prep, c, sub, S, rows) if S else None
     out = {}
     for j, li in enumerate(rows):
