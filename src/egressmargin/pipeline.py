@@ -73,6 +73,7 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
     if unc_path is not None and not options.raw_only:
         try:
             table = load_table(Path(unc_path))
+            warnings.extend(table.warnings)
         except InputError as exc:
             problems.extend(exc.problems)
     data, res = {}, {}
@@ -210,6 +211,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     end = data.end_s
     locations = []
     governing_raw = []
+    range_warnings: list[str] = []
     for li, lid in enumerate(prep.ids):
         if spec.locations[li].role == "detector":
             # a detection point: not assessed for tenability, and not counted as "not assessed"
@@ -238,6 +240,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                 entry["outside_validated_range"] = bool(flag)
                 if flag:
                     entry["range_note"] = flag
+                    range_warnings.append(f"scenario {spec.id}, location {lid}, {cid}: {flag}")
             else:
                 na.append(cid)
                 entry.update({"raw_s": None, "corrected_s": {"p05": None, "p50": None, "p95": None},
@@ -325,6 +328,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
     scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),
+                "warnings": range_warnings,
                 "ignition_s": data.ignition_s, "clock": data.clock_note or "times count from the histories' first time (0 s), taken as ignition",
                 "locations": locations, "routes": routes}
     if spec.design_fire:
@@ -632,7 +636,7 @@ def build_results(loaded: Loaded, options: RunOptions):
         "egress_method": egress_method(),
         "acceptance": {"max_p_fail": study.max_p_fail},
         "assumptions": assumptions(loaded),
-        "warnings": [str(w) for w in loaded.warnings],
+        "warnings": [str(w) for w in loaded.warnings] + [w for sc in scenarios for w in sc["warnings"]],
         "scenarios": scenarios,
     }
     return results, plots
