@@ -18,6 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__, aset, assess
+from .egress import summary as egress_summary
 from .credibility import flag_change, grid_convergence
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
@@ -237,14 +238,17 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             {cid: aset.CriterionResult(np.repeat(r.times, R, axis=1), r.assessed, r.missing) for cid, r in raw.items()}
         sweep = (sweep_factors, sweep_index, aset.location_aset(sweep_res))
     routes, route_plots = [], {}
+    fac = factors if factors else {}
+    specs_here = [r for _, r in routes_here]
+    egress = assess.scenario_egress(specs_here, prep, fac, [assess.egress_uniforms(seed, ri, S)
+                                                            for ri, _ in routes_here], study.elements)
+    # raw deterministic margin: raw ASET against RSET at median inputs
+    egress_med = assess.scenario_egress(specs_here, prep, {}, [assess.EgressDraws.median()] * len(specs_here),
+                                        study.elements)
     for ri, route in routes_here:
-        draws = assess.egress_uniforms(seed, ri, S)
-        fac = factors if factors else {}
-        out = assess.outcome(route, prep, fac, loc_aset, raw_aset, governing_raw, draws, study.max_p_fail)
-        # raw deterministic margin: raw ASET against RSET at median inputs
-        med = assess.EgressDraws(np.full(1, 0.5), np.full(1, 0.5), np.full(1, 0.5))
-        rset_med, _, _ = assess.route_rset(route, prep, {}, med)
-        margin_raw = out.aset_raw - float(rset_med[0])
+        out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, egress.routes[route.id],
+                             study.max_p_fail)
+        margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
         na = [{"location": loc, "criterion": cid} for loc in route.exposed_at
               for cid in locations[prep.ids.index(loc)]["not_assessed"]]
         entry = {
@@ -257,6 +261,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                          "controlling_type": route.path[out.movement.controlling]["type"],
                          "capacity_p_s": round(float(out.movement.capacities_p_s[out.movement.controlling]), 4),
                          "mode": route.movement_mode, "notes": list(out.movement.notes)},
+            **egress_summary.route_keys(route, egress.routes[route.id], egress.nodes, out.extras["location_aware"]),
             "aset_raw_s": _t(out.aset_raw), "aset_s": summarise(out.aset),
             "governing_location": out.governing_location, "governing_criterion": out.governing_criterion,
             "margin_s": summarise(out.margin), "margin_raw_s": _t(margin_raw),
@@ -274,15 +279,15 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         entry["criteria_assessed"] = assessed_any
         entry["verdict_text"] = _verdict_text(entry, study.max_p_fail, undetected.any())
         if route.along_route:
-            entry["along_route"] = assess.along_route_dose(route, prep, crit, fac, S, out.components,
-                                                           out.movement)
+            entry["along_route"] = assess.along_route_dose(route, prep, crit, fac, S, egress.routes[route.id])
         sf, si, sa = sweep
         labels = {k: _label(k) for k in si_keys(si)}
-        entry["sensitivity"] = assess.sensitivity(route, prep, sf, si, sa, labels)
+        entry["sensitivity"] = assess.sensitivity(route, specs_here, prep, sf, si, sa, labels, study.elements)
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
     scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),
-                "locations": locations, "routes": routes}
+                "locations": locations, "routes": routes,
+                "shared_elements": egress_summary.shared_keys(egress.nodes, study.elements) if routes_here else []}
     cred, cred_plot = credibility(loaded, index, crit)
     if cred is not None:
         scenario["credibility"] = cred
