@@ -145,3 +145,23 @@ def test_at_and_start_at_must_be_locations_and_every_problem_is_reported(kit, ma
     assert "egress[0].path[0].corridor.at" in err and "location 'hall-l2' does not exist" in err
     assert "egress[0].start_at" in err and "did you mean 'hall-l1'?" in err
     assert "egress[0].movement" in err and "steeper than every row" in err
+
+
+def test_validate_explain_prints_the_hand_calculation(kit, make_study, cli):
+    """Hand (SFPE Handbook ch. 59 constants, from memory): corridor 2.0 m -> We 1.6 m,
+    Fc 1.3 x 1.6 = 2.08 persons/s; door 1.0 m -> We 0.7 m, Fc 0.910; stair 1.2 m ->
+    We 0.9 m, Fc 1.01 x 0.9 = 0.909 persons/s: the stair controls. At its own flow
+    Fs = 1.01: D = (1 - sqrt(1 - 4 x 0.266 x 1.01/1.08))/(2 x 0.266) = 1.747 persons/m^2,
+    S = 1.08 (1 - 0.266 x 1.747) = 0.578 m/s. Hand movement: 20/1.19 + 12/0.578 =
+    37.6 s travel + 120/0.909 = 132.0 s -> 169.6 s."""
+    status, out, err = cli(["validate", make_study(), "--explain"])
+    assert status == 0, err
+    rows = {line.split()[0]: line for line in out.splitlines() if line.strip()[:1].isdigit()}
+    assert "1.600" in rows["1"] and "2.080" in rows["1"] and "unimpeded" in rows["1"] and "1.190" in rows["1"]
+    assert "0.700" in rows["2"] and "0.910" in rows["2"]
+    stair = rows["3"].split()
+    assert stair[-1] == "controlling"
+    assert stair[3:7] == ["0.900", "1.08", "1.01", "0.909"]     # We, k, Fsm, Fc
+    assert stair[8:11] == ["1.010", "1.747", "0.578"]            # Fs, D, S
+    assert "travel 37.6 s + 120 / 0.909 = 132.0 s -> 169.6 s" in out
+    assert "stair length: length along the slope, as given" in out

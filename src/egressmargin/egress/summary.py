@@ -18,6 +18,7 @@ from .flow import crowd_speed, density_for_flow
 from .movement import element_properties
 
 __all__ = ["ElementExplain", "ElementRecord", "LocationRecord", "SharedElementRecord", "explain_route",
+           "explain_text",
            "premovement_meaning", "route_keys", "shared_keys", "to_json"]
 
 
@@ -206,3 +207,62 @@ def explain_route(route) -> list[ElementExplain]:
                                   p["effective_width_m"], p["k"], p["max_specific_flow"], p["capacity_p_s"],
                                   flow if i >= ctrl else float("nan"), fs, density, v, i == ctrl, p["notes"]))
     return out
+
+
+def _num(x, fmt: str) -> str:
+    return "-" if x is None or (isinstance(x, float) and not np.isfinite(x)) else format(x, fmt)
+
+
+def explain_text(study) -> str:
+    """The hand calculation of every route, as text for ``egressmargin validate --explain``.
+
+    Per route: each element's length (and how a stair's length was found), effective
+    width, speed constant, maximum specific flow, capacity, the flow it carries, its
+    specific flow, density and speed (:func:`explain_route`); then the hand-form
+    movement time of the route alone (travel at those speeds + N / least capacity),
+    and for each shared element the combined count over its capacity.
+    """
+    lines = []
+    head = ("#", "type", "id", "length m", "We m", "k m/s", "Fsm p/(s m)", "Fc p/s", "F p/s", "Fs p/(s m)",
+            "D p/m2", "S m/s", "")
+    for route in study.routes:
+        rows = explain_route(route)
+        meaning = premovement_meaning(route)
+        lines.append(f"route {route.id}: {route.occupants} occupants"
+                     f"{' (nominal: the median of its distribution)' if route.occupants_dist and 'fixed' not in route.occupants_dist else ''}"
+                     f"; pre-movement {meaning}"
+                     f"{'; before moving at ' + route.start_at if route.start_at else ''}")
+        table = [head]
+        for r in rows:
+            table.append((str(r.index), r.type, r.id or "", _num(r.length_m, ".2f"), _num(r.effective_width_m, ".3f"),
+                          _num(r.k_m_s, ".2f"), _num(r.max_specific_flow, ".2f"), _num(r.capacity_p_s, ".3f"),
+                          _num(r.flow_p_s, ".3f"), _num(r.specific_flow_p_s_m, ".3f"),
+                          _num(r.density_p_m2, ".3f") if r.density_p_m2 is not None else "unimpeded",
+                          _num(r.speed_m_s, ".3f"), "controlling" if r.controlling else ""))
+        widths = [max(len(row[i]) for row in table) for i in range(len(head))]
+        lines += ["  " + "  ".join(c.ljust(w) for c, w in zip(row, widths)).rstrip() for row in table]
+        for r in rows:
+            if r.length_basis and r.type == "stair":
+                lines.append(f"  element {r.index} stair length: {r.length_basis}")
+            for note in r.notes:
+                lines.append(f"  element {r.index}: {note}")
+        ctrl = next(r for r in rows if r.controlling)
+        travel = sum(r.length_m / r.speed_m_s for r in rows if r.length_m > 0)
+        flow_t = route.occupants / ctrl.capacity_p_s
+        lines.append(f"  hand movement time (route alone, everyone together): travel {travel:.1f} s + "
+                     f"{route.occupants} / {ctrl.capacity_p_s:.3f} = {flow_t:.1f} s -> {travel + flow_t:.1f} s")
+        lines.append("")
+    for eid, el in study.elements.items():
+        users = [r for r in study.routes if any(e.get("id") == eid for e in r.path)]
+        if len(users) < 2:
+            continue
+        cap = element_properties(el.element)["capacity_p_s"]
+        n = sum(r.occupants for r in users)
+        rule = f"{', '.join(el.upstream)} keep their flow" if el.upstream else "first come, first served"
+        lines.append(f"shared element {eid}: routes {', '.join(r.id for r in users)} ({rule}); "
+                     f"{n} occupants / {cap:.3f} persons/s = {n / cap:.1f} s through it (in scenarios where "
+                     "all of them run)")
+    lines.append("Hydraulic method constants: SFPE Handbook 5th ed. ch. 59 (from memory). F: flow carried from the "
+                 "controlling element on; Fs = F / We; D on the uncongested branch of Fs = (1 - a D) k D; "
+                 "S = k (1 - a D), or 0.85 k where D < 0.54 or upstream of the controlling element.")
+    return "\n".join(lines)
