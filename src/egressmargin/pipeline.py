@@ -564,10 +564,16 @@ def egress_method() -> dict:
         constants.append({"name": f"boundary layer, {kind}", "value": b, "unit": "m",
                           "source": "SFPE Handbook, 5th ed., ch. 59; from memory"})
     return {"name": "hydraulic hand method",
-            "text": ("RSET = detection + alarm + pre-movement + movement. Movement = travel time of the whole path "
-                     "at unimpeded speed + occupants / flow capacity of the controlling element (or the larger of "
-                     "the two where a route says movement: max). Uncertain times are sampled by inverse transform; "
-                     "a detector rule uses the same sampled model-error factors as the ASET."),
+            "text": ("RSET = detection + alarm + pre-movement + movement of the last occupant. Movement is a flow "
+                     "of persons: each element passes them first come, first served at its capacity (Fsm x "
+                     "effective width) and they then walk its length; upstream of a route's controlling (least "
+                     "capacity) element at unimpeded speed, from it on at the crowd speed of the flow it carries "
+                     "(density on the uncongested branch of Fs = (1 - aD) k D). Routes using the same named "
+                     "element share its capacity draw by draw (first come, first served, or the stream already "
+                     "in it keeps its flow). Pre-movement is either one uncertain time for everyone or spread "
+                     "across the occupants (person i of N at quantile (i - 1/2)/N); each route says which. "
+                     "Uncertain times, counts and factors are sampled by inverse transform; a detector rule uses "
+                     "the same sampled model-error factors as the ASET."),
             "constants": constants}
 
 
