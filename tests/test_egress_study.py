@@ -165,3 +165,16 @@ def test_validate_explain_prints_the_hand_calculation(kit, make_study, cli):
     assert stair[8:11] == ["1.010", "1.747", "0.578"]            # Fs, D, S
     assert "travel 37.6 s + 120 / 0.909 = 132.0 s -> 169.6 s" in out
     assert "stair length: length along the slope, as given" in out
+
+
+def test_shared_elements_in_contradicting_orders_and_unused_elements(kit, make_study, cli):
+    head = kit.study[: kit.study.index("egress:\n")]
+    elements = ("elements:\n  - id: d1\n    door: {width: 1.0 m}\n  - id: d2\n    door: {width: 1.2 m}\n"
+                "  - id: spare\n    door: {width: 2.0 m}\n")
+    body = ROUTE.replace("      - {door: {width: 1.0 m}}\n", "      - {element: d1}\n      - {element: d2}\n")
+    other = body.replace("north-stair", "south-stair").replace(
+        "      - {element: d1}\n      - {element: d2}\n", "      - {element: d2}\n      - {element: d1}\n")
+    status, out, err = cli(["validate", make_study(head + elements + "egress:\n" + body + other)])
+    assert status == 2
+    assert "egress[1].path" in err and "in another order than route 'north-stair'" in err
+    assert "element 'spare' is not used by any route's path" in err

@@ -795,14 +795,28 @@ def _named_elements(ck, value) -> dict[str, NamedElement]:
 
 
 def _check_upstream(ck, named: dict[str, NamedElement], routes: list[RouteSpec]) -> None:
+    """Every named element is used; `upstream` names its users; shared elements keep one order."""
     ids = [r.id for r in routes]
     for i, (eid, el) in enumerate(named.items()):
         users = [r.id for r in routes if any(e.get("id") == eid for e in r.path)]
+        if not users:
+            ck.warn(("elements", i), f"element '{eid}' is not used by any route's path")
         kp = ("elements", list(named).index(eid), "upstream")
         for j, rid in enumerate(el.upstream):
             if rid not in users:
                 ck.err(kp + (j,), f"route '{rid}' does not use element '{eid}'; expected one of "
                        f"{', '.join(users) or '(no route uses it)'}{did_you_mean(rid, users or ids)}")
+    for a_i, a in enumerate(routes):
+        for b in routes[a_i + 1:]:
+            if a.scenarios and b.scenarios and not set(a.scenarios) & set(b.scenarios):
+                continue
+            order_a = [e["id"] for e in a.path if e.get("id")]
+            common = [x for x in order_a if any(e.get("id") == x for e in b.path)]
+            order_b = [e["id"] for e in b.path if e.get("id") in common]
+            if common != order_b:
+                ck.err(("egress", ids.index(b.id), "path"), f"route '{b.id}' uses the shared elements "
+                       f"{', '.join(order_b)} in another order than route '{a.id}' ({', '.join(common)}); "
+                       "expected one order, as people flow from one into the next")
 
 
 def _detection(ck, value, kp, covered, loc_ids):
