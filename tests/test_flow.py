@@ -178,3 +178,44 @@ def test_elements_used_in_contradicting_orders_are_an_error():
     starts = np.zeros((1, 3))
     with pytest.raises(ValueError, match="orders"):
         flow.simulate([route("a", starts, [x, y]), route("b", starts, [y, x])])
+
+
+# ------------------------------------------------------------------ properties (hypothesis)
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+_times = st.lists(st.floats(0.0, 500.0, allow_nan=False), min_size=1, max_size=40)
+
+
+@settings(max_examples=60, deadline=None)
+@given(_times, _times, st.floats(0.1, 5.0))
+def test_shared_bottleneck_serves_one_person_per_slot_and_never_early(a, b, c):
+    """Both merge rules: nobody passes before arriving + 1/c; first come, first served
+    never passes two persons within 1/c, and the priority rule (preemptive: a joining
+    person interrupted by the stream already in the element finishes after it) keeps
+    pass j - pass i >= (j - i - 1)/c (at most one passage split by the stream); both
+    clear at the fluid-queue clearing time of the merged arrivals (work-conserving)."""
+    sa, sb = np.sort(a)[None, :], np.sort(b)[None, :]
+    merged = np.sort(np.concatenate([sa[0], sb[0]]))
+    n = merged.size
+    clearing = max(merged[j] + (n - j) / c for j in range(n))      # max_s [s + (N - A(s-))/c]
+    for rule, (da, db) in (("fifo", flow.merge_fifo([sa, sb], c)),
+                           ("priority", [x[0] for x in flow.merge_priority([sa], [sb], c)])):
+        assert np.all(da >= sa + 1 / c - 1e-9) and np.all(db >= sb + 1 / c - 1e-9)
+        passes = np.sort(np.concatenate([da[0], db[0]]))
+        if rule == "fifo":
+            assert np.all(np.diff(passes) >= 1 / c - 1e-6)
+        else:
+            k = np.arange(n)
+            gap = passes[None, :] - passes[:, None]
+            need = (k[None, :] - k[:, None] - 1) / c
+            assert np.all(gap[k[None, :] > k[:, None]] >= need[k[None, :] > k[:, None]] - 1e-6)
+        assert passes[-1] == pytest.approx(clearing, rel=1e-9, abs=1e-6)
+
+
+@settings(max_examples=40, deadline=None)
+@given(_times, st.floats(0.1, 5.0), st.floats(1.01, 3.0))
+def test_more_capacity_never_clears_later(a, c, more):
+    s = np.sort(a)[None, :]
+    assert flow.fifo_departures(s, c * more)[0, -1] <= flow.fifo_departures(s, c)[0, -1] + 1e-9

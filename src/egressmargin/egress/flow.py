@@ -162,7 +162,10 @@ def merge_priority(priority: list[np.ndarray], others: list[np.ndarray], capacit
     capacity c: f_k = (k + 1)/c + max_(j <= k) (phi(a_j) - j/c). Its pass time is the
     clock time at which free time f_k is reached: t = f_k + n(f_k)/c, where n(f) is
     the number of slots whose start lies at free time below f (slot i starts at
-    free time g_i = p_i - (i + 1)/c).
+    free time g_i = p_i - (i + 1)/c). The rule is preemptive, as in the fluid
+    model: a joining person whose passage is interrupted by the stream already in
+    the element finishes after it. Total work never exceeds the capacity, so the
+    element clears at the same time as under first come, first served.
     """
     p_sorted, p_order, p_sizes = _merged(priority)
     o_sorted, o_order, o_sizes = _merged(others)
