@@ -178,3 +178,10 @@ def test_shared_elements_in_contradicting_orders_and_unused_elements(kit, make_s
     assert status == 2
     assert "egress[1].path" in err and "in another order than route 'north-stair'" in err
     assert "element 'spare' is not used by any route's path" in err
+
+
+def test_misspelt_across_occupants_gets_a_hint(kit, make_study, expect_input_error):
+    text = kit.study.replace("premovement: {lognormal: {median: 60 s, p95: 150 s}}",
+                             "premovement: {across_occupant: {lognormal: {median: 60 s, p95: 150 s}}}")
+    err = expect_input_error(make_study(text))
+    assert "egress[0].premovement" in err and "did you mean 'across_occupants'?" in err

@@ -711,6 +711,11 @@ def _positive_number_or_distribution(ck, value, kp, what) -> dict | None:
 def _premovement(ck, value, kp) -> tuple[dict | None, bool]:
     """`premovement: <distribution>` (one time for all) or `{across_occupants: <distribution>}`."""
     across = isinstance(value, dict) and len(value) == 1 and "across_occupants" in value
+    if isinstance(value, dict) and len(value) == 1 and not across and next(iter(value)) not in DISTRIBUTIONS:
+        ck.err(kp, f"found {_show(value)}; expected a distribution (one uncertain time for everyone) or "
+               "{across_occupants: <distribution>} (start times spread across the occupants)"
+               f"{did_you_mean(next(iter(value)), ['across_occupants', *DISTRIBUTIONS])}")
+        return None, False
     if across:
         kp = kp + ("across_occupants",)
         value = value["across_occupants"]
