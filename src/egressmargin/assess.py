@@ -7,7 +7,7 @@ package; the pipeline decides what to run and writes the results.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -230,6 +230,9 @@ def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDr
         move = np.where(np.isfinite(start_last), move, np.inf)
         total, parts = compose_rset(inp.detection_s, inp.alarm_s, pre_last, move)
         mv = movement_time(route.path, route.occupants)
+        mv = replace(mv, notes=[*mv.notes, "travel and flow times here are the hand form for checking (unimpeded "
+                                "travel + nominal occupants / least capacity); the RSET uses the flow model "
+                                "(queues, crowd speed, shared elements, start times across occupants)"])
         out[route.id] = RouteEgress(total, {"detection": parts["detection_s"], "alarm": parts["alarm_s"],
                                             "premovement": parts["premovement_s"],
                                             "movement": parts["movement_s"]}, fl, inp, pr, mv)
