@@ -185,3 +185,11 @@ def test_misspelt_across_occupants_gets_a_hint(kit, make_study, expect_input_err
                              "premovement: {across_occupant: {lognormal: {median: 60 s, p95: 150 s}}}")
     err = expect_input_error(make_study(text))
     assert "egress[0].premovement" in err and "did you mean 'across_occupants'?" in err
+
+
+def test_validate_explain_gives_the_shared_element_total(kit, make_study, cli):
+    # Hand: 120 + 80 = 200 persons through the shared stair of 1.01 x 0.9 = 0.909 persons/s: 220.0 s
+    status, out, err = cli(["validate", make_study(shared_study(kit)), "--explain"])
+    assert status == 0, err
+    assert ("shared element shared-stair: routes north-stair, south-stair (first come, first served); "
+            "200 occupants / 0.909 persons/s = 220.0 s") in out
