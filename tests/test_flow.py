@@ -219,3 +219,17 @@ def test_shared_bottleneck_serves_one_person_per_slot_and_never_early(a, b, c):
 def test_more_capacity_never_clears_later(a, c, more):
     s = np.sort(a)[None, :]
     assert flow.fifo_departures(s, c * more)[0, -1] <= flow.fifo_departures(s, c)[0, -1] + 1e-9
+
+
+def test_priority_merge_vectorised_over_draws_equals_draw_by_draw():
+    rng = np.random.default_rng(11)
+    pr = np.sort(rng.uniform(0, 50, (3, 15)), axis=1)
+    jo = np.sort(rng.uniform(0, 50, (3, 9)), axis=1)
+    jo[2, -2:] = np.inf                                   # two absent persons in draw 3
+    c = np.array([0.4, 1.0, 3.0])
+    (dp,), (dj,) = flow.merge_priority([pr], [jo], c, chunk_elements=200)   # forces chunks of one draw
+    for s in range(3):
+        (p1,), (j1,) = flow.merge_priority([pr[s:s + 1]], [jo[s:s + 1]], c[s])
+        np.testing.assert_allclose(dp[s], p1[0])
+        np.testing.assert_allclose(dj[s], j1[0])
+    assert np.isinf(dj[2, -2:]).all() and np.isfinite(dj[2, :-2]).all()
