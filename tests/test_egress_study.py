@@ -193,3 +193,11 @@ def test_validate_explain_gives_the_shared_element_total(kit, make_study, cli):
     assert status == 0, err
     assert ("shared element shared-stair: routes north-stair, south-stair (first come, first served); "
             "200 occupants / 0.909 persons/s = 220.0 s") in out
+
+
+def test_a_broken_named_element_is_reported_once_where_it_is_defined(kit, make_study, expect_input_error):
+    text = shared_study(kit).replace("stair: {length: 12 m, width: 1.2 m, riser: 178 mm, tread: 279 mm, at: stair-l1}",
+                                     "stair: {length: 12 m, width: 1.2 m, riser: 178 mm, at: stair-l1}")
+    err = expect_input_error(make_study(text))
+    assert "elements[0].stair" in err and "missing 'tread'" in err
+    assert "no element 'shared-stair'" not in err

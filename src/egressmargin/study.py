@@ -342,8 +342,8 @@ def check_study(path: str | Path) -> tuple[Study | None, list[ScenarioSpec], lis
 
     scenarios = _scenarios(ck, data.get("scenarios"), base)
     loc_ids = {s.id: {loc.id: loc for loc in s.locations} for s in scenarios}
-    named = _named_elements(ck, data.get("elements"))
-    routes = _routes(ck, data.get("egress", []), loc_ids, named)
+    named, broken = _named_elements(ck, data.get("elements"))
+    routes = _routes(ck, data.get("egress", []), loc_ids, named, broken)
     _check_upstream(ck, named, routes)
 
     errors = [p for p in ck.problems if not p.warning]
@@ -557,7 +557,8 @@ def _profile(ck, value, kp) -> ProfileRef | None:
     return ProfileRef([c.strip() for c in cols], hs, ceiling, unit, ck.doc.where(kp))
 
 
-def _routes(ck, value, loc_ids: dict[str, dict], named: dict | None = None) -> list[RouteSpec]:
+def _routes(ck, value, loc_ids: dict[str, dict], named: dict | None = None,
+            broken: set[str] | None = None) -> list[RouteSpec]:
     if value is None or value == []:
         return []
     if not isinstance(value, list):
@@ -611,7 +612,7 @@ def _routes(ck, value, loc_ids: dict[str, dict], named: dict | None = None) -> l
         alarm = ck.distribution(r["alarm"], kp + ("alarm",), "an alarm delay") if "alarm" in r else None
         pre, across = _premovement(ck, r["premovement"], kp + ("premovement",)) if "premovement" in r \
             else (None, False)
-        path = _path(ck, r.get("path"), kp + ("path",), named or {}) if "path" in r else []
+        path = _path(ck, r.get("path"), kp + ("path",), named or {}, broken) if "path" in r else []
         for j, element in enumerate(path):
             if element.get("at") is not None:
                 _location_ref(ck, element["at"], element["at_kp"], covered, loc_ids)
@@ -760,15 +761,20 @@ def _duration(ck, value, kp, what) -> dict | None:
     return None if problems else spec
 
 
-def _named_elements(ck, value) -> dict[str, NamedElement]:
-    """The top-level `elements:` list: [{id: east-stair, stair: {...}}, ...]."""
+def _named_elements(ck, value) -> tuple[dict[str, NamedElement], set[str]]:
+    """The top-level `elements:` list: [{id: east-stair, stair: {...}}, ...].
+
+    Returns the elements by id, and the ids whose definition has problems (already
+    reported; a route that uses one is not flagged again).
+    """
     if value is None:
-        return {}
+        return {}, set()
     if not isinstance(value, list):
         ck.err(("elements",), f"found {_show(value)}; expected a list of named path elements such as "
                "{id: east-stair, stair: {...}}")
-        return {}
+        return {}, set()
     out: dict[str, NamedElement] = {}
+    broken: set[str] = set()
     for i, item in enumerate(value):
         kp = ("elements", i)
         if not isinstance(item, dict):
@@ -789,6 +795,8 @@ def _named_elements(ck, value) -> dict[str, NamedElement]:
             ck.err(kp + ("upstream",), f"found {_show(upstream)}; expected a list of route ids whose flow is "
                    "already in the element")
             upstream = []
+        if eid is not None and element is None:
+            broken.add(eid)                # its own problems are reported; routes using it are not re-flagged
         if eid is None or element is None:
             continue
         if eid in out:
@@ -796,7 +804,7 @@ def _named_elements(ck, value) -> dict[str, NamedElement]:
             continue
         element["id"] = eid
         out[eid] = NamedElement(eid, element, [str(x) for x in upstream], ck.doc.where(kp))
-    return out
+    return out, broken
 
 
 def _check_upstream(ck, named: dict[str, NamedElement], routes: list[RouteSpec]) -> None:
@@ -896,7 +904,7 @@ def _detection(ck, value, kp, covered, loc_ids):
     return ck.distribution(value, kp, "a detection time, a distribution, or a {heat: ...} / {smoke: ...} rule")
 
 
-def _path(ck, value, kp, named: dict | None = None) -> list[dict]:
+def _path(ck, value, kp, named: dict | None = None, broken: set[str] | None = None) -> list[dict]:
     if not isinstance(value, list) or not value:
         ck.err(kp, f"found {_show(value)}; expected a list of path elements ({', '.join(ELEMENTS)}, or "
                "{element: <id>} for a named element)")
@@ -910,6 +918,8 @@ def _path(ck, value, kp, named: dict | None = None) -> list[dict]:
             if len(el) != 1:
                 ck.err(ekp, f"found {_show(el)}; expected only {{element: <id>}} (say 'at' and 'upstream' on "
                        "the element in 'elements:')")
+                continue
+            if str(ref) in (broken or set()):
                 continue
             if not isinstance(ref, (str, int)) or isinstance(ref, bool) or str(ref) not in named:
                 known = list(named)
