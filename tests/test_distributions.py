@@ -189,3 +189,35 @@ def test_ppf_is_nondecreasing_and_nonnegative(spec):
     x = dist.ppf(spec, U)
     assert np.all(np.diff(x) >= -1e-9 * np.maximum(1.0, np.abs(x[1:])))
     assert np.all(x >= 0.0)
+
+
+def test_distribution_over_a_parameter_draws_the_parameter_first():
+    """Two-stage inverse transform: draw s uses median m_s = 60 + 60 v_s (uniform) and
+    returns the lognormal(median m_s, p95 240) quantile at u_s; checked against
+    scipy.stats.lognorm(s = ln(240/m_s)/z95, scale = m_s).ppf(u_s)."""
+    from scipy import stats as sps
+
+    from egressmargin.egress import distributions as d
+
+    spec = {"lognormal": {"median": {"uniform": {"low": 60.0, "high": 120.0}}, "p95": 240.0}}
+    v = np.array([0.0, 0.5, 1.0, 0.25])
+    u = np.array([0.5, 0.95, 0.1, 0.7])
+    got = d.ppf_varying(spec, u, {"median": v})
+    m = 60.0 + 60.0 * v
+    ref = sps.lognorm(s=np.log(240.0 / m) / sps.norm.ppf(0.95), scale=m).ppf(u)
+    np.testing.assert_allclose(got, ref, rtol=1e-9)
+    # across occupants: (S, N) quantiles with NaN for absent persons stay NaN
+    q = np.array([[0.25, 0.75], [0.5, np.nan]])
+    out = d.ppf_varying(spec, q, {"median": np.array([0.5, 0.5])})
+    assert np.isnan(out[1, 1]) and out[1, 0] == pytest.approx(90.0)
+
+
+def test_nested_spec_is_checked_at_every_corner_of_its_parameter_box():
+    from egressmargin.egress import distributions as d
+
+    ok = {"lognormal": {"median": {"uniform": {"low": 60.0, "high": 120.0}}, "p95": 240.0}}
+    assert d.check_nested_spec(ok) == []
+    bad = {"lognormal": {"median": {"uniform": {"low": 60.0, "high": 300.0}}, "p95": 240.0}}
+    assert any("median = 300 s" in m and "below the median" in m for m in d.check_nested_spec(bad))
+    unbounded = {"lognormal": {"median": {"normal": {"mean": 60.0, "sd": 5.0}}, "p95": 240.0}}
+    assert "bounded distribution" in d.check_nested_spec(unbounded)[0]

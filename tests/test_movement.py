@@ -92,7 +92,7 @@ def test_worked_example_door_limited_route():
     #             v = 0.85 x 1.40 = 1.19 m/s, travel = 30 / 1.19 = 25.21 s
     #   door:     We = 0.9 - 2 x 0.15 = 0.6 m, Fc = 1.3 x 0.6 = 0.78 p/s  <- controls
     #   flow = 200 / 0.78 = 256.41 s
-    #   sum: 25.21 + 256.41 = 281.62 s; max: 256.41 s
+    #   sum: 25.21 + 256.41 = 281.62 s
     res = mv.movement_time([CORRIDOR, DOOR_09], 200)
     assert res.controlling == 1
     np.testing.assert_allclose(res.capacities_p_s, [2.08, 0.78])
@@ -100,8 +100,6 @@ def test_worked_example_door_limited_route():
     assert res.travel_s == pytest.approx(25.21, abs=0.005)
     assert res.flow_s == pytest.approx(256.41, abs=0.005)
     assert res.total_s == pytest.approx(281.62, abs=0.005)
-    res_max = mv.movement_time([CORRIDOR, DOOR_09], 200, mode="max")
-    assert res_max.total_s == pytest.approx(256.41, abs=0.005)
 
 
 def test_worked_example_stair_limited_route():
@@ -121,13 +119,21 @@ def test_worked_example_stair_limited_route():
     assert res.notes == []
 
 
-def test_mode_max_vs_sum_when_travel_dominates():
-    # Few people on a long route: travel dominates, so max = travel and sum = travel + flow.
-    long_corridor = {"type": "corridor", "length_m": 119.0, "width_m": 2.0}  # 100 s at 1.19 m/s
-    s = mv.movement_time([long_corridor], 20.8, mode="sum")  # flow 20.8 / 2.08 = 10 s
-    m = mv.movement_time([long_corridor], 20.8, mode="max")
-    assert s.total_s == pytest.approx(110.0)
-    assert m.total_s == pytest.approx(100.0)
+def test_hand_sum_equals_the_flow_model_when_everyone_starts_together():
+    # The flow model (egress/flow.py) reproduces travel + N / Fc when everyone starts
+    # together and the controlling element is the last one (its crowd speed then acts
+    # on a zero-length door). Hand: 30/1.19 + 1/2.08 (first person through the
+    # corridor entry) + 200/0.78 = 25.21 + 0.48 + 256.41 = 282.10 s.
+    from egressmargin.egress import flow
+
+    props = [mv.element_properties(e) for e in (CORRIDOR, DOOR_09)]
+    elements = tuple(flow.NetElement(str(i), p["length_m"], p["k"], p["effective_width_m"], p["capacity_p_s"])
+                     for i, p in enumerate(props))
+    route = flow.NetRoute("r", np.zeros((1, 200)), np.array([200]), elements, np.ones(1), np.ones(1))
+    flows, _ = flow.simulate([route])
+    hand = mv.movement_time([CORRIDOR, DOOR_09], 200).total_s
+    assert flows["r"].exit_s[0] == pytest.approx(hand + 1 / 2.08, abs=1e-6)
+    assert flows["r"].exit_s[0] == pytest.approx(282.10, abs=0.01)
 
 
 def test_vectorised_over_occupants_and_speed_factor():
@@ -179,8 +185,6 @@ def test_input_errors():
         mv.movement_time([CORRIDOR, {"type": "door", "width_m": 0.25}], 10)
     with pytest.raises(ValueError, match="stair needs riser and tread"):
         mv.element_properties({"type": "stair", "length_m": 10.0, "width_m": 1.2})
-    with pytest.raises(ValueError, match="unknown movement mode"):
-        mv.movement_time([CORRIDOR], 10, mode="fastest")
     with pytest.raises(ValueError, match="at least one path element"):
         mv.movement_time([], 10)
 

@@ -7,7 +7,7 @@ package; the pipeline decides what to run and writes the results.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -15,7 +15,8 @@ from . import aset
 from .criteria import CriteriaSet
 from .egress import distributions as dist
 from .egress.detection import rti_response
-from .egress.movement import movement_time
+from .egress.flow import NetElement, NetRoute, NodeFlow, RouteFlow, quantile_positions, simulate
+from .egress.movement import element_properties, movement_time
 from .egress.rset import compose_rset
 from .stats import share, summarise
 from .study import DetectorRule, RouteSpec
@@ -28,19 +29,41 @@ SWEEP_FRACTION = 0.10
 SWEEP_LOW, SWEEP_HIGH = 0.05, 0.95
 
 
+#: Uncertain parameters of a distribution that can have their own draws (each a stream).
+_PARAMETER_NAMES = ("median", "p95", "mean", "sd", "low", "mode", "high")
+
+
 @dataclass
 class EgressDraws:
-    """Uniform numbers for a route's uncertain egress inputs (common random numbers)."""
+    """Uniform numbers for a route's uncertain egress inputs (common random numbers).
+
+    ``detection``, ``alarm`` and ``premovement`` are the original streams (unchanged so
+    that earlier studies draw the same times); the movement inputs and uncertain
+    distribution parameters have streams of their own. None: the median (0.5).
+    """
 
     detection: np.ndarray
     alarm: np.ndarray
     premovement: np.ndarray
+    occupants: np.ndarray | None = None
+    flow_factor: np.ndarray | None = None
+    speed_factor: np.ndarray | None = None
+    parameters: dict = field(default_factory=dict)
+
+    @classmethod
+    def median(cls, S: int = 1) -> "EgressDraws":
+        half = np.full(S, 0.5)
+        return cls(half, half, half)
 
 
 def egress_uniforms(seed: int, route_index: int, S: int) -> EgressDraws:
     """Per-route uniform streams, independent of the scenario so every scenario sees the same people."""
     rng = np.random.default_rng([seed, 7919, route_index])
-    return EgressDraws(rng.random(S), rng.random(S), rng.random(S))
+    base = (rng.random(S), rng.random(S), rng.random(S))
+    more = [np.random.default_rng([seed, 7919, route_index, k]).random(S) for k in (1, 2, 3)]
+    params = {name: np.random.default_rng([seed, 7919, route_index, 10 + j]).random(S)
+              for j, name in enumerate(_PARAMETER_NAMES)}
+    return EgressDraws(*base, *more, parameters=params)
 
 
 def detection_times(rule, prep: aset.Prepared, factors: dict[str, np.ndarray], u: np.ndarray) -> np.ndarray:
@@ -68,6 +91,155 @@ def detection_times(rule, prep: aset.Prepared, factors: dict[str, np.ndarray], u
 
 
 @dataclass
+class RouteInputs:
+    """A route's egress inputs for S draws.
+
+    Attributes
+    ----------
+    detection_s, alarm_s : numpy.ndarray
+        (S,) [s]; detection +inf where the fire is never detected.
+    premovement_s : numpy.ndarray
+        (S, N) pre-movement of each person [s] (NaN beyond the draw's count).
+    starts_s : numpy.ndarray
+        (S, N) start of movement [s from ignition], ascending; +inf: absent or undetected.
+    counts : numpy.ndarray
+        (S,) occupants per draw (whole persons, >= 1).
+    flow_factor, speed_factor : numpy.ndarray
+        (S,) multipliers [-].
+    """
+
+    detection_s: np.ndarray
+    alarm_s: np.ndarray
+    premovement_s: np.ndarray
+    starts_s: np.ndarray
+    counts: np.ndarray
+    flow_factor: np.ndarray
+    speed_factor: np.ndarray
+
+    @property
+    def last_premovement_s(self) -> np.ndarray:
+        return np.take_along_axis(self.premovement_s, (self.counts - 1)[:, None], axis=1)[:, 0]
+
+
+def _u(stream, S, q=None):
+    if q is not None:
+        return np.full(S, q)
+    return np.full(S, 0.5) if stream is None else stream
+
+
+def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, quantiles: dict | None = None,
+                 scale: dict | None = None) -> RouteInputs:
+    """Detection, alarm, occupants, start times and movement factors of a route, per draw.
+
+    ``quantiles`` overrides the uniform of an input (detection, alarm, premovement,
+    occupants, flow_factor, speed_factor, or ``premovement.<parameter>``); ``scale``
+    multiplies ``occupants``, ``flow_factor`` or ``speed_factor`` (a +/-10 % sweep).
+
+    Notes
+    -----
+    Occupants from a distribution are rounded to whole persons, at least 1. With
+    ``premovement: {across_occupants: F}`` person i of N starts at detection + alarm +
+    F^-1((i - 1/2)/N) (:func:`egressmargin.egress.flow.quantile_positions`); with
+    ``premovement: F`` everyone starts at detection + alarm + one draw of F.
+    """
+    q, sc = quantiles or {}, scale or {}
+    S = len(draws.detection)
+    det = detection_times(route.detection, prep, factors, _u(draws.detection, S, q.get("detection")))
+    alarm = dist.ppf(route.alarm, _u(draws.alarm, S, q.get("alarm")))
+    occ_spec = route.occupants_dist or {"fixed": float(route.occupants)}
+    occ = dist.ppf(occ_spec, _u(draws.occupants, S, q.get("occupants"))) * sc.get("occupants", 1.0)
+    counts = np.maximum(np.rint(occ), 1).astype(int)
+    flow_f = dist.ppf(route.flow_factor, _u(draws.flow_factor, S, q.get("flow_factor"))) * sc.get("flow_factor", 1.0)
+    speed_f = dist.ppf(route.speed_factor, _u(draws.speed_factor, S, q.get("speed_factor"))) \
+        * sc.get("speed_factor", 1.0)
+    params = {name: _u(draws.parameters.get(name), S, q.get(f"premovement.{name}"))
+              for name in dist.parameter_specs(route.premovement)}
+    if route.premovement_across:
+        pre = dist.ppf_varying(route.premovement, quantile_positions(counts), params)
+    else:
+        one = dist.ppf_varying(route.premovement, _u(draws.premovement, S, q.get("premovement")), params)
+        present = np.arange(counts.max())[None, :] < counts[:, None]
+        pre = np.where(present, one[:, None], np.nan)
+    with np.errstate(invalid="ignore"):
+        starts = (det + alarm)[:, None] + pre
+    starts = np.where(np.isnan(starts), np.inf, starts)
+    return RouteInputs(det, alarm, pre, starts, counts, flow_f, speed_f)
+
+
+@dataclass
+class RouteEgress:
+    """Egress of one route in one scenario, per draw: RSET, its parts, and the flow."""
+
+    rset: np.ndarray
+    components: dict[str, np.ndarray]
+    flow: RouteFlow
+    inputs: RouteInputs
+    properties: list[dict]
+    movement: object
+
+
+@dataclass
+class ScenarioEgress:
+    routes: dict[str, RouteEgress]
+    nodes: dict[str, NodeFlow]
+
+
+def _node(route: RouteSpec, i: int, element: dict) -> str:
+    return element.get("id") or f"{route.id}#{i + 1}"
+
+
+def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDraws], named: dict | None = None,
+                    quantiles: list[dict] | None = None, scale: list[dict] | None = None,
+                    width_scale: dict[str, float] | None = None) -> ScenarioEgress:
+    """RSET of every route of a scenario, routes that share named elements merged.
+
+    ``quantiles``/``scale`` are per route (see :func:`route_inputs`); ``width_scale``
+    multiplies the effective width (hence capacity) of the named nodes given.
+
+    Notes
+    -----
+    RSET = detection + alarm + pre-movement of the last occupant + movement of the
+    last occupant (the phase sum, ISO/TR 16738:2009 -- common practice), where the
+    movement comes from the flow model :func:`egressmargin.egress.flow.simulate`.
+    """
+    named = named or {}
+    width_scale = width_scale or {}
+    nets, inputs, props = [], [], []
+    for k, route in enumerate(routes):
+        inp = route_inputs(route, prep, factors, draws[k], (quantiles or [None] * len(routes))[k],
+                           (scale or [None] * len(routes))[k])
+        pr = [element_properties(e) for e in route.path]
+        elements = []
+        for i, (e, p) in enumerate(zip(route.path, pr)):
+            node = _node(route, i, e)
+            f = width_scale.get(node, 1.0)
+            elements.append(NetElement(node, p["length_m"], p["k"], p["effective_width_m"] * f,
+                                       p["capacity_p_s"] * f))
+        nets.append(NetRoute(route.id, inp.starts_s, inp.counts, tuple(elements), inp.flow_factor,
+                             inp.speed_factor))
+        inputs.append(inp)
+        props.append(pr)
+    flows, nodes = simulate(nets, {eid: el.upstream for eid, el in named.items()})
+    out = {}
+    for route, inp, pr in zip(routes, inputs, props):
+        fl = flows[route.id]
+        pre_last = inp.last_premovement_s
+        start_last = inp.detection_s + inp.alarm_s + pre_last
+        with np.errstate(invalid="ignore"):
+            move = np.where(np.isfinite(start_last), fl.exit_s - start_last, np.nan)
+        move = np.where(np.isfinite(start_last), move, np.inf)
+        total, parts = compose_rset(inp.detection_s, inp.alarm_s, pre_last, move)
+        mv = movement_time(route.path, route.occupants)
+        mv = replace(mv, notes=[*mv.notes, "travel and flow times here are the hand form for checking (unimpeded "
+                                "travel + nominal occupants / least capacity); the RSET uses the flow model "
+                                "(queues, crowd speed, shared elements, start times across occupants)"])
+        out[route.id] = RouteEgress(total, {"detection": parts["detection_s"], "alarm": parts["alarm_s"],
+                                            "premovement": parts["premovement_s"],
+                                            "movement": parts["movement_s"]}, fl, inp, pr, mv)
+    return ScenarioEgress(out, nodes)
+
+
+@dataclass
 class RouteOutcome:
     rset: np.ndarray
     components: dict[str, np.ndarray]
@@ -82,32 +254,15 @@ class RouteOutcome:
     extras: dict = field(default_factory=dict)
 
 
-def route_rset(route: RouteSpec, prep, factors, draws: EgressDraws, occupants_factor=1.0, speed_factor=1.0,
-               quantiles: dict | None = None):
-    """RSET samples and components for a route. ``quantiles`` overrides uniforms per input."""
-    q = quantiles or {}
-    u_det = np.full_like(draws.detection, q["detection"]) if "detection" in q else draws.detection
-    u_al = np.full_like(draws.alarm, q["alarm"]) if "alarm" in q else draws.alarm
-    u_pre = np.full_like(draws.premovement, q["premovement"]) if "premovement" in q else draws.premovement
-    det = detection_times(route.detection, prep, factors, u_det)
-    alarm = dist.ppf(route.alarm, u_al)
-    pre = dist.ppf(route.premovement, u_pre)
-    mv = movement_time(route.path, route.occupants * occupants_factor, route.movement_mode,
-                       speed_factor=speed_factor)
-    total, parts = compose_rset(det, alarm, pre, mv.total_s)
-    return total, {"detection": parts["detection_s"], "alarm": parts["alarm_s"],
-                   "premovement": parts["premovement_s"], "movement": parts["movement_s"]}, mv
-
-
 def route_aset(loc_aset: np.ndarray, ids: list[str], exposed: list[str]) -> np.ndarray:
     """(S,) route ASET: the earliest of its exposed locations, sample by sample."""
     rows = [ids.index(x) for x in exposed]
     return loc_aset[rows].min(axis=0)
 
 
-def outcome(route: RouteSpec, prep, factors, loc_aset, loc_aset_raw, governing_raw, draws,
+def outcome(route: RouteSpec, prep, loc_aset, loc_aset_raw, governing_raw, egress: RouteEgress,
             max_p_fail) -> RouteOutcome:
-    rset, comps, mv = route_rset(route, prep, factors, draws)
+    rset, comps, mv = egress.rset, egress.components, egress.movement
     a = route_aset(loc_aset, prep.ids, route.exposed_at)
     rows = [prep.ids.index(x) for x in route.exposed_at]
     raw_vals = loc_aset_raw[rows]
@@ -122,49 +277,123 @@ def outcome(route: RouteSpec, prep, factors, loc_aset, loc_aset_raw, governing_r
     g = int(np.argmin(med))
     return RouteOutcome(rset, comps, mv, a, aset_raw, route.exposed_at[g] if np.isfinite(med[g]) else None,
                         governing_raw[rows[g]] if np.isfinite(med[g]) else None, margin, p_fail,
-                        "pass" if p_fail <= max_p_fail else "fail")
+                        "pass" if p_fail <= max_p_fail else "fail",
+                        {"location_aware": location_aware(route, egress, loc_aset, prep.ids)})
 
 
 # ----------------------------------------------------------------------------------------
-# dose along the route
+# where the occupants are: location history, location-aware comparison, dose along the route
 # ----------------------------------------------------------------------------------------
 
-def exposure_windows(route: RouteSpec, mv, start_s: np.ndarray):
-    """Time windows the last occupant spends on each path element, and the location of each.
+def element_locations(route: RouteSpec) -> list[tuple[str, str]]:
+    """Location of each path element and how it was found ("at" or "assigned").
 
-    Assumptions (documented in the results): the last occupant leaves when everyone has
-    finished pre-movement (``start_s``); walks each element at its unimpeded speed; waits the
-    whole flow time (occupants / capacity of the controlling element) in the queue just
-    before the controlling element; path elements are assigned to the ``exposed_at``
-    locations in order, in proportion to distance along the path (a zero-length door takes
-    the location at its position).
+    An element's own ``at`` wins. Otherwise elements are assigned to the ``exposed_at``
+    locations in order, in proportion to distance along the path (location
+    floor(midpoint / total length x n)); a zero-length door takes the location at its
+    position.
     """
     lengths = np.array([e["length_m"] for e in route.path], float)
-    speeds = np.asarray(mv.speeds_m_s, float)
-    walk = np.where(lengths > 0, lengths / speeds, 0.0)
     total_len = lengths.sum()
     n_loc = len(route.exposed_at)
     starts = np.concatenate([[0.0], np.cumsum(lengths)[:-1]])
     mids = starts + lengths / 2
-    loc_index = np.minimum((mids / total_len * n_loc).astype(int) if total_len > 0 else
-                           np.zeros(len(lengths), int), n_loc - 1)
-    flow = np.broadcast_to(np.asarray(mv.flow_s, float), start_s.shape)
-    windows = []
-    t = start_s.copy()
-    for e in range(len(route.path)):
-        stay = walk[e] + (flow if e == mv.controlling else 0.0)
-        windows.append((int(loc_index[e]), t.copy(), t + stay))
-        t = t + stay
-    return windows, t
+    idx = np.minimum((mids / total_len * n_loc).astype(int) if total_len > 0 else
+                     np.zeros(len(lengths), int), n_loc - 1)
+    return [(e["at"], "at") if e.get("at") else (route.exposed_at[int(i)], "assigned")
+            for e, i in zip(route.path, idx)]
 
 
-def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: int, comps, mv) -> dict | None:
-    """Dose received by the last occupant on the way out, per FED criterion."""
-    start = comps["detection"] + comps["alarm"] + comps["premovement"]
-    finite = np.isfinite(start)
-    start = np.where(finite, start, prep.t_s[-1])
-    windows, exit_t = exposure_windows(route, mv, start)
-    rows = np.array([prep.ids.index(x) for x in route.exposed_at])
+@dataclass
+class Stay:
+    """The last occupant is at ``location`` from ``t_in`` to ``t_out`` (arrays (S,), s)."""
+
+    location: str
+    what: str
+    t_in: np.ndarray
+    t_out: np.ndarray
+
+
+def location_history(route: RouteSpec, egress: RouteEgress) -> list[Stay]:
+    """The last occupant's location-time history: start_at, then each element.
+
+    At ``start_at`` (if given) from ignition until the last occupant starts to move;
+    then at each element's location from reaching its entry (queue included) until
+    leaving it after walking its length (:class:`egressmargin.egress.flow.ElementPass`).
+    """
+    S = egress.rset.shape[0]
+    out = []
+    start = egress.inputs.detection_s + egress.inputs.alarm_s + egress.inputs.last_premovement_s
+    if route.start_at:
+        out.append(Stay(route.start_at, "before moving", np.zeros(S), start))
+    for i, ((loc, _), ep) in enumerate(zip(element_locations(route), egress.flow.elements)):
+        out.append(Stay(loc, f"path element {i + 1} ({route.path[i]['type']})", ep.arrive_s, ep.leave_s))
+    return out
+
+
+@dataclass
+class LocationAware:
+    """Per-draw comparison of each location's ASET with when the last occupant leaves it.
+
+    Attributes
+    ----------
+    locations : list of str
+        Locations of the history, in order of first visit.
+    aset_s, leave_s : numpy.ndarray
+        (L, S) location ASET and the time the last occupant leaves it [s].
+    binding : numpy.ndarray
+        (S,) index of the binding location: least ASET - leave (where no location's
+        ASET is reached, the one left last).
+    aset_binding_s, leave_binding_s : numpy.ndarray
+        (S,) ASET and leaving time at the binding location: the pair the verdict
+        compares (fail where ASET < leave).
+    margin_s : numpy.ndarray
+        (S,) min over locations of ASET - leave (inf: no limit reached anywhere).
+    """
+
+    locations: list[str]
+    aset_s: np.ndarray
+    leave_s: np.ndarray
+    binding: np.ndarray
+    aset_binding_s: np.ndarray
+    leave_binding_s: np.ndarray
+    margin_s: np.ndarray
+
+
+def location_aware(route: RouteSpec, egress: RouteEgress, loc_aset: np.ndarray, ids: list[str]) -> LocationAware:
+    """The route fails for its occupants only where and while they are there.
+
+    For each location l of the last occupant's history, with T_l the time the last
+    occupant leaves it, a draw fails at l when ASET_l < T_l (the limit is reached
+    before the last person has left, including before they arrive). The route's
+    margin in a draw is min_l (ASET_l - T_l).
+    """
+    history = location_history(route, egress)
+    locs = list(dict.fromkeys(h.location for h in history))
+    leave = np.stack([np.max(np.stack([h.t_out for h in history if h.location == loc]), axis=0) for loc in locs])
+    a = np.stack([loc_aset[ids.index(loc)] for loc in locs])
+    with np.errstate(invalid="ignore"):
+        m = a - leave
+    key = np.where(np.isnan(m), np.inf, m)
+    none_reached = np.all(np.isinf(key) & (key > 0), axis=0)
+    binding = np.where(none_reached, np.argmax(leave, axis=0), np.argmin(key, axis=0))
+    cols = np.arange(a.shape[1])
+    return LocationAware(locs, a, leave, binding, a[binding, cols], leave[binding, cols], np.min(key, axis=0))
+
+
+def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: int, egress: RouteEgress) -> dict:
+    """Dose received by the last occupant on the way out, per FED criterion.
+
+    The dose follows :func:`location_history`: at ``start_at`` during detection, alarm
+    and pre-movement, then at each element's location while queuing for it and walking
+    it. Dose at a location is the increase of that location's cumulative dose over the
+    stay (trapezoidal rule on the histories' grid, as for the location ASET).
+    """
+    history = location_history(route, egress)
+    exit_t = egress.flow.exit_s
+    locs = list(dict.fromkeys(h.location for h in history))
+    rows = np.array([prep.ids.index(x) for x in locs])
+    end = prep.t_s[-1]
     out = {}
     for cid in ("fed_toxic", "fed_heat"):
         c = criteria.items.get(cid)
@@ -176,9 +405,11 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
             continue
         fld = aset.dose_field(prep, c, factors, S, rows)
         dose = np.zeros(S)
-        for j, t_in, t_out in windows:
-            times = np.zeros((S, len(rows)))
-            times_in, times_out = times.copy(), times.copy()
+        for h in history:
+            j = locs.index(h.location)
+            t_in = np.where(np.isfinite(h.t_in), h.t_in, end)
+            t_out = np.where(np.isfinite(h.t_out), h.t_out, end)
+            times_in, times_out = np.zeros((S, len(rows))), np.zeros((S, len(rows)))
             times_in[:, j], times_out[:, j] = t_in, t_out
             d = fld.at_times(times_out) - fld.at_times(times_in)
             dose += np.where(ok[rows][j], d[:, j], 0.0)
@@ -186,15 +417,22 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
         out[cid] = {"status": "assessed", "limit": c.limit, **summary,
                     "exceeds_p": share(dose >= c.limit),
                     "within_limit_at_p95": summary["p95"] is not None and summary["p95"] < c.limit}
-    beyond = share(exit_t > prep.t_s[-1])
+    beyond = share(exit_t > end)
+    placed = element_locations(route)
     return {"criteria": out, "last_occupant_exit_s": summarise(exit_t, 1),
             "share_beyond_end": beyond,
+            "history": [{"location": h.location, "what": h.what, "from_s": summarise(h.t_in, 1),
+                         "to_s": summarise(h.t_out, 1)} for h in history],
             "assumptions": [
-                "The last occupant starts moving when pre-movement ends (detection + alarm + pre-movement).",
-                "Each path element is walked at its unimpeded speed; the whole flow time is spent queuing "
-                "just before the controlling (least-capacity) element.",
-                "Path elements are assigned to the exposed locations in order, in proportion to distance "
-                "along the path; a door takes the location at its position.",
+                ("The last occupant is at " + f"'{route.start_at}'" + " from ignition until they start moving "
+                 "(detection + alarm + their pre-movement).") if route.start_at else
+                "No start_at location: no dose is counted before the last occupant starts moving.",
+                "At each path element the last occupant queues at its entry and then walks it, at the speed of the "
+                "flow model (crowd speed from the controlling element on); queue and walk are charged to the "
+                "element's location.",
+                "Element locations: " + "; ".join(
+                    f"{i + 1} {route.path[i]['type']} at '{loc}' ({'given' if how == 'at' else 'assigned in order of distance along exposed_at'})"
+                    for i, (loc, how) in enumerate(placed)) + ".",
                 "Doses accrue only while the occupant is at a location; after the end of the histories no "
                 "further dose is counted" + (f" (this affects {beyond:.0%} of draws)" if beyond > 0 else "") + ".",
             ]}
@@ -224,38 +462,64 @@ def factor_sweep_rows(factor_ppfs: dict) -> tuple[dict[str, np.ndarray], list[tu
     return rows, index
 
 
-def sensitivity(route: RouteSpec, prep, sweep_factors, sweep_index, sweep_loc_aset, labels: dict) -> list[dict]:
-    """One-at-a-time swing of the route's margin (at median inputs) for each uncertain input."""
+def sensitivity(route: RouteSpec, routes: list[RouteSpec], prep, sweep_factors, sweep_index, sweep_loc_aset,
+                labels: dict, named: dict | None = None) -> list[dict]:
+    """One-at-a-time swing of the route's margin (at median inputs) for each uncertain input.
+
+    Every route of the scenario is evaluated together (they may share elements); only
+    the swept input of this route moves. Uncertain inputs are swept between their 5th
+    and 95th percentiles; occupant count, walking speed, flow capacity and the
+    effective width of the route's controlling element, when certain, by +/-10 %.
+    """
+    k = routes.index(route)
+    n = len(routes)
     R = len(next(iter(sweep_factors.values()))) if sweep_factors else 1
-    draws = EgressDraws(np.full(R, 0.5), np.full(R, 0.5), np.full(R, 0.5))
     a = route_aset(sweep_loc_aset, prep.ids, route.exposed_at)
     # Where no limit is reached before the histories end, the margin is at least the
     # time left: use the end time, and say that these margins are lower bounds.
     censored = ~np.isfinite(a)
     a = np.where(censored, prep.t_s[-1], a)
-    rset, _, _ = route_rset(route, prep, sweep_factors, draws)
+    rset = scenario_egress(routes, prep, sweep_factors, [EgressDraws.median(R)] * n, named).routes[route.id].rset
     margin = a - rset
     base = float(margin[0])
     rows = []
     for key, lo, hi in sweep_index:
         rows.append(_swing(labels.get(key, key), "p05", "p95", margin[lo], margin[hi]))
-    base_f = {k: v[:1] for k, v in sweep_factors.items()}
-    a0 = a[:1]
-    one = EgressDraws(np.full(1, 0.5), np.full(1, 0.5), np.full(1, 0.5))
-    for name, spec in (("detection", route.detection), ("alarm", route.alarm), ("premovement", route.premovement)):
-        if isinstance(spec, DetectorRule) or dist.is_fixed(spec):
-            continue
-        m = []
-        for qv in (SWEEP_LOW, SWEEP_HIGH):
-            r, _, _ = route_rset(route, prep, base_f, one, quantiles={name: qv})
-            m.append(float((a0 - r)[0]))
-        rows.append(_swing(f"{name} time", "p05", "p95", *m))
-    for label, kw in (("occupant count", "occupants_factor"), ("walking speed", "speed_factor")):
-        m = []
-        for f in (1 - SWEEP_FRACTION, 1 + SWEEP_FRACTION):
-            r, _, _ = route_rset(route, prep, base_f, one, **{kw: f})
-            m.append(float((a0 - r)[0]))
-        rows.append(_swing(label, "-10 %", "+10 %", *m))
+    base_f = {key: v[:1] for key, v in sweep_factors.items()}
+    a0 = float(a[0])
+
+    def margin_with(quantiles=None, scale=None, width=None) -> float:
+        q = [None] * n
+        sc = [None] * n
+        q[k], sc[k] = quantiles, scale
+        eg = scenario_egress(routes, prep, base_f, [EgressDraws.median(1)] * n, named, q, sc, width)
+        return a0 - float(eg.routes[route.id].rset[0])
+
+    sweeps = []
+    for name, spec in (("detection", route.detection), ("alarm", route.alarm)):
+        if not (isinstance(spec, DetectorRule) or dist.is_fixed(spec)):
+            sweeps.append((f"{name} time", {name: SWEEP_LOW}, {name: SWEEP_HIGH}))
+    pre_plain = dist.with_parameters(route.premovement, {p: dist.median(sub) for p, sub in
+                                                         dist.parameter_specs(route.premovement).items()})
+    if not route.premovement_across and not dist.is_fixed(pre_plain):
+        sweeps.append(("premovement time", {"premovement": SWEEP_LOW}, {"premovement": SWEEP_HIGH}))
+    for p, sub in dist.parameter_specs(route.premovement).items():
+        if not dist.is_fixed(sub):
+            sweeps.append((f"premovement {p}", {f"premovement.{p}": SWEEP_LOW}, {f"premovement.{p}": SWEEP_HIGH}))
+    for label, key, spec in (("occupant count", "occupants", route.occupants_dist or {"fixed": 1.0}),
+                             ("walking speed", "speed_factor", route.speed_factor),
+                             ("flow capacity", "flow_factor", route.flow_factor)):
+        if dist.is_fixed(spec):
+            rows.append(_swing(label, "-10 %", "+10 %", margin_with(scale={key: 1 - SWEEP_FRACTION}),
+                               margin_with(scale={key: 1 + SWEEP_FRACTION})))
+        else:
+            sweeps.append((label, {key: SWEEP_LOW}, {key: SWEEP_HIGH}))
+    for label, low, high in sweeps:
+        rows.append(_swing(label, "p05", "p95", margin_with(quantiles=low), margin_with(quantiles=high)))
+    ctrl = int(np.argmin([element_properties(e)["capacity_p_s"] for e in route.path]))
+    node = _node(route, ctrl, route.path[ctrl])
+    rows.append(_swing(f"effective width of element {ctrl + 1} ({route.path[ctrl]['type']})", "-10 %", "+10 %",
+                       margin_with(width={node: 1 - SWEEP_FRACTION}), margin_with(width={node: 1 + SWEEP_FRACTION})))
     rows.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
     return [dict(r, base_margin_s=_finite(base), lower_bound=bool(censored.any())) for r in rows]
 

@@ -79,6 +79,9 @@ def build_parser() -> argparse.ArgumentParser:
     run_opts(d, "./egressmargin-demo")
     v = sub.add_parser("validate", help="check a study and every file it names, without computing")
     v.add_argument("study", type=Path)
+    v.add_argument("--explain", action="store_true",
+                   help="also print, per route, each element's effective width, density, speed, specific flow "
+                        "and capacity from the study alone (the hand calculation to check before a run)")
     f = sub.add_parser("fit-uncertainty", help="derive a model-uncertainty table from measured/predicted pairs")
     f.add_argument("pairs", type=Path)
     f.add_argument("--out", type=Path, help="YAML table to write (default: print it)")
@@ -249,6 +252,10 @@ def _validate(args) -> int:
     print(f"{args.study}: OK — {len(loaded.study.scenarios)} scenario(s), {n_loc} location(s), "
           f"{len(loaded.study.routes)} route(s), criteria '{loaded.study.criteria.name}', "
           f"{'model uncertainty from ' + str(loaded.table.path) if loaded.table else 'no model-uncertainty table'}")
+    if getattr(args, "explain", False):
+        from .egress.summary import explain_text
+        print()
+        print(explain_text(loaded.study))
     return 0
 
 

@@ -16,13 +16,14 @@ import numpy as np
 
 from . import __version__, aset, assess, outputs
 from .clock import shift_to_ignition
+from .egress import summary as egress_summary
 from .credibility import flag_change, grid_convergence
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
 from .stats import share, summarise
 from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
-from .verdict import CI_METHOD, decide, needs_more_samples
+from .verdict import CI_METHOD, decide, draw_outcomes, needs_more_samples, worst_outcome
 
 #: Samples used to draw the corrected p05-p95 band on the report's time plots.
 BAND_SAMPLES = 200
@@ -265,25 +266,35 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             {cid: aset.CriterionResult(np.repeat(r.times, R, axis=1), r.assessed, r.missing) for cid, r in raw.items()}
         sweep = (sweep_factors, sweep_index, aset.location_aset(sweep_res))
     routes, route_plots = [], {}
+    fac = factors if factors else {}
+    specs_here = [r for _, r in routes_here]
+
+    def egress_at(n: int, fac_n: dict):
+        return assess.scenario_egress(specs_here, prep, fac_n, [assess.egress_uniforms(seed, ri, n)
+                                                                for ri, _ in routes_here], study.elements)
+
+    egress = egress_at(S, fac) if routes_here else None
+    # raw deterministic margin: raw ASET against RSET at median inputs
+    egress_med = assess.scenario_egress(specs_here, prep, {}, [assess.EgressDraws.median()] * len(specs_here),
+                                        study.elements) if routes_here else None
     more = _MoreSamples(table, prep, crit, seed, index)
     s_max = max(study.max_samples, S)
+    bigger: dict[int, object] = {}
     for ri, route in routes_here:
-        draws = assess.egress_uniforms(seed, ri, S)
-        fac = factors if factors else {}
-        out = assess.outcome(route, prep, fac, loc_aset, raw_aset, governing_raw, draws, study.max_p_fail)
-        # Settle the statistics by sampling more where the interval straddles the limit
-        # (same seed streams, so the result is deterministic).
-        s_used = S
+        eg, fac_r, s_used = egress, fac, S
+        out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, eg.routes[route.id],
+                             study.max_p_fail)
+        # Settle the statistics by sampling more where the interval straddles the limit: the
+        # scenario's ASET and its (shared) egress again with twice the draws, same seed streams.
         while s_used < s_max and needs_more_samples(out.aset, out.rset, end, study.max_p_fail):
             s_used = min(2 * s_used, s_max)
-            fac_big, loc_big = more.at(s_used)
-            out = assess.outcome(route, prep, fac_big, loc_big, raw_aset, governing_raw,
-                                 assess.egress_uniforms(seed, ri, s_used), study.max_p_fail)
-            fac = fac_big
-        # raw deterministic margin: raw ASET against RSET at median inputs
-        med = assess.EgressDraws(np.full(1, 0.5), np.full(1, 0.5), np.full(1, 0.5))
-        rset_med, _, _ = assess.route_rset(route, prep, {}, med)
-        margin_raw = out.aset_raw - float(rset_med[0])
+            fac_r, loc_big = more.at(s_used)
+            if s_used not in bigger:
+                bigger = {s_used: egress_at(s_used, fac_r)}        # keep one count: memory
+            eg = bigger[s_used]
+            out = assess.outcome(route, prep, loc_big, raw_aset, governing_raw, eg.routes[route.id],
+                                 study.max_p_fail)
+        margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
         na = [{"location": loc, "criterion": cid} for loc in route.exposed_at
               for cid in locations[prep.ids.index(loc)]["not_assessed"]]
         entry = {
@@ -297,6 +308,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                          "controlling_type": route.path[out.movement.controlling]["type"],
                          "capacity_p_s": round(float(out.movement.capacities_p_s[out.movement.controlling]), 4),
                          "mode": route.movement_mode, "notes": list(out.movement.notes)},
+            **egress_summary.route_keys(route, eg.routes[route.id], eg.nodes, out.extras["location_aware"]),
             "aset_raw_s": _t(out.aset_raw), "aset_s": summarise(out.aset),
             "governing_location": out.governing_location, "governing_criterion": out.governing_criterion,
             "margin_s": summarise(out.margin), "margin_raw_s": _t(margin_raw),
@@ -316,21 +328,28 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         entry.update(v.as_results())
         entry["p_fail_method"] = CI_METHOD
         entry["share_undecided"] = round(v.share_unknown, 4)
+        entry["verdict_basis"] = ("route ASET: the earliest ASET of the locations the route passes, against RSET; "
+                                  "the location-aware comparison is reported beside it")
+        la = out.extras.get("location_aware")
+        if la is not None:
+            la_outcomes = worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end))
+            entry["location_aware_verdict"] = decide(la.aset_s, la.leave_s, end, study.max_p_fail,
+                                                     assessed=assessed_any, outcomes=la_outcomes).as_results()
         partial = sorted({f"{cid} at {loc}" for loc in route.exposed_at
                           for cid, c in locations[prep.ids.index(loc)]["criteria"].items() if c.get("partial")})
         entry["verdict_text"] = _verdict_text(entry, v, partial, undetected.mean() if undetected.size else 0.0)
         if route.along_route:
-            entry["along_route"] = assess.along_route_dose(route, prep, crit, fac, s_used, out.components,
-                                                           out.movement)
+            entry["along_route"] = assess.along_route_dose(route, prep, crit, fac_r, s_used, eg.routes[route.id])
         sf, si, sa = sweep
         labels = {k: _label(k) for k in si_keys(si)}
-        entry["sensitivity"] = assess.sensitivity(route, prep, sf, si, sa, labels)
+        entry["sensitivity"] = assess.sensitivity(route, specs_here, prep, sf, si, sa, labels, study.elements)
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
     scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),
                 "warnings": range_warnings,
                 "ignition_s": data.ignition_s, "clock": data.clock_note or "times count from the histories' first time (0 s), taken as ignition",
-                "locations": locations, "routes": routes}
+                "locations": locations, "routes": routes,
+                "shared_elements": egress_summary.shared_keys(egress.nodes, study.elements) if routes_here else []}
     if spec.design_fire:
         scenario["design_fire"] = spec.design_fire
     cred, cred_plot = credibility(loaded, index, crit)
@@ -698,10 +717,16 @@ def egress_method() -> dict:
         constants.append({"name": f"boundary layer, {kind}", "value": b, "unit": "m",
                           "source": "SFPE Handbook, 5th ed., ch. 59; from memory"})
     return {"name": "hydraulic hand method",
-            "text": ("RSET = detection + alarm + pre-movement + movement. Movement = travel time of the whole path "
-                     "at unimpeded speed + occupants / flow capacity of the controlling element (or the larger of "
-                     "the two where a route says movement: max). Uncertain times are sampled by inverse transform; "
-                     "a detector rule uses the same sampled model-error factors as the ASET."),
+            "text": ("RSET = detection + alarm + pre-movement + movement of the last occupant. Movement is a flow "
+                     "of persons: each element passes them first come, first served at its capacity (Fsm x "
+                     "effective width) and they then walk its length; upstream of a route's controlling (least "
+                     "capacity) element at unimpeded speed, from it on at the crowd speed of the flow it carries "
+                     "(density on the uncongested branch of Fs = (1 - aD) k D). Routes using the same named "
+                     "element share its capacity draw by draw (first come, first served, or the stream already "
+                     "in it keeps its flow). Pre-movement is either one uncertain time for everyone or spread "
+                     "across the occupants (person i of N at quantile (i - 1/2)/N); each route says which. "
+                     "Uncertain times, counts and factors are sampled by inverse transform; a detector rule uses "
+                     "the same sampled model-error factors as the ASET."),
             "constants": constants}
 
 

@@ -23,11 +23,18 @@ SERIES_KEYS = ("temperature", "co", "co2", "o2", "hcn", "extinction", "optical_d
 SMOKE_KEYS = ("extinction", "optical_density", "soot", "visibility")
 DISTRIBUTIONS = {"lognormal": ("median", "p95"), "normal": ("mean", "sd"), "uniform": ("low", "high"),
                  "triangular": ("low", "mode", "high")}
-ELEMENTS = {"corridor": ("length", "width"), "door": ("width",), "stair": ("length", "width", "riser", "tread"),
+ELEMENTS = {"corridor": ("length", "width"), "door": ("width",), "stair": ("width", "riser", "tread"),
             "ramp": ("length", "width")}
-ELEMENT_OPTIONAL = {"boundary", "length"}
+ELEMENT_OPTIONAL = {"boundary", "length", "at"}
+#: A stair's travel length: along the slope (`length`), or from plan length and rise.
+STAIR_LENGTH_KEYS = {"plan_length", "rise"}
+#: Keys of a named element in the top-level `elements:` list, besides its type.
+NAMED_ELEMENT_KEYS = {"id", "title", "upstream"}
+#: Distributions accepted for counts and multipliers (normal is left out: truncated at
+#: zero it gives zero people or zero capacity).
+POSITIVE_DISTRIBUTIONS = ("lognormal", "uniform", "triangular")
 TOP_KEYS = {"title", "criteria", "uncertainty", "samples", "seed", "acceptance", "scenarios", "egress", "credibility",
-            "reference", "prepared_by", "prepared_for", "paper", "max_samples"}
+            "reference", "prepared_by", "prepared_for", "paper", "max_samples", "elements"}
 SCENARIO_KEYS = {"id", "title", "histories", "time", "units_row", "locations", "ambient", "resolutions",
                  "ignition", "design_fire"}
 LOCATION_KEYS = {"id", "title", "temperature_profile", "role", *SERIES_KEYS}
@@ -36,7 +43,7 @@ LOCATION_ROLES = ("occupied", "detector")
 #: Optional description of a scenario's design fire, printed in the report as given.
 DESIGN_FIRE_KEYS = ("growth", "peak_hrr", "sprinklers", "ventilation", "yields", "notes")
 ROUTE_KEYS = {"id", "title", "scenarios", "occupants", "detection", "alarm", "premovement", "path",
-              "exposed_at", "movement", "exposure"}
+              "exposed_at", "movement", "exposure", "flow_factor", "speed_factor", "start_at"}
 #: A scenario's CSV format: field delimiters it may declare (``delimiter:``), and decimal marks (``decimal:``).
 SCENARIO_KEYS = SCENARIO_KEYS | {"delimiter", "decimal"}
 DELIMITERS = {",": ",", ";": ";", "\t": "\t", r"\t": "\t", "tab": "\t", "|": "|"}
@@ -126,8 +133,33 @@ class RouteSpec:
     premovement: dict
     path: list[dict]
     exposed_at: list[str]
-    movement_mode: str = "sum"
+    movement_mode: str = "flow"
     along_route: bool = False
+    where: str = ""
+    #: True: `premovement` spreads start times across the occupants; False: one
+    #: uncertain time for everyone.
+    premovement_across: bool = False
+    #: Occupant count as a distribution spec ({"fixed": n} when certain).
+    occupants_dist: dict | None = None
+    #: Multipliers on every element's flow capacity and walking speed (distribution specs).
+    flow_factor: dict = field(default_factory=lambda: {"fixed": 1.0})
+    speed_factor: dict = field(default_factory=lambda: {"fixed": 1.0})
+    #: Where the occupants are during detection, alarm and pre-movement (a location id).
+    start_at: str | None = None
+
+
+@dataclass
+class NamedElement:
+    """A path element that routes share: its parsed element and the merge rule.
+
+    ``upstream``: ids of the routes whose stream is already in the element (they keep
+    their flow; the others receive the capacity left over). Empty: first come, first
+    served.
+    """
+
+    id: str
+    element: dict
+    upstream: list[str]
     where: str = ""
 
 
@@ -151,6 +183,8 @@ class Study:
     #: flagged (10 %: common practice, no single source).
     max_grid_change: float = 0.10
     warnings: list[Problem] = field(default_factory=list)
+    #: Named path elements (top-level `elements:`), by id.
+    elements: dict[str, "NamedElement"] = field(default_factory=dict)
 
     @property
     def base_dir(self) -> Path:
@@ -339,7 +373,9 @@ def check_study(path: str | Path, criteria_override: str | None = None
 
     scenarios = _scenarios(ck, data.get("scenarios"), base)
     loc_ids = {s.id: {loc.id: loc for loc in s.locations} for s in scenarios}
-    routes = _routes(ck, data.get("egress", []), loc_ids)
+    named, broken = _named_elements(ck, data.get("elements"))
+    routes = _routes(ck, data.get("egress", []), loc_ids, named, broken)
+    _check_upstream(ck, named, routes)
 
     errors = [p for p in ck.problems if not p.warning]
     if errors or criteria is None:
@@ -350,7 +386,7 @@ def check_study(path: str | Path, criteria_override: str | None = None
                  prepared_by=ck.text(data.get("prepared_by"), ("prepared_by",)),
                  prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),
                  paper="letter" if paper.lower() == "letter" else "A4", max_grid_change=max_grid_change,
-                 warnings=[p for p in ck.problems if p.warning]), scenarios, ck.problems
+                 warnings=[p for p in ck.problems if p.warning], elements=named), scenarios, ck.problems
 
 
 def _int(ck, value, kp, low, what):
@@ -611,7 +647,8 @@ def _profile(ck, value, kp) -> ProfileRef | None:
     return ProfileRef([c.strip() for c in cols], hs, ceiling, unit, ck.doc.where(kp))
 
 
-def _routes(ck, value, loc_ids: dict[str, dict]) -> list[RouteSpec]:
+def _routes(ck, value, loc_ids: dict[str, dict], named: dict | None = None,
+            broken: set[str] | None = None) -> list[RouteSpec]:
     if value is None or value == []:
         return []
     if not isinstance(value, list):
@@ -645,10 +682,7 @@ def _routes(ck, value, loc_ids: dict[str, dict]) -> list[RouteSpec]:
                         ck.err(kp + ("scenarios", j), f"no scenario '{s}'; expected one of "
                                f"{', '.join(all_scen)}{did_you_mean(s, all_scen)}")
                 scen = [str(s) for s in scen]
-        occ = r.get("occupants")
-        if isinstance(occ, bool) or not isinstance(occ, int) or occ <= 0:
-            ck.err(kp + ("occupants",), f"found {_show(occ)}; expected a positive whole number of occupants")
-            occ = 1
+        occ, occ_dist = _occupants(ck, r.get("occupants"), kp + ("occupants",))
         for key in ("detection", "alarm", "premovement", "path", "exposed_at"):
             if key not in r:
                 ck.err(kp, f"missing key '{key}' for route '{rid}'")
@@ -660,8 +694,8 @@ def _routes(ck, value, loc_ids: dict[str, dict]) -> list[RouteSpec]:
                 ck.err(kp + ("exposed_at",), f"found {_show(ex)}; expected a list of location ids the occupants pass")
             else:
                 for j, lid in enumerate(ex):
-                    if not isinstance(lid, (str, int)) or isinstance(lid, bool):
-                        ck.err(kp + ("exposed_at", j), f"found {_show(lid)}; expected a location id")
+                    lid = _location_ref(ck, lid, kp + ("exposed_at", j), covered, loc_ids)
+                    if lid is None:
                         continue
                     detectors = [s for s in covered if s in loc_ids and lid in loc_ids[s]
                                  and loc_ids[s][lid].role == "detector"]
@@ -669,29 +703,230 @@ def _routes(ck, value, loc_ids: dict[str, dict]) -> list[RouteSpec]:
                         ck.err(kp + ("exposed_at", j), f"location '{lid}' has role: detector in scenario "
                                f"{', '.join(detectors)}; a detection point is not assessed for tenability, "
                                "so occupants cannot be exposed at it (remove the role or the location)")
-                    missing = [s for s in covered if s in loc_ids and lid not in loc_ids[s]]
-                    if missing:
-                        known = sorted({x for s in covered if s in loc_ids for x in loc_ids[s]})
-                        ck.err(kp + ("exposed_at", j), f"location '{lid}' does not exist in scenario "
-                               f"{', '.join(missing)}; expected one of {', '.join(known)}{did_you_mean(lid, known)}")
-                    exposed.append(str(lid))
+                    exposed.append(lid)
         detection = _detection(ck, r.get("detection"), kp + ("detection",), covered, loc_ids) \
             if "detection" in r else None
         alarm = ck.distribution(r["alarm"], kp + ("alarm",), "an alarm delay") if "alarm" in r else None
-        pre = ck.distribution(r["premovement"], kp + ("premovement",), "a pre-movement time") \
-            if "premovement" in r else None
-        path = _path(ck, r.get("path"), kp + ("path",)) if "path" in r else []
-        mode = r.get("movement", "sum")
-        if mode not in ("sum", "max"):
-            ck.err(kp + ("movement",), f"found {_show(mode)}; expected 'sum' (travel plus queue) or 'max' "
-                   "(the larger of the two)")
+        pre, across = _premovement(ck, r["premovement"], kp + ("premovement",)) if "premovement" in r \
+            else (None, False)
+        path = _path(ck, r.get("path"), kp + ("path",), named or {}, broken) if "path" in r else []
+        for j, element in enumerate(path):
+            if element.get("at") is not None:
+                _location_ref(ck, element["at"], element["at_kp"], covered, loc_ids)
+        start_at = _location_ref(ck, r["start_at"], kp + ("start_at",), covered, loc_ids) \
+            if "start_at" in r else None
+        factors = {key: _positive_number_or_distribution(ck, r[key], kp + (key,), "a multiplier")
+                   if key in r else {"fixed": 1.0} for key in ("flow_factor", "speed_factor")}
+        mode = _movement_mode(ck, r.get("movement", "flow"), kp + ("movement",))
         exposure = r.get("exposure")
         if exposure not in (None, "along-route", "location"):
             ck.err(kp + ("exposure",), f"found {_show(exposure)}; expected 'along-route'")
         out.append(RouteSpec(rid, ck.text(r.get("title"), kp + ("title",), default=rid), scen, occ, detection,
-                             alarm, pre, path, exposed, mode if mode in ("sum", "max") else "sum",
-                             exposure == "along-route", ck.doc.where(kp)))
+                             alarm, pre, path, exposed, mode, exposure == "along-route", ck.doc.where(kp),
+                             premovement_across=across, occupants_dist=occ_dist,
+                             flow_factor=factors["flow_factor"] or {"fixed": 1.0},
+                             speed_factor=factors["speed_factor"] or {"fixed": 1.0}, start_at=start_at))
     return out
+
+
+def _location_ref(ck, lid, kp, covered, loc_ids) -> str | None:
+    """A location id that must exist in every scenario the route covers."""
+    if not isinstance(lid, (str, int)) or isinstance(lid, bool):
+        ck.err(kp, f"found {_show(lid)}; expected a location id")
+        return None
+    missing = [s for s in covered if s in loc_ids and lid not in loc_ids[s]]
+    if missing:
+        known = sorted({x for s in covered if s in loc_ids for x in loc_ids[s]})
+        ck.err(kp, f"location '{lid}' does not exist in scenario {', '.join(missing)}; expected one of "
+               f"{', '.join(known)}{did_you_mean(lid, known)}")
+    return str(lid)
+
+
+def _movement_mode(ck, mode, kp) -> str:
+    if mode == "max":
+        ck.err(kp, "'movement: max' is no longer accepted: the larger of travel and flow time lets the last "
+               "person walk the whole path while everyone else queues, which understates RSET whenever walking "
+               "comes before or after the queue (the hydraulic method adds them, SFPE Handbook ch. 59). "
+               "Movement is now a flow of persons through the path; remove the key")
+    elif mode == "sum":
+        ck.warn(kp, "'movement: sum' is now the flow model (persons queue at each element and walk it; with "
+                "everyone starting together this is travel plus flow time, with crowd speed from the "
+                "controlling element on); the key can be removed")
+    elif mode != "flow":
+        ck.err(kp, f"found {_show(mode)}; expected 'flow' (the default) or no 'movement' key")
+    return "flow"
+
+
+def _occupants(ck, value, kp) -> tuple[int, dict]:
+    """Occupant count: a whole number, or a distribution of counts (rounded per draw)."""
+    if isinstance(value, dict):
+        spec = _positive_number_or_distribution(ck, value, kp, "an occupant count")
+        if spec is None:
+            return 1, {"fixed": 1.0}
+        from .egress.distributions import median
+        return max(1, int(round(median(spec)))), spec
+    if isinstance(value, bool) or not isinstance(value, int) or value <= 0:
+        ck.err(kp, f"found {_show(value)}; expected a positive whole number of occupants or a distribution "
+               "such as {uniform: {low: 120, high: 180}}")
+        return 1, {"fixed": 1.0}
+    return value, {"fixed": float(value)}
+
+
+def _positive_number_or_distribution(ck, value, kp, what) -> dict | None:
+    """A plain positive number or {lognormal | uniform | triangular: {...}} of plain numbers."""
+    if isinstance(value, dict):
+        if len(value) != 1 or next(iter(value)) not in POSITIVE_DISTRIBUTIONS:
+            ck.err(kp, f"found {_show(value)}; expected {what}: a number or one of "
+                   f"{', '.join('{' + k + ': {...}}' for k in POSITIVE_DISTRIBUTIONS)} "
+                   "(normal is not accepted: truncated at zero it can give zero)")
+            return None
+        name, params = next(iter(value.items()))
+        needed = DISTRIBUTIONS[name]
+        if not ck.keys(params, kp + (name,), set(needed), f"a {name} distribution ({', '.join(needed)})"):
+            return None
+        vals = {}
+        for p in needed:
+            v = params.get(p)
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not (v > 0) or v == float("inf"):
+                ck.err(kp + (name, p) if p in params else kp + (name,),
+                       f"found {_show(v)} for '{p}'; expected a plain number above zero")
+                continue
+            vals[p] = float(v)
+        if len(vals) != len(needed):
+            return None
+        spec = {name: vals}
+        from .egress.distributions import check_spec
+        problems = check_spec(spec)
+        for msg in problems:
+            ck.err(kp + (name,), msg.replace(" s)", ")").replace(" s,", ","))
+        return None if problems else spec
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not (0 < value < float("inf")):
+        ck.err(kp, f"found {_show(value)}; expected {what}: a number above zero or a distribution")
+        return None
+    return {"fixed": float(value)}
+
+
+def _premovement(ck, value, kp) -> tuple[dict | None, bool]:
+    """`premovement: <distribution>` (one time for all) or `{across_occupants: <distribution>}`."""
+    across = isinstance(value, dict) and len(value) == 1 and "across_occupants" in value
+    if isinstance(value, dict) and len(value) == 1 and not across and next(iter(value)) not in DISTRIBUTIONS:
+        ck.err(kp, f"found {_show(value)}; expected a distribution (one uncertain time for everyone) or "
+               "{across_occupants: <distribution>} (start times spread across the occupants)"
+               f"{did_you_mean(next(iter(value)), ['across_occupants', *DISTRIBUTIONS])}")
+        return None, False
+    if across:
+        kp = kp + ("across_occupants",)
+        value = value["across_occupants"]
+    return _duration(ck, value, kp, "a pre-movement time"), across
+
+
+def _duration(ck, value, kp, what) -> dict | None:
+    """A duration distribution whose parameters may themselves be bounded distributions."""
+    from .egress.distributions import BOUNDED_KINDS, check_nested_spec
+    nested = isinstance(value, dict) and len(value) == 1 and next(iter(value)) in DISTRIBUTIONS \
+        and isinstance(next(iter(value.values())), dict) \
+        and any(isinstance(v, dict) for v in next(iter(value.values())).values())
+    if not nested:
+        return ck.distribution(value, kp, what)
+    name, params = next(iter(value.items()))
+    needed = DISTRIBUTIONS[name]
+    if not ck.keys(params, kp + (name,), set(needed), f"a {name} distribution ({', '.join(needed)})"):
+        return None
+    out = {}
+    for p in needed:
+        if p not in params:
+            ck.err(kp + (name,), f"missing '{p}' for the {name} distribution; expected {', '.join(needed)}")
+            continue
+        v = params[p]
+        if isinstance(v, dict):
+            if len(v) != 1 or next(iter(v)) not in BOUNDED_KINDS:
+                ck.err(kp + (name, p), f"found {_show(v)}; an uncertain parameter needs a bounded "
+                       "distribution: {uniform: {low, high}} or {triangular: {low, mode, high}} of times")
+                continue
+            sub = ck.distribution(v, kp + (name, p), f"the {p} of the {name} distribution")
+        else:
+            q = ck.quantity(v, kp + (name, p), "duration")
+            sub = None if q is None else q
+        if sub is not None:
+            out[p] = sub
+    if len(out) != len(needed):
+        return None
+    spec = {name: out}
+    problems = check_nested_spec(spec)
+    for msg in problems:
+        ck.err(kp + (name,), msg)
+    return None if problems else spec
+
+
+def _named_elements(ck, value) -> tuple[dict[str, NamedElement], set[str]]:
+    """The top-level `elements:` list: [{id: east-stair, stair: {...}}, ...].
+
+    Returns the elements by id, and the ids whose definition has problems (already
+    reported; a route that uses one is not flagged again).
+    """
+    if value is None:
+        return {}, set()
+    if not isinstance(value, list):
+        ck.err(("elements",), f"found {_show(value)}; expected a list of named path elements such as "
+               "{id: east-stair, stair: {...}}")
+        return {}, set()
+    out: dict[str, NamedElement] = {}
+    broken: set[str] = set()
+    for i, item in enumerate(value):
+        kp = ("elements", i)
+        if not isinstance(item, dict):
+            ck.err(kp, f"found {_show(item)}; expected {{id: ..., <element type>: {{...}}}}")
+            continue
+        kinds = [k for k in item if k not in NAMED_ELEMENT_KEYS]
+        if "id" not in item:
+            ck.err(kp, "missing key 'id'; expected a short element identifier such as 'east-stair'")
+        eid = ck.ident(item["id"], kp + ("id",)) if "id" in item else None
+        if len(kinds) != 1:
+            ck.err(kp, f"found {', '.join(map(str, kinds)) or 'no element type'}; expected exactly one element "
+                   f"type ({', '.join(ELEMENTS)}) beside {', '.join(sorted(NAMED_ELEMENT_KEYS))}")
+            continue
+        element = _element(ck, {kinds[0]: item[kinds[0]]}, kp)
+        upstream = item.get("upstream", [])
+        if not isinstance(upstream, list) or not all(isinstance(x, (str, int)) and not isinstance(x, bool)
+                                                     for x in upstream):
+            ck.err(kp + ("upstream",), f"found {_show(upstream)}; expected a list of route ids whose flow is "
+                   "already in the element")
+            upstream = []
+        if eid is not None and element is None:
+            broken.add(eid)                # its own problems are reported; routes using it are not re-flagged
+        if eid is None or element is None:
+            continue
+        if eid in out:
+            ck.err(kp + ("id",), f"duplicate element id '{eid}'; expected unique ids")
+            continue
+        element["id"] = eid
+        out[eid] = NamedElement(eid, element, [str(x) for x in upstream], ck.doc.where(kp))
+    return out, broken
+
+
+def _check_upstream(ck, named: dict[str, NamedElement], routes: list[RouteSpec]) -> None:
+    """Every named element is used; `upstream` names its users; shared elements keep one order."""
+    ids = [r.id for r in routes]
+    for i, (eid, el) in enumerate(named.items()):
+        users = [r.id for r in routes if any(e.get("id") == eid for e in r.path)]
+        if not users:
+            ck.warn(("elements", i), f"element '{eid}' is not used by any route's path")
+        kp = ("elements", list(named).index(eid), "upstream")
+        for j, rid in enumerate(el.upstream):
+            if rid not in users:
+                ck.err(kp + (j,), f"route '{rid}' does not use element '{eid}'; expected one of "
+                       f"{', '.join(users) or '(no route uses it)'}{did_you_mean(rid, users or ids)}")
+    for a_i, a in enumerate(routes):
+        for b in routes[a_i + 1:]:
+            if a.scenarios and b.scenarios and not set(a.scenarios) & set(b.scenarios):
+                continue
+            order_a = [e["id"] for e in a.path if e.get("id")]
+            common = [x for x in order_a if any(e.get("id") == x for e in b.path)]
+            order_b = [e["id"] for e in b.path if e.get("id") in common]
+            if common != order_b:
+                ck.err(("egress", ids.index(b.id), "path"), f"route '{b.id}' uses the shared elements "
+                       f"{', '.join(order_b)} in another order than route '{a.id}' ({', '.join(common)}); "
+                       "expected one order, as people flow from one into the next")
 
 
 def _detection(ck, value, kp, covered, loc_ids):
@@ -766,46 +1001,112 @@ def _detection(ck, value, kp, covered, loc_ids):
     return ck.distribution(value, kp, "a detection time, a distribution, or a {heat: ...} / {smoke: ...} rule")
 
 
-def _path(ck, value, kp) -> list[dict]:
+def _path(ck, value, kp, named: dict | None = None, broken: set[str] | None = None) -> list[dict]:
     if not isinstance(value, list) or not value:
-        ck.err(kp, f"found {_show(value)}; expected a list of path elements ({', '.join(ELEMENTS)})")
+        ck.err(kp, f"found {_show(value)}; expected a list of path elements ({', '.join(ELEMENTS)}, or "
+               "{element: <id>} for a named element)")
         return []
+    named = named or {}
     out = []
     for j, el in enumerate(value):
         ekp = kp + (j,)
-        if not isinstance(el, dict) or len(el) != 1:
-            ck.err(ekp, f"found {_show(el)}; expected one element such as {{door: {{width: 0.9 m}}}}")
-            continue
-        kind, spec = next(iter(el.items()))
-        if kind not in ELEMENTS:
-            ck.err(ekp + (kind,), f"unknown path element '{kind}'; expected one of {', '.join(ELEMENTS)}"
-                   f"{did_you_mean(kind, ELEMENTS)}")
-            continue
-        needed = ELEMENTS[kind]
-        if not ck.keys(spec, ekp + (kind,), set(needed) | ELEMENT_OPTIONAL, f"a {kind}"):
-            continue
-        vals = {}
-        for p in needed:
-            if p not in spec:
-                ck.err(ekp + (kind,), f"missing '{p}' for the {kind}; expected {', '.join(needed)} with units")
+        if isinstance(el, dict) and "element" in el:
+            ref = el["element"]
+            if len(el) != 1:
+                ck.err(ekp, f"found {_show(el)}; expected only {{element: <id>}} (say 'at' and 'upstream' on "
+                       "the element in 'elements:')")
                 continue
-            vals[p] = ck.quantity(spec[p], ekp + (kind, p), "length", positive=True)
-        for p in ELEMENT_OPTIONAL - set(needed):
-            if p in spec:
-                vals[p] = ck.quantity(spec[p], ekp + (kind, p), "length", positive=(p != "boundary"))
-        if any(v is None for v in vals.values()) or len(vals) < len(needed):
+            if str(ref) in (broken or set()):
+                continue
+            if not isinstance(ref, (str, int)) or isinstance(ref, bool) or str(ref) not in named:
+                known = list(named)
+                ck.err(ekp + ("element",), f"no element '{ref}' in 'elements:'; expected one of "
+                       f"{', '.join(known) or '(none defined)'}{did_you_mean(ref, known)}")
+                continue
+            if any(e.get("id") == str(ref) for e in out):
+                ck.err(ekp + ("element",), f"element '{ref}' is used twice on this route; expected once")
+                continue
+            out.append(dict(named[str(ref)].element))
             continue
-        element = {"type": kind, "length_m": vals.get("length", 0.0), "width_m": vals["width"],
-                   "riser_m": vals.get("riser"), "tread_m": vals.get("tread"), "boundary_m": vals.get("boundary")}
-        from .egress.movement import effective_width
-        try:
-            we = effective_width(element["width_m"], kind, element["boundary_m"])
-            if we <= 0:
-                raise ValueError("no effective width")
-        except ValueError as exc:
-            ck.err(ekp + (kind, "width"), f"width {spec['width']} leaves no effective width after the boundary "
-                   f"layers ({exc}); expected a wider element")
-            continue
-        element["where"] = ck.doc.where(ekp)
-        out.append(element)
+        element = _element(ck, el, ekp)
+        if element is not None:
+            out.append(element)
     return out
+
+
+def _element(ck, el, ekp) -> dict | None:
+    """One path element {type: {...}} in internal units, or None (problems recorded)."""
+    if not isinstance(el, dict) or len(el) != 1:
+        ck.err(ekp, f"found {_show(el)}; expected one element such as {{door: {{width: 0.9 m}}}}")
+        return None
+    kind, spec = next(iter(el.items()))
+    if kind not in ELEMENTS:
+        ck.err(ekp + (kind,), f"unknown path element '{kind}'; expected one of {', '.join(ELEMENTS)}"
+               f"{did_you_mean(kind, ELEMENTS)}")
+        return None
+    needed = ELEMENTS[kind]
+    allowed = set(needed) | ELEMENT_OPTIONAL | (STAIR_LENGTH_KEYS if kind == "stair" else set())
+    if not ck.keys(spec, ekp + (kind,), allowed, f"a {kind}"):
+        return None
+    vals = {}
+    for p in needed:
+        if p not in spec:
+            ck.err(ekp + (kind,), f"missing '{p}' for the {kind}; expected {', '.join(needed)} with units")
+            continue
+        vals[p] = ck.quantity(spec[p], ekp + (kind, p), "length", positive=True)
+    for p in (ELEMENT_OPTIONAL | STAIR_LENGTH_KEYS) - set(needed) - {"at"}:
+        if p in spec:
+            vals[p] = ck.quantity(spec[p], ekp + (kind, p), "length", positive=(p != "boundary"))
+    if any(v is None for v in vals.values()) or not all(p in vals for p in needed):
+        return None
+    length, basis = vals.get("length", 0.0), "given"
+    if kind == "stair":
+        length, basis = _stair_length(ck, spec, vals, ekp + (kind,))
+        if length is None:
+            return None
+        from .egress.movement import STAIR_ROWS
+        steepest = max(r["riser_m"] / r["tread_m"] for r in STAIR_ROWS)
+        if vals["riser"] / vals["tread"] > steepest + 1e-9:
+            rows = "; ".join(f"{r['riser_m'] * 1000:.0f}/{r['tread_m'] * 1000:.0f} mm" for r in STAIR_ROWS)
+            ck.err(ekp + (kind,), f"stair {vals['riser'] * 1000:.0f}/{vals['tread'] * 1000:.0f} mm (riser/tread "
+                   f"{vals['riser'] / vals['tread']:.3f}) is steeper than every row of the hydraulic method's "
+                   f"stair table (rows {rows}; steepest {steepest:.3f}, SFPE Handbook ch. 59); expected a "
+                   "riser and tread within the table")
+            return None
+    element = {"type": kind, "length_m": length, "width_m": vals["width"],
+               "riser_m": vals.get("riser"), "tread_m": vals.get("tread"), "boundary_m": vals.get("boundary"),
+               "length_basis": basis}
+    from .egress.movement import effective_width
+    try:
+        we = effective_width(element["width_m"], kind, element["boundary_m"])
+        if we <= 0:
+            raise ValueError("no effective width")
+    except ValueError as exc:
+        ck.err(ekp + (kind, "width"), f"width {spec['width']} leaves no effective width after the boundary "
+               f"layers ({exc}); expected a wider element")
+        return None
+    if "at" in spec:
+        element["at"] = spec["at"] if isinstance(spec["at"], (str, int)) and not isinstance(spec["at"], bool) \
+            else None
+        element["at_kp"] = ekp + (kind, "at")
+        if element["at"] is None:
+            ck.err(ekp + (kind, "at"), f"found {_show(spec['at'])}; expected a location id")
+        else:
+            element["at"] = str(element["at"])
+    element["where"] = ck.doc.where(ekp)
+    return element
+
+
+def _stair_length(ck, spec, vals, kp) -> tuple[float | None, str]:
+    """A stair's travel length along its slope: `length`, or from `plan_length` and `rise`."""
+    given = [k for k in ("length", "plan_length", "rise") if k in spec]
+    if given == ["length"]:
+        return vals["length"], "length along the slope, as given"
+    if set(given) == {"plan_length", "rise"}:
+        plan, rise = vals["plan_length"], vals["rise"]
+        slope = (plan ** 2 + rise ** 2) ** 0.5
+        return slope, (f"along the slope from plan length {plan:g} m and rise {rise:g} m: "
+                       f"sqrt({plan:g}^2 + {rise:g}^2) = {slope:.2f} m")
+    ck.err(kp, f"found {', '.join(given) or 'no length'}; expected either 'length' (along the slope, landings "
+           "included) or both 'plan_length' and 'rise' (the slope length follows)")
+    return None, ""

@@ -75,6 +75,25 @@ def draw_outcomes(aset_s, rset_s, end_s: float) -> np.ndarray:
     return out
 
 
+def worst_outcome(outcomes) -> np.ndarray:
+    """Combine outcomes of several places per draw: any fail fails; else any undecided is undecided.
+
+    Parameters
+    ----------
+    outcomes : array_like, shape (L, S)
+
+    Examples
+    --------
+    >>> worst_outcome([[PASS, PASS, FAIL], [UNKNOWN, PASS, PASS]]).tolist()
+    [2, 1, 0]
+    """
+    o = np.asarray(outcomes)
+    out = np.full(o.shape[1:], PASS, np.int8)
+    out[(o == UNKNOWN).any(axis=0)] = UNKNOWN
+    out[(o == FAIL).any(axis=0)] = FAIL
+    return out
+
+
 def wilson_interval(k: int, n: int, z: float = Z_95) -> tuple[float, float]:
     """Wilson score interval for a binomial proportion k/n.
 
@@ -165,7 +184,7 @@ def _pct(x: float) -> str:
 
 
 def decide(aset_s, rset_s, end_s: float, max_p_fail: float, *, assessed: bool = True,
-           max_samples: int | None = None) -> Verdict:
+           max_samples: int | None = None, outcomes=None) -> Verdict:
     """Three-valued verdict of one route from its ASET and RSET draws.
 
     Parameters
@@ -181,6 +200,10 @@ def decide(aset_s, rset_s, end_s: float, max_p_fail: float, *, assessed: bool = 
         draws then carry no evidence and the verdict is "indeterminate".
     max_samples : int, optional
         The cap on extra draws, named in the reason when sampling could not settle it.
+    outcomes : array_like, optional
+        Per-draw outcomes computed by the caller (e.g. :func:`worst_outcome` over the
+        locations of a location-aware comparison); then ``aset_s`` and ``rset_s`` may be
+        (L, S) and serve only the determinism test and the wording.
 
     Returns
     -------
@@ -195,8 +218,12 @@ def decide(aset_s, rset_s, end_s: float, max_p_fail: float, *, assessed: bool = 
     """
     a = np.asarray(aset_s, float)
     r = np.asarray(rset_s, float)
-    det = _is_deterministic(a, r)
-    out = draw_outcomes(a, r, end_s)
+    if a.ndim == 1:
+        det = _is_deterministic(a, r)
+    else:                               # (L, S): every place the same in every draw
+        a2, r2 = (np.where(np.isfinite(x), x, np.inf) for x in (a, r))
+        det = bool(np.all(a2 == a2[:, :1]) and np.all(r2 == r2[:, :1]))
+    out = draw_outcomes(a, r, end_s) if outcomes is None else np.asarray(outcomes)
     n, p_low, p_high, ci, ci_low, share_unknown = _intervals(out, det)
     lim = _pct(max_p_fail)
     base = dict(p_fail=p_high, p_fail_low=p_low, ci95=ci, ci95_low=ci_low, samples_used=n,

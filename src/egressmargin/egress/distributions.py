@@ -31,14 +31,19 @@ import numpy as np
 from statistics import NormalDist
 
 __all__ = [
+    "BOUNDED_KINDS",
     "PARAMETERS",
     "Z_95",
+    "check_nested_spec",
     "check_spec",
     "is_fixed",
     "median",
+    "parameter_specs",
     "ppf",
+    "ppf_varying",
     "quantile",
     "sample",
+    "with_parameters",
 ]
 
 #: Parameter names of each distribution kind, in the order they are written.
@@ -285,31 +290,150 @@ def ppf(spec: Any, u: Any) -> np.ndarray:
     u = np.asarray(u, dtype=float)
     if np.any(~((u >= 0.0) & (u <= 1.0))):
         raise ValueError("ppf needs probabilities u in [0, 1]")
+    return _ppf_math(kind, p, u)
+
+
+def _ppf_math(kind: str, p: dict, u: np.ndarray) -> np.ndarray:
+    """The inverse CDFs of :func:`ppf`; parameters may be arrays broadcasting with ``u``."""
+    p = {k: np.asarray(v, dtype=float) for k, v in p.items()}
+    shape = np.broadcast_shapes(u.shape, *(v.shape for v in p.values()))
+    u = np.broadcast_to(u, shape)
     if kind == "fixed":
-        return np.full(u.shape, p["value"])
+        return np.broadcast_to(p["value"], shape).astype(float)
     if kind == "lognormal":
-        sigma = lognormal_sigma(p["median"], p["p95"])
-        if sigma == 0.0:
-            return np.full(u.shape, p["median"])
         from scipy import special
 
-        return p["median"] * np.exp(sigma * special.ndtri(u))
+        sigma = np.log(p["p95"] / p["median"]) / Z_95
+        return np.where(sigma == 0.0, p["median"], p["median"] * np.exp(sigma * special.ndtri(u)))
     if kind == "normal":
-        if p["sd"] == 0.0:
-            return np.full(u.shape, p["mean"])
         from ..stats import truncated_normal_ppf  # = scipy.stats.truncnorm.ppf(u, -mean/sd, inf, mean, sd)
 
-        return truncated_normal_ppf(u, p["mean"], p["sd"])
+        sd = np.where(p["sd"] == 0.0, 1.0, p["sd"])
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            x = truncated_normal_ppf(u, p["mean"], sd)
+        return np.where(p["sd"] == 0.0, p["mean"], x)
     if kind == "uniform":
         return p["low"] + u * (p["high"] - p["low"])
     # triangular
     a, c, b = p["low"], p["mode"], p["high"]
-    if b == a:
-        return np.full(u.shape, a)
-    f_c = (c - a) / (b - a)
+    width = np.where(b == a, 1.0, b - a)
+    f_c = (c - a) / width
     left = a + np.sqrt(u * (b - a) * (c - a))
     right = b - np.sqrt((1.0 - u) * (b - a) * (b - c))
-    return np.where(u <= f_c, left, right)
+    return np.where(b == a, a, np.where(u <= f_c, left, right))
+
+
+#: Distributions allowed for an uncertain parameter: bounded, so that every draw of the
+#: parameters can be checked to give a valid distribution.
+BOUNDED_KINDS: tuple[str, ...] = ("fixed", "uniform", "triangular")
+
+
+def parameter_specs(spec: Any) -> dict[str, Any]:
+    """The uncertain parameters of a specification: name -> its own distribution.
+
+    A parameter may itself be a distribution (a distribution over a distribution's
+    parameters, e.g. an uncertain median): ``{"lognormal": {"median": {"uniform":
+    {"low": 60, "high": 120}}, "p95": 240}}``. Plain numbers are not listed.
+
+    Examples
+    --------
+    >>> parameter_specs({"lognormal": {"median": {"uniform": {"low": 60, "high": 120}}, "p95": 240}})
+    {'median': {'uniform': {'low': 60, 'high': 120}}}
+    """
+    if not isinstance(spec, dict) or len(spec) != 1:
+        return {}
+    ((_, body),) = spec.items()
+    if not isinstance(body, dict):
+        return {}
+    return {k: v for k, v in body.items() if isinstance(v, dict)}
+
+
+def with_parameters(spec: Any, values: dict[str, float]) -> Any:
+    """The specification with its uncertain parameters replaced by numbers."""
+    if not parameter_specs(spec):
+        return spec
+    ((kind, body),) = spec.items()
+    return {kind: {k: float(values[k]) if isinstance(v, dict) else v for k, v in body.items()}}
+
+
+def check_nested_spec(spec: Any) -> list[str]:
+    """Problems of a specification whose parameters may be distributions.
+
+    Each uncertain parameter must be a bounded distribution (:data:`BOUNDED_KINDS`)
+    and valid itself; the specification must then be valid at every corner of the
+    box of parameter bounds. The constraints (p95 >= median > 0, low <= mode <= high,
+    values >= 0) are linear in the parameters, so holding at every corner means
+    holding for every draw.
+    """
+    params = parameter_specs(spec)
+    if not params:
+        return check_spec(spec)
+    problems = []
+    bounds = {}
+    for name, sub in params.items():
+        kind = next(iter(sub)) if isinstance(sub, dict) and sub else ""
+        if kind not in BOUNDED_KINDS:
+            problems.append(f"uncertain parameter '{name}' must have a bounded distribution "
+                            f"({', '.join(BOUNDED_KINDS)}), got '{kind}'")
+            continue
+        sub_problems = check_spec(sub)
+        problems += [f"parameter '{name}': {m}" for m in sub_problems]
+        if not sub_problems:
+            bounds[name] = (quantile(sub, 0.0), quantile(sub, 1.0))
+    if problems:
+        return problems
+    from itertools import product
+
+    names = list(bounds)
+    for corner in product(*(bounds[n] for n in names)):
+        values = dict(zip(names, corner))
+        for m in check_spec(with_parameters(spec, values)):
+            at = ", ".join(f"{n} = {_fmt(v)}" for n, v in values.items())
+            problems.append(f"with {at} (a bound of its range): {m}")
+    return list(dict.fromkeys(problems))
+
+
+def ppf_varying(spec: Any, u: Any, parameter_u: dict[str, np.ndarray] | None = None) -> np.ndarray:
+    """Inverse CDF where the parameters themselves are drawn, draw by draw.
+
+    Parameters
+    ----------
+    spec : dict
+        Specification whose parameters may be distributions (:func:`parameter_specs`).
+    u : array_like
+        Probabilities [-], shape (S,) or (S, N): the S draws along axis 0.
+    parameter_u : dict of str to numpy.ndarray, optional
+        For each uncertain parameter, its uniform numbers of shape (S,); missing: its
+        median (0.5).
+
+    Returns
+    -------
+    numpy.ndarray
+        Values, the shape of ``u``. Where u is NaN (an absent person), NaN.
+
+    Notes
+    -----
+    Draw s uses the parameters theta_s = F_theta^-1(v_s) and returns
+    F^-1(u_s; theta_s): a two-stage (hierarchical) draw by inverse transform.
+    """
+    u = np.asarray(u, dtype=float)
+    params = parameter_specs(spec)
+    if not params:
+        ok = np.where(np.isnan(u), 0.5, u)
+        return np.where(np.isnan(u), np.nan, ppf(spec, ok))
+    parameter_u = parameter_u or {}
+    ((kind, body),) = spec.items()
+    values = {}
+    for name, value in body.items():
+        if name in params:
+            v = parameter_u.get(name, np.full(u.shape[0], 0.5))
+            values[name] = ppf(params[name], v).reshape((-1,) + (1,) * (u.ndim - 1))
+        else:
+            values[name] = float(value)
+    if kind == "fixed":
+        values = {"value": values.get("value", next(iter(values.values())))}
+    safe = np.where(np.isnan(u), 0.5, u)
+    return np.where(np.isnan(u), np.nan, _ppf_math(kind, values, safe))
 
 
 def sample(spec: Any, n: int, rng: np.random.Generator) -> np.ndarray:

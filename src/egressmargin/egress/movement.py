@@ -439,7 +439,7 @@ class MovementTime:
     flow_s : float or numpy.ndarray
         Time for all occupants to pass the controlling element [s].
     total_s : float or numpy.ndarray
-        Movement time [s]: travel + flow (mode "sum") or the larger (mode "max").
+        Movement time [s]: travel + flow.
     controlling : int
         Index of the element of least flow capacity (the first if tied).
     capacities_p_s : numpy.ndarray
@@ -469,7 +469,6 @@ def _scalar_or_array(x: np.ndarray) -> Any:
 def movement_time(
     elements: list[dict[str, Any]],
     occupants,
-    mode: str = "sum",
     speed_factor=1.0,
     flow_factor=1.0,
 ) -> MovementTime:
@@ -481,10 +480,6 @@ def movement_time(
         Path elements in order, each as in :func:`element_properties`.
     occupants : float or array_like
         Number of people using the route [persons], > 0; scalar or shape (S,).
-    mode : {"sum", "max"}
-        "sum": travel time plus flow time (the last person is held at the
-        controlling element for the whole flow time and still walks the path);
-        "max": the larger of the two.
     speed_factor : float or array_like
         Multiplier on every element's unimpeded speed [-], > 0; scalar or (S,).
     flow_factor : float or array_like
@@ -503,12 +498,15 @@ def movement_time(
 
         t_travel = sum_i L_i / (f_speed v_i)
         t_flow   = N / (f_flow min_i Fc_i)
-        t_move   = t_travel + t_flow        (mode "sum")
-        t_move   = max(t_travel, t_flow)    (mode "max")
+        t_move   = t_travel + t_flow
 
     This is the hand form of the hydraulic model: the controlling element's
     capacity sets the flow; transitions between elements and queue build-up
-    upstream are not tracked separately.
+    upstream are not tracked separately. The run computes movement with the flow
+    model (:mod:`egressmargin.egress.flow`), which gives this sum when everyone
+    starts together and walks at unimpeded speed; this function is the reviewer's
+    hand check. (The larger of travel and flow time, once offered, is not: it lets
+    the last person walk the whole path while the others queue.)
 
     References
     ----------
@@ -526,8 +524,6 @@ def movement_time(
     >>> round(movement_time(path, 200).total_s, 1)
     281.6
     """
-    if mode not in ("sum", "max"):
-        raise ValueError(f"unknown movement mode '{mode}'; expected 'sum' or 'max'")
     if not elements:
         raise ValueError("a route needs at least one path element")
     props = []
@@ -554,7 +550,7 @@ def movement_time(
     occ, f_speed, f_flow = np.broadcast_arrays(occ, f_speed, f_flow)
     travel = float(np.sum(lengths / speeds)) / f_speed
     flow = occ / (f_flow * capacities[controlling])
-    total = travel + flow if mode == "sum" else np.maximum(travel, flow)
+    total = travel + flow
     notes = [f"path element {i + 1}: {n}" for i, p in enumerate(props) for n in p["notes"]]
     return MovementTime(
         travel_s=_scalar_or_array(np.asarray(travel)),
