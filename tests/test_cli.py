@@ -304,18 +304,9 @@ def test_report_failure_leaves_no_output(good_study, tmp_path, monkeypatch):
 
 
 def test_run_with_the_real_report(cli, good_study, tmp_path):
-    """The one end-to-end ``run --no-pdf`` with the real report module (in progress elsewhere)."""
+    """The one end-to-end ``run --no-pdf --html`` with the real report module."""
     out = tmp_path / "out"
-    try:
-        status, text, err = cli(["run", good_study, "--no-pdf", "--html", "--out", out])
-    except Exception as exc:  # tolerated only when raised inside the report module
-        files, tb = [], exc.__traceback__
-        while tb is not None:
-            files.append(tb.tb_frame.f_code.co_filename.replace(os.sep, "/"))
-            tb = tb.tb_next
-        if any("/egressmargin/report/" in f for f in files):
-            pytest.xfail(f"report module in progress: {type(exc).__name__}: {exc}")
-        raise
+    status, text, err = cli(["run", good_study, "--no-pdf", "--html", "--out", out])
     assert status == 0, err
     res = json.loads((out / "results.json").read_text(encoding="utf-8"))
     check_contract_keys(res, good_study)
