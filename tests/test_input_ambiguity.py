@@ -492,3 +492,35 @@ def test_truncated_normal_within_two_percent_is_quiet(kit, make_study, cli):
     text = kit.study.replace("alarm: 30 s", "alarm: {normal: {mean: 60 s, sd: 20 s}}")
     status, out, err = cli(["validate", make_study(text)])
     assert status == 0 and "truncated at zero" not in out + err
+
+
+def test_units_row_above_declared_but_names_on_line_one(kit, make_study, expect_input_error):
+    text = kit.study.replace("time: {column: Time, unit: s}", "time: Time\n    units_row: above")
+    names = [h.split(" [")[0] for h in kit.header]
+    units = ["s", "degC", "ppm", "percent", "percent", "1/m", "degC"]
+    csv = "\n".join(",".join(r) for r in [names, units] + kit.rows()) + "\n"
+    err = expect_input_error(make_study(text, csv=csv))
+    assert err.count("error:") == 1
+    assert "fire-a.csv:1: error: units_row: above, but the mapped columns (" in err and "are named on line 1" in err
+
+
+@pytest.mark.parametrize("unit", ["C", "deg C", "°C", "celsius"])
+def test_kelvin_looking_celsius_is_warned_for_every_celsius_spelling(kit, make_study, unit):
+    """293 'degC' at the start is most likely kelvin (a warning, not an error)."""
+    from egressmargin.histories import read_scenario
+    from egressmargin.study import load_study
+
+    rows = kit.rows()
+    for r in rows:
+        r[6] = f"{float(r[6]) + 273.15:g}"
+    header = [h.replace("T_stair [degC]", f"T_stair [{unit}]") for h in kit.header]
+    _, warnings = read_scenario(load_study(make_study(csv=kit.csv_text(header=header, rows=rows))).scenarios[0])
+    assert any("looks like kelvin" in w.message for w in warnings)
+
+
+def test_data_rows_wider_than_the_names_row(kit, make_study, expect_input_error):
+    """Every data row one field wider than the header: which value belongs to which column is
+    not decided, so it is an error naming the first such line, not a silent shift."""
+    rows = [r + ["7"] for r in kit.rows()]
+    err = expect_input_error(make_study(csv=kit.csv_text(rows=rows)))
+    assert "fire-a.csv:2: error: cannot read as CSV: line 2 has 8 fields and the names row 7" in err
