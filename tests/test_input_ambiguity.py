@@ -333,3 +333,194 @@ def test_every_declared_layout_reads_pints_numbers(make_study, temps, co, delimi
     assert data.t_s == pytest.approx([10.0 * i for i in range(len(temps))], abs=1e-9)
     assert data.series["temperature"][0] == pytest.approx(temps, rel=1e-12, abs=1e-9)
     assert data.series["co"][0] == pytest.approx([co * 1e-6] * len(temps), rel=1e-12, abs=1e-15)
+
+
+# --------------------------------------------------------------------------- report fields, memory, detection rules, truncation
+
+
+@pytest.mark.parametrize("key", ["reference", "prepared_by", "prepared_for", "title"])
+@pytest.mark.parametrize("value", ["{name: A. Engineer}", "[a, b]"])
+def test_report_field_given_as_a_map_or_list(kit, make_study, expect_input_error, key, value):
+    """Issue 13 item 4: a map was silently blanked."""
+    text = kit.study.replace("samples: 200", f"samples: 200\n{key}: {value}") if key != "title" else \
+        kit.study.replace("title: Test hall, small fixture (illustrative)", f"title: {value}")
+    err = expect_input_error(make_study(text))
+    assert f"study.yaml:{kit.line_of(text, key + ':')} {key}: error: found " in err and "expected text" in err
+
+
+def test_absurd_sample_count_is_refused_with_the_figure(kit, make_study, cli):
+    """samples: 1000000000 would end in a MemoryError after loading (issue 13 item 5):
+    10^9 x (2 x 256 + 512) B = 1.0 TB for the fixture's 2 locations and 1 route."""
+    from egressmargin.sizing import available_memory
+
+    text = kit.study.replace("samples: 200", "samples: 1000000000")
+    status, out, err = cli(["validate", make_study(text)])
+    assert status == 2
+    line = kit.line_of(text, "samples:")
+    assert f"study.yaml:{line} samples: error: 1000000000 samples need about 1.0 TB of memory" in err
+    assert "this machine has" in err and "available" in err
+    if available_memory()[0] is not None:
+        assert "expected at most about" in err
+
+
+def test_absurd_samples_on_the_command_line(kit, make_study, expect_input_error):
+    err = expect_input_error(make_study(), "--samples", "1000000000")
+    assert "--samples (command line): error: 1000000000 samples need about 1.0 TB" in err
+
+
+def test_memory_estimate_closed_form():
+    """sizing.estimate_bytes: S (L B_loc + R B_route) + L N 8 copies, summed over scenarios."""
+    from egressmargin import sizing
+
+    est = sizing.estimate_bytes(2000, [(42, 4, 181), (10, 1, 241)])
+    expected = (2000 * (42 * sizing.BYTES_PER_SAMPLE_LOCATION + 4 * sizing.BYTES_PER_SAMPLE_ROUTE)
+                + 42 * 181 * 8 * sizing.SERIES_COPIES
+                + 2000 * (10 * sizing.BYTES_PER_SAMPLE_LOCATION + 1 * sizing.BYTES_PER_SAMPLE_ROUTE)
+                + 10 * 241 * 8 * sizing.SERIES_COPIES)
+    assert est == expected
+    assert sizing.memory_problems(2000, [(42, 4, 181)], "x", available=8e9, total=16e9) == []
+
+
+_HEAT = "    detection: {heat: {location: hall-l1, rti: 50, activation: %s%s}}\n"
+
+
+def _heat_study(kit, activation="68 degC", velocity=", velocity: 1 m/s", location_velocity=False, ambient=""):
+    text = kit.study.replace("    detection: 30 s\n", _HEAT % (activation, velocity))
+    if location_velocity:
+        text = text.replace("        extinction: K_hall\n", "        extinction: K_hall\n        velocity: V_hall\n")
+    if ambient:
+        text = text.replace("    time: {column", f"    ambient: {{temperature: {ambient}}}\n    time: {{column")
+    return text
+
+
+def _csv_with_velocity(kit):
+    return kit.csv_text(header=kit.header + ["V_hall [m/s]"], rows=[r + ["1.0"] for r in kit.rows()])
+
+
+def test_heat_rule_velocity_and_a_velocity_series_conflict(kit, make_study, expect_input_error):
+    """Issue 12 item 12: the rule's velocity was silently ignored when the location had a series."""
+    text = _heat_study(kit, location_velocity=True)
+    err = expect_input_error(make_study(text, csv=_csv_with_velocity(kit)))
+    line = kit.line_of(text, "detection: {heat:")
+    assert f"study.yaml:{line} egress[0].detection.heat.velocity: error: the rule gives a constant velocity and " \
+           "location 'hall-l1' in scenario fire-a has a 'velocity' series" in err
+    assert "remove the other" in err
+
+
+def test_heat_rule_velocity_alone_is_fine(kit, make_study, cli):
+    status, out, err = cli(["validate", make_study(_heat_study(kit))])
+    assert status == 0, err
+
+
+@pytest.mark.parametrize("activation", ["20 degC", "15 degC", "293.15 K"])
+def test_activation_at_or_below_the_first_temperature(kit, make_study, expect_input_error, activation):
+    """T_hall starts at 20 degC (fixture): activation at or below it responds at 0 s (issue 12 item 12)."""
+    text = _heat_study(kit, activation=activation)
+    err = expect_input_error(make_study(text))
+    line = kit.line_of(text, "detection: {heat:")
+    assert f"study.yaml:{line} egress[0].detection.heat.activation: error: found an activation temperature of" in err
+    assert "at or below the ambient 20 degC (the first temperature at location 'hall-l1'" in err
+
+
+def test_activation_at_or_below_the_stated_ambient(kit, make_study, expect_input_error):
+    text = _heat_study(kit, activation="24 degC", ambient="25 degC")
+    err = expect_input_error(make_study(text))
+    assert "at or below the ambient 25 degC (ambient.temperature of scenario fire-a)" in err
+
+
+def _smoke_study(kit, threshold):
+    return kit.study.replace("    detection: 30 s\n", f"    detection: {{smoke: {{location: hall-l1, obscuration: "
+                                                      f"{threshold}}}}}\n")
+
+
+def test_obscuration_per_foot_and_per_metre():
+    """NFPA 72 Annex / SFPE Handbook (detection chapter): percent obscuration O over a path l
+    gives D = -log10(1 - O) / l [1/m] and K = ln(10) D (from memory). 3 %/ft:
+    D = -log10(0.97) / 0.3048 m = 0.043399 1/m, K = 0.09993 1/m (about 0.100, issue 12 item 12);
+    10 %/m: K = -ln(0.9) = 0.10536 1/m."""
+    import math
+
+    from egressmargin.egress.detection import optical_density_from_obscuration
+    from egressmargin.tenability.visibility import extinction_from_optical_density
+    from egressmargin.units import parse_obscuration
+
+    frac, length = parse_obscuration("3 percent/ft")
+    k = float(extinction_from_optical_density(optical_density_from_obscuration(frac) / length))
+    assert k == pytest.approx(-math.log(0.97) / 0.3048, rel=1e-9)
+    assert k == pytest.approx(0.100, abs=0.001)
+    frac, length = parse_obscuration("10 %/m")
+    assert float(extinction_from_optical_density(optical_density_from_obscuration(frac) / length)) == \
+        pytest.approx(-math.log(0.9), rel=1e-9)
+
+
+@pytest.mark.parametrize("threshold, k", [("3 percent/ft", -__import__("math").log(0.97) / 0.3048),
+                                          ("'3 %/ft'", -__import__("math").log(0.97) / 0.3048),
+                                          ("10 percent/m", -__import__("math").log(0.9))])
+def test_smoke_rule_reads_obscuration_per_length(kit, make_study, threshold, k):
+    from egressmargin.study import load_study
+
+    study = load_study(make_study(_smoke_study(kit, threshold)))
+    assert study.routes[0].detection.extinction_per_m == pytest.approx(k, rel=1e-9)
+
+
+@pytest.mark.parametrize("threshold", ["3 percent", "'3 %'", "0.03"])
+def test_bare_percent_obscuration_is_refused(kit, make_study, expect_input_error, threshold):
+    """A bare percent was read per metre: 3 %/ft became K 0.031 instead of 0.100 1/m."""
+    text = _smoke_study(kit, threshold)
+    err = expect_input_error(make_study(text))
+    line = kit.line_of(text, "detection: {smoke:")
+    assert f"study.yaml:{line} egress[0].detection.smoke.obscuration: error: found " in err
+    assert "'10 percent/m' or '3 percent/ft'" in err
+
+
+def test_truncated_normal_warns_when_the_median_moves(kit, make_study, cli):
+    """Mean 30 s, sd 60 s truncated at zero: median 53.8 s (scipy.stats.truncnorm(-0.5, inf,
+    30, 60).median() = 53.81; issue 17 item 5), 79 % above the mean: a located warning."""
+    from scipy.stats import truncnorm
+
+    assert truncnorm(-0.5, float("inf"), loc=30, scale=60).median() == pytest.approx(53.81, abs=0.01)
+    text = kit.study.replace("alarm: 30 s", "alarm: {normal: {mean: 30 s, sd: 60 s}}")
+    status, out, err = cli(["validate", make_study(text)])
+    assert status == 0
+    line = kit.line_of(text, "alarm:")
+    assert f"study.yaml:{line} egress[0].alarm.normal: warning: truncated at zero, this normal distribution " \
+           "has its median at 53.8 s, 79 % above the stated mean 30 s" in out + err
+
+
+def test_truncated_normal_within_two_percent_is_quiet(kit, make_study, cli):
+    """Mean 60 s, sd 20 s: F0 = Phi(-3) = 0.00135, median 60.07 s (+0.1 %): no warning."""
+    text = kit.study.replace("alarm: 30 s", "alarm: {normal: {mean: 60 s, sd: 20 s}}")
+    status, out, err = cli(["validate", make_study(text)])
+    assert status == 0 and "truncated at zero" not in out + err
+
+
+def test_units_row_above_declared_but_names_on_line_one(kit, make_study, expect_input_error):
+    text = kit.study.replace("time: {column: Time, unit: s}", "time: Time\n    units_row: above")
+    names = [h.split(" [")[0] for h in kit.header]
+    units = ["s", "degC", "ppm", "percent", "percent", "1/m", "degC"]
+    csv = "\n".join(",".join(r) for r in [names, units] + kit.rows()) + "\n"
+    err = expect_input_error(make_study(text, csv=csv))
+    assert err.count("error:") == 1
+    assert "fire-a.csv:1: error: units_row: above, but the mapped columns (" in err and "are named on line 1" in err
+
+
+@pytest.mark.parametrize("unit", ["C", "deg C", "°C", "celsius"])
+def test_kelvin_looking_celsius_is_warned_for_every_celsius_spelling(kit, make_study, unit):
+    """293 'degC' at the start is most likely kelvin (a warning, not an error)."""
+    from egressmargin.histories import read_scenario
+    from egressmargin.study import load_study
+
+    rows = kit.rows()
+    for r in rows:
+        r[6] = f"{float(r[6]) + 273.15:g}"
+    header = [h.replace("T_stair [degC]", f"T_stair [{unit}]") for h in kit.header]
+    _, warnings = read_scenario(load_study(make_study(csv=kit.csv_text(header=header, rows=rows))).scenarios[0])
+    assert any("looks like kelvin" in w.message for w in warnings)
+
+
+def test_data_rows_wider_than_the_names_row(kit, make_study, expect_input_error):
+    """Every data row one field wider than the header: which value belongs to which column is
+    not decided, so it is an error naming the first such line, not a silent shift."""
+    rows = [r + ["7"] for r in kit.rows()]
+    err = expect_input_error(make_study(csv=kit.csv_text(rows=rows)))
+    assert "fire-a.csv:2: error: cannot read as CSV: line 2 has 8 fields and the names row 7" in err

@@ -185,6 +185,12 @@ def _layout(spec, raw: bytes, fname: str, wanted: list[str]):
                  f"units_row: above on the scenario, {spec.where})")
             raise InputError([Problem(f"{fname}:1", f"the mapped columns ({_listing(missing)}) are named on line "
                                       f"2, and {what}")])
+    if declared == "above" and missing:
+        over = {_split_header(h)[0] for h in rows[0]} | set(rows[0])
+        if all(c in over for c in missing):
+            raise InputError([Problem(f"{fname}:1", f"units_row: above, but the mapped columns ({_listing(missing)}) "
+                                      f"are named on line 1; expected a units row on line 1 and the names on line 2, "
+                                      f"or units_row: below / true / false on the scenario ({spec.where})")])
     units_at = 0 if declared == "above" else (1 if declared == "below" else None)
     mapped = [i for i, h in enumerate(names) if h in wanted or _split_header(h)[0] in wanted]
     if declared == "below" and len(rows) > 1:
@@ -239,8 +245,9 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
     units_line = (units_at + 1) if units_at is not None else None
     skip = [0] if units_at is None else [0, 1]
     needed = sorted({i for c in wanted for i in candidates(c)})
+    # Columns by position (same-name headers stay apart); as many as the names row has.
     read_opts = {"skipinitialspace": True, "sep": delimiter, "decimal": decimal, "header": None,
-                 "skiprows": skip}
+                 "names": list(range(len(names))), "index_col": False, "skiprows": skip}
     # Fast path: the C parser straight to floats. Any column it cannot parse cleanly is
     # read again as text, so that the message can quote the offending cell.
     try:
@@ -395,29 +402,46 @@ _DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+(?:[eE][-+]?\d+)?$")
 
 
 def _check_field_counts(raw: bytes, path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> str:
-    """Raise InputError for a row with more or fewer fields than the header; return the SHA-256.
+    """Raise InputError for a row with more fields than the names row; return the SHA-256.
 
     Reading only the mapped columns would otherwise let a ragged row shift values into the
-    wrong column silently. Counting separators is cheap; only when a count differs is the
-    file parsed in full, so that quoted fields holding delimiters are not mistaken for errors.
-    ``skip`` lines above the names row (a units row above it) are counted too.
+    wrong column silently. Counting delimiters is cheap; only the lines whose count differs
+    from the names row's (line ``skip`` + 1) are parsed as CSV, so that quoted fields
+    holding delimiters are not mistaken for errors. A shorter row leaves blanks, which are
+    reported where a mapped column needs a number.
     """
     import pandas as pd
 
+    digest = hashlib.sha256(raw).hexdigest()
     lines = raw.splitlines()
-    if not lines:
-        return hashlib.sha256(raw).hexdigest()
+    if len(lines) <= skip:
+        return digest
     sep = delimiter.encode()
-    n_sep = lines[skip].count(sep) if skip < len(lines) else lines[0].count(sep)
-    if all(line.count(sep) == n_sep for line in lines if line.strip()):
-        return hashlib.sha256(raw).hexdigest()
-    try:
-        pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, sep=delimiter, header=None,
-                    skiprows=skip)
-    except Exception as exc:
-        raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected a "
-                                  "delimited file with one header row")]) from None
-    return hashlib.sha256(raw).hexdigest()
+    n_sep = lines[skip].count(sep)
+    odd = [i for i, line in enumerate(lines) if line.strip() and line.count(sep) != n_sep]
+    if not odd:
+        return digest
+    if any(b'"' in lines[i] for i in odd + [skip]):
+        # quotes may span lines: let the full parser judge
+        try:
+            pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, sep=delimiter,
+                        header=skip)
+        except Exception as exc:
+            raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected a "
+                                      "delimited file with one field per column on every line")]) from None
+        return digest
+
+    def fields(i):
+        text = lines[i].decode("utf-8", errors="replace")
+        return len(next(csv.reader([text], delimiter=delimiter), []))
+
+    width = fields(skip)
+    for i in odd:
+        if fields(i) > width:
+            raise InputError([Problem(f"{fname}:{i + 1}", f"cannot read as CSV: line {i + 1} has {fields(i)} fields "
+                                      f"and the names row {width}; expected at most one field per column (a "
+                                      "delimiter inside a number? check the delimiter and decimal mark)")])
+    return digest
 
 
 def _plausible(key, values, ref, info, fname, line0, problems):
@@ -439,8 +463,7 @@ def _plausible(key, values, ref, info, fname, line0, problems):
             problems.append(Problem(at(i), f"temperature {values[i]:.2f} degC is at or below absolute zero; "
                                     "expected a gas temperature"))
             return None
-        u = unit.strip().lower()
-        if u in ("degc", "°c", "c", "celsius", "degree_celsius") and 250 <= values[0] <= 330:
+        if same_unit(unit, "degC", "temperature") and 250 <= values[0] <= 330:
             problems.append(Problem(at(0), f"first value {values[0]:g} {unit} looks like kelvin; check the unit "
                                     "(expected degC near 20 at the start)", warning=True))
         return values

@@ -21,7 +21,7 @@ from .credibility import flag_change, grid_convergence
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
 from .stats import share, summarise
-from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study
+from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study, data_problems
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
 from .verdict import CI_METHOD, decide, draw_outcomes, needs_more_samples, worst_outcome
 
@@ -100,6 +100,7 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
             except InputError as exc:
                 problems.extend(exc.problems)
         res[spec.id] = runs
+    problems.extend(data_problems(study, data, options.samples))   # what only the data can tell (memory, detectors)
     if any(not p.warning for p in problems):
         raise InputError(problems + [w for w in warnings if w.warning])
     return Loaded(study, table, data, res, warnings)

@@ -14,7 +14,7 @@ from pathlib import Path
 
 from .criteria import CriteriaSet, describe_criteria_value, override_criteria, resolve_criteria
 from .errors import InputError, Problem
-from .units import UnitProblem, check_unit, parse_quantity
+from .units import UnitProblem, check_unit, parse_obscuration, parse_quantity
 from .yamlfile import Located, load_located
 
 #: Location series keys (contract) plus `velocity` (for detector response).
@@ -120,6 +120,7 @@ class DetectorRule:
     extinction_per_m: float = 0.0   # smoke threshold as natural-log extinction coefficient
     threshold_text: str = ""
     where: str = ""
+    activation_where: str = ""      # file:line of the activation key, for the check against ambient
 
 
 @dataclass
@@ -269,9 +270,13 @@ class _Checker:
             if len(out) != len(needed):
                 return None
             spec = {name: out}
-            from .egress.distributions import check_spec
-            for msg in check_spec(spec):
+            from .egress.distributions import check_spec, truncation_note
+            messages = check_spec(spec)
+            for msg in messages:
                 self.err(kp + (name,), msg)
+            note = None if messages else truncation_note(spec)
+            if note:
+                self.warn(kp + (name,), note)
             return spec
         if isinstance(value, dict):
             self.err(kp, f"found {_show(value)}; expected {what}: a time such as '60 s' or one of "
@@ -377,6 +382,9 @@ def check_study(path: str | Path, criteria_override: str | None = None
     routes = _routes(ck, data.get("egress", []), loc_ids, named, broken)
     _check_upstream(ck, named, routes)
 
+    # Report fields are checked before the error count, so a map or list there is an error, not a blank.
+    for key in ("reference", "prepared_by", "prepared_for"):
+        ck.text(data.get(key), (key,))
     errors = [p for p in ck.problems if not p.warning]
     if errors or criteria is None:
         return None, scenarios, ck.problems
@@ -951,6 +959,10 @@ def _detection(ck, value, kp, covered, loc_ids):
                        f"of {', '.join(known)}{did_you_mean(lid, known)}")
                 continue
             need = ["temperature"] if kind == "heat" else []
+            if kind == "heat" and "velocity" in spec and "velocity" in loc.series:
+                ck.err(kp + (kind, "velocity"), f"the rule gives a constant velocity and location '{lid}' in scenario "
+                       f"{s} has a 'velocity' series ({loc.series['velocity'].where}); which one the RTI model "
+                       "should use is not decided: expected one of them, remove the other")
             if kind == "heat" and "velocity" not in spec and "velocity" not in loc.series:
                 ck.err(kp + (kind,), f"location '{lid}' in scenario {s} has no 'velocity' series and the rule "
                        "gives no constant 'velocity'; expected one of them for the RTI model")
@@ -970,26 +982,29 @@ def _detection(ck, value, kp, covered, loc_ids):
                                        default_unit="m^0.5*s^0.5") or 0.0
             if "activation" in spec:
                 rule.activation_c = ck.quantity(spec["activation"], kp + (kind, "activation"), "temperature") or 0.0
+                rule.activation_where = ck.doc.where(kp + (kind, "activation"))
             if "velocity" in spec:
                 rule.velocity_m_s = ck.quantity(spec["velocity"], kp + (kind, "velocity"), "velocity", positive=True)
         else:
             given = [k for k in ("extinction", "optical_density", "obscuration") if k in spec]
             if len(given) != 1:
                 ck.err(kp + (kind,), "expected exactly one threshold: extinction (1/m), optical_density (1/m) or "
-                       "obscuration (percent per metre)")
+                       "obscuration (percent/m or percent/ft)")
                 return rule
             k = given[0]
             rule.threshold_text = f"{k} {spec[k]}"
             if k == "obscuration":
-                frac = ck.quantity(spec[k], kp + (kind, k), "fraction", positive=True)
-                if frac is not None and frac >= 1:
-                    ck.err(kp + (kind, k), f"found {spec[k]!r}; expected an obscuration below 100 percent per metre")
-                    frac = None
-                if frac is not None:
+                try:
+                    frac, length_m = parse_obscuration(spec[k])
+                except UnitProblem as exc:
+                    ck.err(kp + (kind, k), str(exc))
+                else:
                     from .egress.detection import optical_density_from_obscuration
                     from .tenability.visibility import extinction_from_optical_density
+                    # Percent obscuration O over a path l: D = -log10(1 - O) / l [1/m] (NFPA 72
+                    # Annex, SFPE Handbook detection chapter: definitions -- from memory).
                     rule.extinction_per_m = float(extinction_from_optical_density(
-                        optical_density_from_obscuration(frac)))
+                        optical_density_from_obscuration(frac) / length_m))
             else:
                 v = ck.quantity(spec[k], kp + (kind, k), k, positive=True)
                 if v is not None:
@@ -1110,3 +1125,51 @@ def _stair_length(ck, spec, vals, kp) -> tuple[float | None, str]:
     ck.err(kp, f"found {', '.join(given) or 'no length'}; expected either 'length' (along the slope, landings "
            "included) or both 'plan_length' and 'rise' (the slope length follows)")
     return None, ""
+def data_problems(study: Study, data: dict, samples: int | None = None) -> list[Problem]:
+    """Errors only the loaded histories can tell, so that ``validate`` OK means ``run`` works.
+
+    - memory: the run's estimated working set (:mod:`egressmargin.sizing`) against this
+      machine's available memory, for ``samples`` (``--samples``) or the study's, or the
+      most a verdict may draw (``max_samples``) when more;
+    - a heat detector whose activation temperature is at or below the ambient temperature
+      (the scenario's ``ambient.temperature``, else the first value of the location's
+      temperature series, as the detector model takes it) would respond at time zero.
+
+    ``data`` maps scenario id to its :class:`~egressmargin.histories.ScenarioData`.
+    """
+    from .sizing import memory_problems
+
+    problems: list[Problem] = []
+    by_id = {s.id: s for s in study.scenarios}
+    for route in study.routes:
+        rule = route.detection
+        if not isinstance(rule, DetectorRule) or rule.kind != "heat":
+            continue
+        for sid in route.scenarios or list(by_id):
+            d, spec = data.get(sid), by_id.get(sid)
+            if d is None or spec is None or rule.location not in d.location_ids:
+                continue
+            li = d.location_ids.index(rule.location)
+            if spec.ambient_temperature_c is not None:
+                ambient, source = spec.ambient_temperature_c, f"ambient.temperature of scenario {sid}"
+            elif d.has("temperature")[li] and d.series["temperature"].shape[1]:
+                ambient = float(d.series["temperature"][li][0])
+                source = f"the first temperature at location '{rule.location}' in scenario {sid}"
+            else:
+                continue
+            if rule.activation_c <= ambient:
+                problems.append(Problem(rule.activation_where or rule.where,
+                                        f"found an activation temperature of {rule.activation_c:g} degC, at or "
+                                        f"below the ambient {ambient:g} degC ({source}): the detector would "
+                                        "respond at time zero; expected an activation temperature above ambient"))
+    drawn = int(samples or study.samples)
+    most = int(getattr(study, "max_samples", 0) or 0)
+    shapes = [(len(d.location_ids), sum(1 for r in study.routes if r.scenarios is None or sid in r.scenarios),
+               len(d.t_s)) for sid, d in data.items()]
+    memory = memory_problems(max(drawn, most), shapes, "")
+    if memory:   # locate the key only when there is something to say (reads the study again)
+        key = "max_samples" if most > drawn else "samples"
+        where = "--samples (command line)" if samples and key == "samples" else \
+            load_located(study.path).where((key,))
+        problems += [Problem(where, p.message) for p in memory]
+    return problems

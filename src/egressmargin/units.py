@@ -258,6 +258,45 @@ def parse_quantity(text, quantity: str, default_unit: str | None = None) -> floa
     return float(to_internal(number, unit, quantity))
 
 
+_PER_LENGTH = re.compile(r"^(?:percent|%)\s*/\s*(\S.*)$", re.IGNORECASE)
+
+
+def parse_obscuration(text) -> tuple[float, float]:
+    """Parse a smoke detector's obscuration threshold, e.g. ``"3 percent/ft"`` or ``"10 %/m"``.
+
+    Returns ``(O, l)``: the obscuration as a fraction in (0, 1) [-] over the path length
+    ``l`` [m] it is stated per. A bare ``percent`` is refused: the same number per metre
+    and per foot are different thresholds (a 3 %/ft detector is 9.5 %/m).
+
+    Examples
+    --------
+    >>> parse_obscuration("3 percent/ft")
+    (0.03, 0.3048)
+    >>> parse_obscuration("10 %/m")
+    (0.1, 1.0)
+    """
+    expected = "expected a percent obscuration per unit length such as '10 percent/m' or '3 percent/ft'"
+    if isinstance(text, bool) or not isinstance(text, str):
+        raise UnitProblem(f"found {text!r}; {expected}")
+    m = _QTY.match(text)
+    if not m:
+        raise UnitProblem(f"found '{text}'; {expected}")
+    number, unit = float(m.group(1)), _clean(m.group(2))
+    per = _PER_LENGTH.match(unit)
+    if not per:
+        if unit.lower() in ("percent", "%", ""):
+            raise UnitProblem(f"found '{text}' without the path length it is per; {expected}")
+        raise UnitProblem(f"found '{text}'; {expected}")
+    try:
+        length_m = parse_quantity(f"1 {per.group(1)}", "length")
+    except UnitProblem:
+        raise UnitProblem(f"found '{text}': '{per.group(1)}' is not a length; {expected}") from None
+    length_m = float(f"{length_m:.12g}")   # the conversion's round-off (0.30479999999999996 for 1 ft)
+    if not (math.isfinite(number) and 0 < number < 100):
+        raise UnitProblem(f"found '{text}'; expected an obscuration above 0 and below 100 percent per length")
+    return number / 100.0, length_m
+
+
 def display_unit(quantity: str) -> str:
     """The unit used to show a quantity to people (report and results)."""
     return {"co": "ppm", "co2": "percent", "o2": "percent", "hcn": "ppm", "soot": "mg/m^3",

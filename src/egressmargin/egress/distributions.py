@@ -15,6 +15,12 @@ triangular         ``{"triangular": {"low": a, "mode": c,            0 <= a <= c
                    "high": b}}``
 =================  ===============================================  ================
 
+The normal is truncated at zero (contract: a duration cannot be negative): draws come
+from the normal's part above zero, renormalised, never from clipping. Truncation moves
+the distribution up; :func:`truncation_note` says by how much the median moves, and the
+study loader warns when it moves more than :data:`TRUNCATION_WARN` (2 %) from the
+stated mean (e.g. mean 30 s, sd 60 s: median 53.8 s).
+
 Every draw goes through the inverse cumulative distribution function :func:`ppf`
 evaluated at uniform numbers, so the same uniforms can be reused across design
 variants (common random numbers) and a sensitivity study can ask for an exact
@@ -44,6 +50,7 @@ __all__ = [
     "quantile",
     "sample",
     "with_parameters",
+    "truncation_note",
 ]
 
 #: Parameter names of each distribution kind, in the order they are written.
@@ -59,6 +66,10 @@ PARAMETERS: dict[str, tuple[str, ...]] = {
 #: (computed with the standard library's NormalDist, not typed in; scipy.stats.norm.ppf
 #: gives the same value — checked in the tests). scipy is imported only when sampling.
 Z_95: float = NormalDist().inv_cdf(0.95)
+
+#: Relative move of a truncated normal's median from the stated mean above which the
+#: study loader warns (project choice: a few percent, issue 17).
+TRUNCATION_WARN = 0.02
 
 
 def _fmt(value: float) -> str:
@@ -481,3 +492,38 @@ def is_fixed(spec: Any) -> bool:
     if kind == "normal":
         return p["sd"] == 0.0
     return p["low"] == p["high"]
+
+
+def truncation_note(spec: Any) -> str | None:
+    """Say how far truncation at zero moves a normal distribution's median, when more than
+    :data:`TRUNCATION_WARN` of the stated mean; None otherwise (and for other kinds).
+
+    Parameters
+    ----------
+    spec : dict
+        A specification in seconds [s], e.g. ``{"normal": {"mean": 30.0, "sd": 60.0}}``.
+
+    Notes
+    -----
+    The median of a normal(mu, s) truncated below at zero is
+    mu + s * Phi^-1(F0 + 0.5 (1 - F0)) with F0 = Phi(-mu / s) (Johnson, Kotz &
+    Balakrishnan, Continuous Univariate Distributions, vol. 1, 2nd ed., Wiley, ch. 13);
+    the same as ``scipy.stats.truncnorm(-mu / s, inf, mu, s).median()``.
+
+    Examples
+    --------
+    >>> truncation_note({"normal": {"mean": 30.0, "sd": 60.0}})
+    'truncated at zero, this normal distribution has its median at 53.8 s, 79 % above the stated mean 30 s; expected an sd small against the mean (or a lognormal distribution)'
+    >>> truncation_note({"normal": {"mean": 120.0, "sd": 30.0}}) is None
+    True
+    """
+    kind, p = _checked(spec)
+    if kind != "normal" or p["sd"] <= 0:
+        return None
+    mid = median(spec)
+    shift = abs(mid - p["mean"]) / p["mean"] if p["mean"] > 0 else math.inf
+    if shift <= TRUNCATION_WARN:
+        return None
+    how = f"{shift:.0%}".replace("%", " %") if math.isfinite(shift) else "far"
+    return (f"truncated at zero, this normal distribution has its median at {mid:.1f} s, {how} above the stated "
+            f"mean {_fmt(p['mean'])}; expected an sd small against the mean (or a lognormal distribution)")
