@@ -464,22 +464,42 @@ def node_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float) -> np.ndarra
     return np.where(reached, t, np.inf)
 
 
-def _monotone(grid: np.ndarray, k: int, G: int) -> np.ndarray:
-    """Per location: is the dose grid nondecreasing along every factor axis, at every time?
+def dose_shape(prep: Prepared, criterion: Criterion, varying: list[str], rows: np.ndarray):
+    """Per location of ``rows``: is the dose (monotone, convex, linear) in its varying factors?
 
-    To a rounding tolerance of 1e-9 of the location's largest dose (:func:`_tolerance`).
+    From the form of the rates, checked on the series (cheap, no pass over the grid):
+
+    * monotone (nondecreasing in every factor): every rate is nondecreasing in the
+      corrected concentration, temperature rise, O2 depletion and flux it uses, so the
+      dose is monotone where each varying quantity's base series is >= 0 (a temperature
+      below ambient, O2 above ambient break it; such a location is integrated exactly);
+    * convex (one varying factor): every rate is convex in its quantity -- ``T^3.4``
+      (clipped at 0 degC), ``C^1.036``, the exponentials of HCN, CO2 and hypoxia, linear
+      terms, products with a fixed positive multiplier, the larger of two convex doses --
+      except the radiant term, which jumps at its threshold (fed_heat in ``heat_flux``);
+    * linear: the ISO 13571 CO term alone (:func:`_linear_in`).
+
+    ``tests/test_engine_bruteforce.py`` checks these claims against second differences on
+    fine grids.
     """
-    Lc, N = grid.shape[1:]
-    g = grid.reshape((G,) * k + (Lc, N))
-    mono = np.ones(Lc, bool)
-    for ax in range(k):
-        mono &= np.diff(g, axis=ax).min(axis=tuple(range(k)) + (k + 1,)) >= -_tolerance(grid)
-    return mono
+    mono = np.ones(rows.size, bool)
+    for q in varying:
+        base = _base_series(prep, q)[rows]
+        mono &= ~np.any(base < 0.0, axis=1)          # NaN (absent) compares False
+    convex = np.full(rows.size, len(varying) == 1 and not (criterion.id == "fed_heat" and varying == ["heat_flux"]))
+    linear = np.full(rows.size, _linear_in(criterion, varying))
+    return mono, convex & ~linear, linear
 
 
-def _tolerance(grid: np.ndarray) -> np.ndarray:
-    """(Lc,) rounding tolerance of a dose grid's shape checks: 1e-9 of each location's largest dose."""
-    return np.abs(grid.max(axis=(0, 2))) * 1e-9 + 1e-300     # doses are >= 0
+def _base_series(prep: Prepared, q: str) -> np.ndarray:
+    """The (L, N) series a factor of ``q`` multiplies (its validated form)."""
+    if q == "temperature":
+        return prep.rise
+    if q == "heat_flux":
+        return prep.flux
+    if q == "o2":
+        return prep.o2_depletion
+    return prep.gases[q]
 
 
 def _index_bracket(t_s: np.ndarray, t_from: np.ndarray, t_to: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -508,7 +528,7 @@ def _interpolated_times(fld: DoseField, limit: float, t_early, t_late, t_first) 
 
 def _pair_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float, loc: np.ndarray, nodes: np.ndarray,
                     weights: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
-    """First crossing of ``sum_c weights[p, c] * grid[nodes[p, c], loc[p]]`` for each pair p.
+    """First crossing of ``sum_c weights[p, c] * grid[nodes[p, c], loc[p]]`` (c = 0, 1) per pair p.
 
     The curves must be nondecreasing in time, below the limit at sample ``lo[p]`` (or
     ``lo[p] == 0``); a bisection inside [lo, hi] finds the first sample that reaches it and
@@ -517,10 +537,10 @@ def _pair_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float, loc: np.nda
     """
     N = grid.shape[2]
     flat = grid.reshape(-1)
-    base = (nodes * grid.shape[1] + loc[:, None]) * N                     # (P, C)
+    (b0, b1), (w0, w1) = ((nodes[:, j] * grid.shape[1] + loc) * N for j in (0, 1)), weights.T
 
     def value(p, i):
-        return np.einsum("pc,pc->p", weights[p], flat[base[p] + i[:, None]])
+        return w0[p] * flat[b0[p] + i] + w1[p] * flat[b1[p] + i]
 
     reached = value(np.arange(lo.size), hi) >= limit
     lo, hi = lo.copy(), hi.copy()
@@ -540,7 +560,7 @@ def _pair_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float, loc: np.nda
     return np.where(reached, t, np.nan)
 
 
-def _one_factor_times(fld: DoseField, limit: float):
+def _one_factor_times(fld: DoseField, limit: float, mono, convex, linear):
     """Reported crossings and their proven error bounds [s] for a dose with one varying factor.
 
     Upper estimate: the chord between the cell's nodes (the interpolated dose). Where the
@@ -551,8 +571,9 @@ def _one_factor_times(fld: DoseField, limit: float):
     the bound is the distance to the farther of the crossings at the cell's two nodes
     (monotone doses). Linear doses are exact. Every curve is searched only between the
     crossings of its cell's two nodes, where the monotone doses must cross. +inf bounds
-    mark draws to integrate exactly (a location whose grid is not monotone; a draw whose
-    lower bound does not reach the limit by the end).
+    mark draws to integrate exactly (a location whose dose is not monotone; a draw whose
+    lower bound does not reach the limit by the end). ``mono``, ``convex``, ``linear``
+    (Lc,) come from :func:`dose_shape`.
 
     Returns (reported times, bounds, latest possible crossing), each (S, Lc) [s].
     """
@@ -563,20 +584,6 @@ def _one_factor_times(fld: DoseField, limit: float):
     cell = np.clip(np.floor(pos).astype(int), 0, G - 2)
     w = np.clip(pos - cell, 0.0, 1.0)
     t_nodes = node_crossings(t_s, fld.grid, limit)            # (G, Lc)
-    finite = np.isfinite(t_nodes)
-    reach_end = int(np.searchsorted(t_s, t_nodes[finite].max(), "left")) + 1 if finite.any() else 1
-    g = fld.grid[:, :, :min(reach_end, N)]                    # the checks need no later times
-    slope = np.diff(g, axis=0)
-    tol = _tolerance(g)
-    mono = slope.min(axis=(0, 2)) >= -tol
-    if G >= 3:
-        curv = np.diff(slope, axis=0)
-        lowest = curv.min(axis=(0, 2))
-        convex = lowest >= -tol
-        linear = convex & (curv.max(axis=(0, 2)) <= tol)
-    else:
-        convex = linear = np.zeros(Lc, bool)
-    del slope
     t_early, t_late = t_nodes[cell + 1], t_nodes[cell]        # (S, Lc)
     t_rep = np.full((S, Lc), np.nan)
     err = np.zeros((S, Lc))
@@ -649,12 +656,12 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
 
     1. The dose is computed on a grid of factor values and each draw's crossing found on
        the multilinear interpolation between the corners of its grid cell.
-    2. Every dose rate is nondecreasing in every factor (checked on the grid nodes at
-       every time), so the true crossing lies between the crossings at the cell's upper
+    2. Every dose rate is nondecreasing in every factor where the base series are >= 0
+       (:func:`dose_shape`), so the true crossing lies between the crossings at the cell's upper
        corner (earliest) and lower corner (latest); the interpolated crossing lies there
        too, and its error is at most the larger distance to either end.
-    3. With one varying factor (:func:`_one_factor_times`): a dose convex in it (checked
-       on the nodes at every time) is bracketed between the chord and the extended left
+    3. With one varying factor (:func:`_one_factor_times`): a dose convex in it
+       (:func:`dose_shape`) is bracketed between the chord and the extended left
        chord; the midpoint of their crossings is reported with half their distance as its
        bound (second order in the node spacing). A dose linear in its factor (ISO 13571 CO
        alone) is exact.
@@ -687,11 +694,11 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
             continue
         single = False
         kv = fld.pos.shape[1]
+        varying = [q for q in names if np.ptp(fac[q]) > 0]
+        mono, convex, linear = dose_shape(prep, criterion, varying, rows)
         if kv == 1:
-            t_rep, err, t_stop = _one_factor_times(fld, criterion.limit)
+            t_rep, err, t_stop = _one_factor_times(fld, criterion.limit, mono, convex, linear)
         else:
-            G = round(fld.grid.shape[0] ** (1.0 / kv))
-            mono = _monotone(fld.grid, kv, G)
             t_nodes = node_crossings(prep.t_s, fld.grid, criterion.limit)            # (M, Lc)
             t_early = t_nodes[fld.high]      # upper corner of each sample's cell: most dose, earliest
             t_late = t_nodes[fld.low]        # lower corner: least dose, latest
