@@ -29,7 +29,8 @@ import numpy as np
 from .criteria import CriteriaSet, Criterion
 from .histories import O2_AMBIENT, ScenarioData
 from .study import SMOKE_KEYS
-from .tenability import heat, layer, toxicity, visibility
+from .tenability import heat, irritants, layer, toxicity, visibility
+from .tenability.irritants import IRRITANT_GASES
 from .tenability.crossing import crossing_times_for_levels, cumulative_trapezoid, first_crossing
 
 #: Grid nodes per uncertain quantity for dose interpolation, by number of quantities
@@ -49,6 +50,8 @@ CRITERION_QUANTITIES = {
     "layer_height": ("layer_height",),
     "fed_toxic": ("co", "hcn", "co2", "o2"),
     "fed_heat": ("temperature", "heat_flux"),
+    "fed_hypoxia": ("o2",),
+    "fec_irritant": IRRITANT_GASES,
 }
 
 
@@ -72,7 +75,7 @@ class Prepared:
     flux: np.ndarray | None
     layer: np.ndarray | None
     layer_source: list[str | None]
-    gases: dict[str, np.ndarray]          # co, hcn, co2 fractions; NaN rows where absent
+    gases: dict[str, np.ndarray]          # co, hcn, co2 and irritant fractions; NaN rows where absent
     o2_amb: float
     o2_depletion: np.ndarray | None
     velocity: np.ndarray | None
@@ -90,7 +93,7 @@ def prepare(data: ScenarioData, criteria: CriteriaSet, ambient_c: float | None =
     L = len(data.location_ids)
     t = data.t_s
     present = {k: data.has(k) for k in ("temperature", "co", "co2", "o2", "hcn", "heat_flux", "layer_height",
-                                         "velocity", *SMOKE_KEYS)}
+                                         "velocity", *SMOKE_KEYS, *IRRITANT_GASES)}
     temp = data.series.get("temperature")
     if temp is not None:
         amb = np.where(present["temperature"], temp[:, 0] if ambient_c is None else ambient_c, np.nan)
@@ -135,7 +138,8 @@ def prepare(data: ScenarioData, criteria: CriteriaSet, ambient_c: float | None =
         t_s=t, ids=list(data.location_ids), amb_c=amb, rise=rise, temp_present=present["temperature"],
         extinction=ext if any(kind) else None, smoke_kind=kind, visibility_given=data.series.get("visibility"),
         flux=data.series.get("heat_flux"), layer=lay if any(lsrc) else None, layer_source=lsrc,
-        gases={g: data.series[g] for g in ("co", "hcn", "co2") if g in data.series},
+        gases={g: data.series[g] for g in ("co", "hcn", "co2", *IRRITANT_GASES)
+               if g in data.series and data.has(g).any()},
         o2_amb=o2_amb, o2_depletion=None if o2 is None else o2_amb - o2,
         velocity=data.series.get("velocity"), present=present)
 
@@ -223,14 +227,33 @@ def status(prep: Prepared, criterion: Criterion) -> tuple[np.ndarray, list[list[
     if cid == "layer_height":
         ok = np.array([s is not None for s in prep.layer_source])
         return ok, [[] if ok[i] else ["layer_height (or temperature_profile)"] for i in range(L)]
+    if cid == "fec_irritant":
+        ok = np.array([any(p[g][i] for g in IRRITANT_GASES) for i in range(L)])
+        return ok, [[] if ok[i] else ["one of " + ", ".join(IRRITANT_GASES)] for i in range(L)]
     gases = dose_quantities(criterion)
     missing = [[g for g in gases if not p[g][i]] for i in range(L)]
     if cid == "fed_toxic":
-        dosing = [g for g in gases if g != "co2"]          # CO2 alone only multiplies a dose
+        # ISO 13571: CO2 alone only multiplies a dose; Purser: CO2 alone is narcotic (its own dose)
+        method = criterion.params.get("method", "iso13571")
+        dosing = [g for g in gases if g != "co2" or method == "purser"]
         ok = np.array([any(p[g][i] for g in dosing) for i in range(L)])
+    elif cid == "fed_hypoxia":
+        ok = p["o2"].copy()
     else:
         ok = p["temperature"] | p["heat_flux"]
     return ok, missing
+
+
+def partial(prep: Prepared, criterion: Criterion) -> np.ndarray:
+    """(L,) locations assessed without a series that would make the dose larger, not smaller.
+
+    A toxic dose without CO2 misses the hyperventilation multiplier (ISO 13571, Purser),
+    which can only shorten the time: the time found is then an upper bound, reported as
+    partial.
+    """
+    if criterion.id != "fed_toxic":
+        return np.zeros(prep.n_loc, bool)
+    return ~prep.present["co2"]
 
 
 # ----------------------------------------------------------------------------------------
@@ -720,6 +743,39 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
 
 
 # ----------------------------------------------------------------------------------------
+# irritant FEC: a concentration, exact per distinct draw
+# ----------------------------------------------------------------------------------------
+
+def irritant_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
+                   ok: np.ndarray) -> np.ndarray:
+    """(L, S) first time the irritant FEC reaches the limit (ISO 13571), exactly.
+
+    FEC(t) = sum_i f_i phi_i(t) / F_i with one factor per gas (its table row), so it is
+    rebuilt for each distinct combination of factors (one when nothing is uncertain) and
+    searched for its first crossing, linearly interpolated, vectorised over locations and
+    draws in blocks of at most :data:`EXACT_BLOCK_ELEMENTS` values.
+    """
+    out = np.full((prep.n_loc, S), np.nan)
+    rows = np.flatnonzero(ok)
+    names = [g for g in IRRITANT_GASES if g in prep.gases]
+    if rows.size == 0 or not names:
+        return out
+    fac = np.stack([np.broadcast_to(np.asarray(factors.get(g, 1.0), float), (S,)) for g in names], axis=1)
+    combos, inverse = np.unique(fac, axis=0, return_inverse=True)
+    N = len(prep.t_s)
+    per_block = max(1, EXACT_BLOCK_ELEMENTS // (N * rows.size))
+    times = np.empty((combos.shape[0], rows.size))
+    for start in range(0, combos.shape[0], per_block):
+        block = combos[start:start + per_block]                              # (B, k)
+        gases = {g: prep.gases[g][rows][None, :, :] * block[:, j, None, None] for j, g in enumerate(names)}
+        fec = irritants.fec_irritant(**gases).reshape(-1, N)
+        times[start:start + block.shape[0]] = first_crossing(prep.t_s, fec, criterion.limit).reshape(
+            block.shape[0], rows.size)
+    out[rows] = times[inverse.reshape(-1)].T
+    return out
+
+
+# ----------------------------------------------------------------------------------------
 # all criteria
 # ----------------------------------------------------------------------------------------
 
@@ -728,7 +784,8 @@ class CriterionResult:
     times: np.ndarray                 # (L, S)
     assessed: np.ndarray              # (L,)
     missing: list[list[str]]
-    grid_bound_s: np.ndarray | None = None   # (L,) per-location bracket [s]
+    grid_bound_s: np.ndarray | None = None   # (L,) per-location proven error bound [s]
+    partial: np.ndarray | None = None        # (L,) assessed without a dose-raising series (CO2)
 
 
 def criterion_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
@@ -736,7 +793,9 @@ def criterion_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.
     ok, missing = status(prep, criterion)
     if criterion.id in DOSE_CRITERIA:
         times, bound = dose_times(prep, criterion, factors, S, ok, with_bound)
-        return CriterionResult(times, ok, missing, bound)
+        return CriterionResult(times, ok, missing, bound, ok & partial(prep, criterion))
+    if criterion.id == "fec_irritant":
+        return CriterionResult(irritant_times(prep, criterion, factors, S, ok), ok, missing)
     return CriterionResult(single_series_times(prep, criterion, factors, S, ok), ok, missing)
 
 
