@@ -208,7 +208,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     if factors:
         corr = aset.evaluate(prep, crit, factors, S)
     else:
-        corr = {cid: aset.CriterionResult(np.repeat(r.times, S, axis=1), r.assessed, r.missing, None)
+        corr = {cid: aset.CriterionResult(np.repeat(r.times, S, axis=1), r.assessed, r.missing, None, r.partial)
                 for cid, r in raw.items()}
     loc_aset = aset.location_aset(corr)
     end = data.end_s
