@@ -30,6 +30,8 @@ LIMIT_DIMENSIONS = {
     "layer_height": "[length]",
     "fed_toxic": None,
     "fed_heat": None,
+    "fed_hypoxia": None,      # Purser, SFPE Handbook, hypoxia dose
+    "fec_irritant": None,     # ISO 13571:2012 irritant FEC
 }
 
 
@@ -94,6 +96,8 @@ def _values(name: str) -> dict:
         "fed_toxic_method": c["fed_toxic"]["method"],
         "fed_heat": c["fed_heat"]["limit"],
         "layer_height_m": _quantity(c["layer_height"]["limit"]).to("m").magnitude,
+        "fed_hypoxia": c["fed_hypoxia"]["limit"],
+        "fec_irritant": c["fec_irritant"]["limit"],
     }
 
 
@@ -107,6 +111,8 @@ GENERAL = {
     "fed_toxic_method": "iso13571",
     "fed_heat": 0.3,  # ISO 13571:2012
     "layer_height_m": 1.8,  # common practice
+    "fed_hypoxia": 0.3,  # Purser hypoxia dose, same fraction as fed_toxic
+    "fec_irritant": 0.3,  # ISO 13571:2012 irritant FEC, same fraction as the doses
 }
 
 
@@ -130,7 +136,7 @@ def test_small_familiar_differs_only_in_visibility():
 def test_median_incapacitation_uses_fed_1():
     # ISO 13571:2012: FED 1 = incapacitation of the median person.
     got = _values("median-incapacitation")
-    assert got["fed_toxic"] == 1.0 and got["fed_heat"] == 1.0
+    assert got["fed_toxic"] == got["fed_heat"] == got["fed_hypoxia"] == got["fec_irritant"] == 1.0
     for key, expected in GENERAL.items():
-        if key not in ("fed_toxic", "fed_heat"):
+        if key not in ("fed_toxic", "fed_heat", "fed_hypoxia", "fec_irritant"):
             assert got[key] == expected, key

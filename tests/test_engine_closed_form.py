@@ -28,12 +28,13 @@ def _ramp_study(tmp_path, dist="lognormal", bias=1.2, sigma=0.15, samples=20000,
 
 
 def test_lognormal_band_of_a_linear_ramp_matches_scipy_lognorm(tmp_path):
-    """Corrected time t = t_raw * delta / f with ln f ~ N(-ln delta, sigma): t is lognormal
-    with median t_raw*delta and shape sigma (closed form; quantiles from scipy.stats.lognorm)."""
+    """Corrected time t = t_raw * delta / f with ln f ~ N(-ln delta - sigma^2/2, sigma) (mean of
+    f is 1/delta, McGrattan & Toman 2011): t is lognormal with median t_raw*delta*exp(sigma^2/2)
+    and shape sigma (closed form; quantiles from scipy.stats.lognorm)."""
     res, _ = results_for(_ramp_study(tmp_path))
     c = location(res, "a")["criteria"]["temperature"]
     assert c["raw_s"] == pytest.approx(200.0, abs=1e-9)
-    ref = stats.lognorm(s=0.15, scale=200.0 * 1.2)
+    ref = stats.lognorm(s=0.15, scale=200.0 * 1.2 * np.exp(0.5 * 0.15**2))
     # 20000 samples: the sample 5 % quantile of a lognormal with s = 0.15 has a standard
     # error of about 0.3 %; 1.5 % is a safe bound.
     for key, q in (("p05", 0.05), ("p50", 0.5), ("p95", 0.95)):
@@ -76,7 +77,8 @@ def test_constant_co_reaches_iso_fed_03_at_630_s(tmp_path):
 
 def test_co_linear_scaling_is_exact_through_the_dose_grid(tmp_path):
     """ISO CO dose is linear in the CO factor, so corrected time = 630 s * delta / f exactly and the
-    percentiles follow scipy.stats.lognorm (closed form)."""
+    percentiles follow scipy.stats.lognorm (closed form; median of 1/f is delta exp(sigma^2/2),
+    as f has mean 1/delta)."""
     t = np.arange(0.0, 3001.0, 10.0)
     unc = {"source": "synthetic", "distribution": "lognormal",
            "quantities": {"co": {"bias": 1.25, "sigma_model": 0.2}}}
@@ -84,7 +86,7 @@ def test_co_linear_scaling_is_exact_through_the_dose_grid(tmp_path):
                        criteria={"base": "general-2m", "only": ["fed_toxic"]}, uncertainty=unc, samples=20000)
     res, _ = results_for(path)
     c = location(res, "a")["criteria"]["fed_toxic"]
-    ref = stats.lognorm(s=0.2, scale=630.0 * 1.25)
+    ref = stats.lognorm(s=0.2, scale=630.0 * 1.25 * np.exp(0.5 * 0.2**2))
     for key, q in (("p05", 0.05), ("p50", 0.5), ("p95", 0.95)):
         assert c["corrected_s"][key] == pytest.approx(ref.ppf(q), rel=0.02)
 

@@ -29,7 +29,8 @@ import numpy as np
 from .criteria import CriteriaSet, Criterion
 from .histories import O2_AMBIENT, ScenarioData
 from .study import SMOKE_KEYS
-from .tenability import heat, layer, toxicity, visibility
+from .tenability import heat, irritants, layer, toxicity, visibility
+from .tenability.irritants import IRRITANT_GASES
 from .tenability.crossing import crossing_times_for_levels, cumulative_trapezoid, first_crossing
 
 #: Grid nodes per uncertain quantity for dose interpolation, by number of quantities
@@ -49,6 +50,8 @@ CRITERION_QUANTITIES = {
     "layer_height": ("layer_height",),
     "fed_toxic": ("co", "hcn", "co2", "o2"),
     "fed_heat": ("temperature", "heat_flux"),
+    "fed_hypoxia": ("o2",),
+    "fec_irritant": IRRITANT_GASES,
 }
 
 
@@ -72,7 +75,7 @@ class Prepared:
     flux: np.ndarray | None
     layer: np.ndarray | None
     layer_source: list[str | None]
-    gases: dict[str, np.ndarray]          # co, hcn, co2 fractions; NaN rows where absent
+    gases: dict[str, np.ndarray]          # co, hcn, co2 and irritant fractions; NaN rows where absent
     o2_amb: float
     o2_depletion: np.ndarray | None
     velocity: np.ndarray | None
@@ -90,7 +93,7 @@ def prepare(data: ScenarioData, criteria: CriteriaSet, ambient_c: float | None =
     L = len(data.location_ids)
     t = data.t_s
     present = {k: data.has(k) for k in ("temperature", "co", "co2", "o2", "hcn", "heat_flux", "layer_height",
-                                         "velocity", *SMOKE_KEYS)}
+                                         "velocity", *SMOKE_KEYS, *IRRITANT_GASES)}
     temp = data.series.get("temperature")
     if temp is not None:
         amb = np.where(present["temperature"], temp[:, 0] if ambient_c is None else ambient_c, np.nan)
@@ -135,7 +138,8 @@ def prepare(data: ScenarioData, criteria: CriteriaSet, ambient_c: float | None =
         t_s=t, ids=list(data.location_ids), amb_c=amb, rise=rise, temp_present=present["temperature"],
         extinction=ext if any(kind) else None, smoke_kind=kind, visibility_given=data.series.get("visibility"),
         flux=data.series.get("heat_flux"), layer=lay if any(lsrc) else None, layer_source=lsrc,
-        gases={g: data.series[g] for g in ("co", "hcn", "co2") if g in data.series},
+        gases={g: data.series[g] for g in ("co", "hcn", "co2", *IRRITANT_GASES)
+               if g in data.series and data.has(g).any()},
         o2_amb=o2_amb, o2_depletion=None if o2 is None else o2_amb - o2,
         velocity=data.series.get("velocity"), present=present)
 
@@ -223,14 +227,33 @@ def status(prep: Prepared, criterion: Criterion) -> tuple[np.ndarray, list[list[
     if cid == "layer_height":
         ok = np.array([s is not None for s in prep.layer_source])
         return ok, [[] if ok[i] else ["layer_height (or temperature_profile)"] for i in range(L)]
+    if cid == "fec_irritant":
+        ok = np.array([any(p[g][i] for g in IRRITANT_GASES) for i in range(L)])
+        return ok, [[] if ok[i] else ["one of " + ", ".join(IRRITANT_GASES)] for i in range(L)]
     gases = dose_quantities(criterion)
     missing = [[g for g in gases if not p[g][i]] for i in range(L)]
     if cid == "fed_toxic":
-        dosing = [g for g in gases if g != "co2"]          # CO2 alone only multiplies a dose
+        # ISO 13571: CO2 alone only multiplies a dose; Purser: CO2 alone is narcotic (its own dose)
+        method = criterion.params.get("method", "iso13571")
+        dosing = [g for g in gases if g != "co2" or method == "purser"]
         ok = np.array([any(p[g][i] for g in dosing) for i in range(L)])
+    elif cid == "fed_hypoxia":
+        ok = p["o2"].copy()
     else:
         ok = p["temperature"] | p["heat_flux"]
     return ok, missing
+
+
+def partial(prep: Prepared, criterion: Criterion) -> np.ndarray:
+    """(L,) locations assessed without a series that would make the dose larger, not smaller.
+
+    A toxic dose without CO2 misses the hyperventilation multiplier (ISO 13571, Purser),
+    which can only shorten the time: the time found is then an upper bound, reported as
+    partial.
+    """
+    if criterion.id != "fed_toxic":
+        return np.zeros(prep.n_loc, bool)
+    return ~prep.present["co2"]
 
 
 # ----------------------------------------------------------------------------------------
@@ -464,22 +487,42 @@ def node_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float) -> np.ndarra
     return np.where(reached, t, np.inf)
 
 
-def _monotone(grid: np.ndarray, k: int, G: int) -> np.ndarray:
-    """Per location: is the dose grid nondecreasing along every factor axis, at every time?
+def dose_shape(prep: Prepared, criterion: Criterion, varying: list[str], rows: np.ndarray):
+    """Per location of ``rows``: is the dose (monotone, convex, linear) in its varying factors?
 
-    To a rounding tolerance of 1e-9 of the location's largest dose (:func:`_tolerance`).
+    From the form of the rates, checked on the series (cheap, no pass over the grid):
+
+    * monotone (nondecreasing in every factor): every rate is nondecreasing in the
+      corrected concentration, temperature rise, O2 depletion and flux it uses, so the
+      dose is monotone where each varying quantity's base series is >= 0 (a temperature
+      below ambient, O2 above ambient break it; such a location is integrated exactly);
+    * convex (one varying factor): every rate is convex in its quantity -- ``T^3.4``
+      (clipped at 0 degC), ``C^1.036``, the exponentials of HCN, CO2 and hypoxia, linear
+      terms, products with a fixed positive multiplier, the larger of two convex doses --
+      except the radiant term, which jumps at its threshold (fed_heat in ``heat_flux``);
+    * linear: the ISO 13571 CO term alone (:func:`_linear_in`).
+
+    ``tests/test_engine_bruteforce.py`` checks these claims against second differences on
+    fine grids.
     """
-    Lc, N = grid.shape[1:]
-    g = grid.reshape((G,) * k + (Lc, N))
-    mono = np.ones(Lc, bool)
-    for ax in range(k):
-        mono &= np.diff(g, axis=ax).min(axis=tuple(range(k)) + (k + 1,)) >= -_tolerance(grid)
-    return mono
+    mono = np.ones(rows.size, bool)
+    for q in varying:
+        base = _base_series(prep, q)[rows]
+        mono &= ~np.any(base < 0.0, axis=1)          # NaN (absent) compares False
+    convex = np.full(rows.size, len(varying) == 1 and not (criterion.id == "fed_heat" and varying == ["heat_flux"]))
+    linear = np.full(rows.size, _linear_in(criterion, varying))
+    return mono, convex & ~linear, linear
 
 
-def _tolerance(grid: np.ndarray) -> np.ndarray:
-    """(Lc,) rounding tolerance of a dose grid's shape checks: 1e-9 of each location's largest dose."""
-    return np.abs(grid.max(axis=(0, 2))) * 1e-9 + 1e-300     # doses are >= 0
+def _base_series(prep: Prepared, q: str) -> np.ndarray:
+    """The (L, N) series a factor of ``q`` multiplies (its validated form)."""
+    if q == "temperature":
+        return prep.rise
+    if q == "heat_flux":
+        return prep.flux
+    if q == "o2":
+        return prep.o2_depletion
+    return prep.gases[q]
 
 
 def _index_bracket(t_s: np.ndarray, t_from: np.ndarray, t_to: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -508,7 +551,7 @@ def _interpolated_times(fld: DoseField, limit: float, t_early, t_late, t_first) 
 
 def _pair_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float, loc: np.ndarray, nodes: np.ndarray,
                     weights: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
-    """First crossing of ``sum_c weights[p, c] * grid[nodes[p, c], loc[p]]`` for each pair p.
+    """First crossing of ``sum_c weights[p, c] * grid[nodes[p, c], loc[p]]`` (c = 0, 1) per pair p.
 
     The curves must be nondecreasing in time, below the limit at sample ``lo[p]`` (or
     ``lo[p] == 0``); a bisection inside [lo, hi] finds the first sample that reaches it and
@@ -517,10 +560,10 @@ def _pair_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float, loc: np.nda
     """
     N = grid.shape[2]
     flat = grid.reshape(-1)
-    base = (nodes * grid.shape[1] + loc[:, None]) * N                     # (P, C)
+    (b0, b1), (w0, w1) = ((nodes[:, j] * grid.shape[1] + loc) * N for j in (0, 1)), weights.T
 
     def value(p, i):
-        return np.einsum("pc,pc->p", weights[p], flat[base[p] + i[:, None]])
+        return w0[p] * flat[b0[p] + i] + w1[p] * flat[b1[p] + i]
 
     reached = value(np.arange(lo.size), hi) >= limit
     lo, hi = lo.copy(), hi.copy()
@@ -540,7 +583,7 @@ def _pair_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float, loc: np.nda
     return np.where(reached, t, np.nan)
 
 
-def _one_factor_times(fld: DoseField, limit: float):
+def _one_factor_times(fld: DoseField, limit: float, mono, convex, linear):
     """Reported crossings and their proven error bounds [s] for a dose with one varying factor.
 
     Upper estimate: the chord between the cell's nodes (the interpolated dose). Where the
@@ -551,8 +594,9 @@ def _one_factor_times(fld: DoseField, limit: float):
     the bound is the distance to the farther of the crossings at the cell's two nodes
     (monotone doses). Linear doses are exact. Every curve is searched only between the
     crossings of its cell's two nodes, where the monotone doses must cross. +inf bounds
-    mark draws to integrate exactly (a location whose grid is not monotone; a draw whose
-    lower bound does not reach the limit by the end).
+    mark draws to integrate exactly (a location whose dose is not monotone; a draw whose
+    lower bound does not reach the limit by the end). ``mono``, ``convex``, ``linear``
+    (Lc,) come from :func:`dose_shape`.
 
     Returns (reported times, bounds, latest possible crossing), each (S, Lc) [s].
     """
@@ -563,20 +607,6 @@ def _one_factor_times(fld: DoseField, limit: float):
     cell = np.clip(np.floor(pos).astype(int), 0, G - 2)
     w = np.clip(pos - cell, 0.0, 1.0)
     t_nodes = node_crossings(t_s, fld.grid, limit)            # (G, Lc)
-    finite = np.isfinite(t_nodes)
-    reach_end = int(np.searchsorted(t_s, t_nodes[finite].max(), "left")) + 1 if finite.any() else 1
-    g = fld.grid[:, :, :min(reach_end, N)]                    # the checks need no later times
-    slope = np.diff(g, axis=0)
-    tol = _tolerance(g)
-    mono = slope.min(axis=(0, 2)) >= -tol
-    if G >= 3:
-        curv = np.diff(slope, axis=0)
-        lowest = curv.min(axis=(0, 2))
-        convex = lowest >= -tol
-        linear = convex & (curv.max(axis=(0, 2)) <= tol)
-    else:
-        convex = linear = np.zeros(Lc, bool)
-    del slope
     t_early, t_late = t_nodes[cell + 1], t_nodes[cell]        # (S, Lc)
     t_rep = np.full((S, Lc), np.nan)
     err = np.zeros((S, Lc))
@@ -649,12 +679,12 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
 
     1. The dose is computed on a grid of factor values and each draw's crossing found on
        the multilinear interpolation between the corners of its grid cell.
-    2. Every dose rate is nondecreasing in every factor (checked on the grid nodes at
-       every time), so the true crossing lies between the crossings at the cell's upper
+    2. Every dose rate is nondecreasing in every factor where the base series are >= 0
+       (:func:`dose_shape`), so the true crossing lies between the crossings at the cell's upper
        corner (earliest) and lower corner (latest); the interpolated crossing lies there
        too, and its error is at most the larger distance to either end.
-    3. With one varying factor (:func:`_one_factor_times`): a dose convex in it (checked
-       on the nodes at every time) is bracketed between the chord and the extended left
+    3. With one varying factor (:func:`_one_factor_times`): a dose convex in it
+       (:func:`dose_shape`) is bracketed between the chord and the extended left
        chord; the midpoint of their crossings is reported with half their distance as its
        bound (second order in the node spacing). A dose linear in its factor (ISO 13571 CO
        alone) is exact.
@@ -687,11 +717,11 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
             continue
         single = False
         kv = fld.pos.shape[1]
+        varying = [q for q in names if np.ptp(fac[q]) > 0]
+        mono, convex, linear = dose_shape(prep, criterion, varying, rows)
         if kv == 1:
-            t_rep, err, t_stop = _one_factor_times(fld, criterion.limit)
+            t_rep, err, t_stop = _one_factor_times(fld, criterion.limit, mono, convex, linear)
         else:
-            G = round(fld.grid.shape[0] ** (1.0 / kv))
-            mono = _monotone(fld.grid, kv, G)
             t_nodes = node_crossings(prep.t_s, fld.grid, criterion.limit)            # (M, Lc)
             t_early = t_nodes[fld.high]      # upper corner of each sample's cell: most dose, earliest
             t_late = t_nodes[fld.low]        # lower corner: least dose, latest
@@ -713,6 +743,39 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
 
 
 # ----------------------------------------------------------------------------------------
+# irritant FEC: a concentration, exact per distinct draw
+# ----------------------------------------------------------------------------------------
+
+def irritant_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
+                   ok: np.ndarray) -> np.ndarray:
+    """(L, S) first time the irritant FEC reaches the limit (ISO 13571), exactly.
+
+    FEC(t) = sum_i f_i phi_i(t) / F_i with one factor per gas (its table row), so it is
+    rebuilt for each distinct combination of factors (one when nothing is uncertain) and
+    searched for its first crossing, linearly interpolated, vectorised over locations and
+    draws in blocks of at most :data:`EXACT_BLOCK_ELEMENTS` values.
+    """
+    out = np.full((prep.n_loc, S), np.nan)
+    rows = np.flatnonzero(ok)
+    names = [g for g in IRRITANT_GASES if g in prep.gases]
+    if rows.size == 0 or not names:
+        return out
+    fac = np.stack([np.broadcast_to(np.asarray(factors.get(g, 1.0), float), (S,)) for g in names], axis=1)
+    combos, inverse = np.unique(fac, axis=0, return_inverse=True)
+    N = len(prep.t_s)
+    per_block = max(1, EXACT_BLOCK_ELEMENTS // (N * rows.size))
+    times = np.empty((combos.shape[0], rows.size))
+    for start in range(0, combos.shape[0], per_block):
+        block = combos[start:start + per_block]                              # (B, k)
+        gases = {g: prep.gases[g][rows][None, :, :] * block[:, j, None, None] for j, g in enumerate(names)}
+        fec = irritants.fec_irritant(**gases).reshape(-1, N)
+        times[start:start + block.shape[0]] = first_crossing(prep.t_s, fec, criterion.limit).reshape(
+            block.shape[0], rows.size)
+    out[rows] = times[inverse.reshape(-1)].T
+    return out
+
+
+# ----------------------------------------------------------------------------------------
 # all criteria
 # ----------------------------------------------------------------------------------------
 
@@ -721,7 +784,8 @@ class CriterionResult:
     times: np.ndarray                 # (L, S)
     assessed: np.ndarray              # (L,)
     missing: list[list[str]]
-    grid_bound_s: np.ndarray | None = None   # (L,) per-location bracket [s]
+    grid_bound_s: np.ndarray | None = None   # (L,) per-location proven error bound [s]
+    partial: np.ndarray | None = None        # (L,) assessed without a dose-raising series (CO2)
 
 
 def criterion_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
@@ -729,7 +793,9 @@ def criterion_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.
     ok, missing = status(prep, criterion)
     if criterion.id in DOSE_CRITERIA:
         times, bound = dose_times(prep, criterion, factors, S, ok, with_bound)
-        return CriterionResult(times, ok, missing, bound)
+        return CriterionResult(times, ok, missing, bound, ok & partial(prep, criterion))
+    if criterion.id == "fec_irritant":
+        return CriterionResult(irritant_times(prep, criterion, factors, S, ok), ok, missing)
     return CriterionResult(single_series_times(prep, criterion, factors, S, ok), ok, missing)
 
 

@@ -7,11 +7,13 @@ the parameters the method needs. Loading checks every key and collects every pro
 from __future__ import annotations
 
 import difflib
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from .errors import InputError, Problem
 from .resources import resource_dir
+from .tenability.visibility import SIGN_CONSTANTS
 from .units import UnitProblem, parse_quantity
 from .yamlfile import Located, load_located
 
@@ -23,18 +25,25 @@ CRITERIA: dict[str, tuple[str | None, str, str, str]] = {
     "fed_toxic": (None, "-", "above", "fractional effective dose of asphyxiant gases reaches the limit"),
     "fed_heat": (None, "-", "above", "fractional effective dose of heat reaches the limit"),
     "layer_height": ("length", "m", "below", "smoke layer falls to the limit"),
+    "fed_hypoxia": (None, "-", "above", "fractional effective dose of low oxygen (hypoxia) reaches the limit"),
+    "fec_irritant": (None, "-", "above", "fractional effective concentration of irritant gases reaches the limit"),
 }
 
 #: Optional parameters each criterion accepts, with the quantity used to parse them
 #: (None: a plain value). Defaults and their sources live with the formulas.
 PARAMETERS: dict[str, dict[str, str | None]] = {
     "temperature": {},
-    "visibility": {"sign_constant": None, "mass_extinction": "mass_extinction"},
+    "visibility": {"signs": None, "sign_constant": None, "mass_extinction": "mass_extinction"},
     "heat_flux": {},
     "fed_toxic": {"method": None},
     "fed_heat": {"radiant_threshold": "heat_flux"},
     "layer_height": {},
+    "fed_hypoxia": {},
+    "fec_irritant": {},
 }
+
+#: Limits that must be above zero (a visibility of 0 m has no extinction limit C/S).
+POSITIVE_LIMITS = ("visibility", "heat_flux", "layer_height")
 
 TOXIC_METHODS = ("iso13571", "purser")
 
@@ -63,6 +72,19 @@ class CriteriaSet:
     items: dict[str, Criterion]
     path: Path | None = None
     override: dict | None = None     # set by ``run --criteria``: what was given, what it replaced
+    #: True when nobody stated the kind of sign for this study: the visibility criterion
+    #: uses the bundled set's light-emitting signs (C = 8), which the report should flag.
+    signs_default: bool = True
+
+    @property
+    def visibility_signs(self) -> dict | None:
+        """The kind of sign the visibility criterion assumes, its constant C, and whether
+        that is the bundled default (None without a visibility criterion)."""
+        c = self.items.get("visibility")
+        if c is None:
+            return None
+        return {"signs": c.params.get("signs", "light-emitting"), "sign_constant": c.params["sign_constant"],
+                "default": self.signs_default}
 
     def as_results(self) -> dict:
         """The set as applied: limits as numbers in their display unit, with the text as written."""
@@ -72,11 +94,12 @@ class CriteriaSet:
             entry.update({k: _plain(v) for k, v in c.params.items()})
             applied[cid] = entry
         out = {"name": self.name, "description": self.description, "sources": list(self.sources),
-               "applied": applied, **{cid: {"limit": round(c.limit, 6), "unit": c.unit}
-                                      for cid, c in self.items.items()}}
+               "applied": applied}
+        if self.visibility_signs is not None:
+            out["visibility_signs"] = self.visibility_signs
         if self.override is not None:
             out["override"] = dict(self.override)
-        return out
+        return {**out, **{cid: {"limit": round(c.limit, 6), "unit": c.unit} for cid, c in self.items.items()}}
 
 
 def _plain(v):
@@ -109,24 +132,33 @@ def parse_criterion(cid: str, spec, where, problems: list[Problem], inherited: C
         if key not in allowed:
             problems.append(Problem(where((key,)), f"unknown key '{key}' for criterion '{cid}'; expected one of "
                                     f"{', '.join(sorted(allowed))}{_did_you_mean(key, allowed)}"))
-    limit_raw = spec.get("limit", inherited.limit_text if inherited else None)
-    if limit_raw is None:
-        problems.append(Problem(where(()), f"criterion '{cid}' has no 'limit'; expected e.g. limit: "
-                                f"{'0.3' if quantity is None else '60 degC' if cid == 'temperature' else '10 m'}"))
-        return None
-    try:
-        if quantity is None:
-            if isinstance(limit_raw, bool) or not isinstance(limit_raw, (int, float)):
-                raise UnitProblem(f"found {limit_raw!r}; expected a plain number (a dose fraction, e.g. 0.3)")
-            limit = float(limit_raw)
-        else:
-            limit = parse_quantity(limit_raw, quantity)
-    except UnitProblem as exc:
-        problems.append(Problem(where(("limit",)), str(exc)))
-        return None
-    if quantity is None and not limit > 0:
-        problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a dose limit above 0"))
-        return None
+    if "limit" not in spec and inherited is not None:
+        limit, limit_raw = inherited.limit, inherited.limit_text        # an override keeps the base limit
+    else:
+        limit_raw = spec.get("limit")
+        if limit_raw is None:
+            problems.append(Problem(where(()), f"criterion '{cid}' has no 'limit'; expected e.g. limit: "
+                                    f"{'0.3' if quantity is None else '60 degC' if cid == 'temperature' else '10 m'}"))
+            return None
+        try:
+            if quantity is None:
+                if isinstance(limit_raw, bool) or not isinstance(limit_raw, (int, float)):
+                    raise UnitProblem(f"found {limit_raw!r}; expected a plain number (a dose fraction, e.g. 0.3)")
+                limit = float(limit_raw)
+            else:
+                limit = parse_quantity(limit_raw, quantity)
+        except UnitProblem as exc:
+            problems.append(Problem(where(("limit",)), str(exc)))
+            return None
+        if not math.isfinite(limit):
+            problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a finite limit"))
+            return None
+        if quantity is None and not limit > 0:
+            problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a dose limit above 0"))
+            return None
+        if cid in POSITIVE_LIMITS and not limit > 0:
+            problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a {cid} limit above 0"))
+            return None
     params = dict(inherited.params) if inherited else {}
     for key, pq in PARAMETERS[cid].items():
         if key not in spec:
@@ -139,22 +171,55 @@ def parse_criterion(cid: str, spec, where, problems: list[Problem], inherited: C
                 continue
             params[key] = value
         elif key == "sign_constant":
-            if isinstance(value, bool) or not isinstance(value, (int, float)) or value <= 0:
-                problems.append(Problem(where((key,)), f"found {value!r}; expected a positive number "
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) \
+                    or value <= 0:
+                problems.append(Problem(where((key,)), f"found {value!r}; expected a finite positive number "
                                         "(8 for light-emitting, 3 for light-reflecting signs)"))
                 continue
             params[key] = float(value)
+        elif key == "signs":
+            if value not in SIGN_CONSTANTS:
+                problems.append(Problem(where((key,)), f"found {value!r}; expected one of "
+                                        f"{', '.join(SIGN_CONSTANTS)}{_did_you_mean(value, SIGN_CONSTANTS)}"))
+                continue
+            params[key] = value
         else:
             try:
                 params[key] = parse_quantity(value, pq)
             except UnitProblem as exc:
                 problems.append(Problem(where((key,)), str(exc)))
+                continue
+            if not math.isfinite(params[key]) or params[key] < 0 or (key == "mass_extinction" and params[key] == 0):
+                problems.append(Problem(where((key,)), f"found {value!r}; expected a finite value above 0"))
+                del params[key]
+    if cid == "visibility":
+        _settle_signs(spec, params, where, problems)
     if cid == "fed_toxic":
         params.setdefault("method", "iso13571")
-    if cid == "visibility":
-        params.setdefault("sign_constant", 8.0)
     source = spec.get("source", inherited.source if inherited else "")
     return Criterion(cid, limit, str(limit_raw), unit, params, str(source))
+
+
+def _settle_signs(spec: dict, params: dict, where, problems: list[Problem]) -> None:
+    """Make ``signs`` and ``sign_constant`` agree: C = 8 light-emitting, 3 light-reflecting (Jin).
+
+    A spec that states ``signs`` fixes the constant; one that states a number only is
+    "light-emitting"/"light-reflecting" when the number is Jin's, else "custom"; both
+    given and disagreeing is an input error. Nothing stated: inherited, else
+    light-emitting (C = 8).
+    """
+    if "signs" in spec and "sign_constant" in spec and "signs" in params and "sign_constant" in params:
+        if SIGN_CONSTANTS[params["signs"]] != params["sign_constant"]:
+            problems.append(Problem(where(("sign_constant",)), f"found sign_constant {params['sign_constant']:g} "
+                                    f"with signs: {params['signs']} (C = {SIGN_CONSTANTS[params['signs']]:g}, Jin "
+                                    "1978); expected one of the two, or values that agree"))
+    if "signs" in spec and "signs" in params:
+        params["sign_constant"] = SIGN_CONSTANTS[params["signs"]]
+    elif "sign_constant" in spec and "sign_constant" in params:
+        named = [k for k, v in SIGN_CONSTANTS.items() if v == params["sign_constant"]]
+        params["signs"] = named[0] if named else "custom"
+    params.setdefault("sign_constant", SIGN_CONSTANTS["light-emitting"])
+    params.setdefault("signs", "light-emitting")
 
 
 def load_criteria_file(path: Path) -> CriteriaSet:
@@ -195,8 +260,10 @@ def criteria_from_document(doc: Located, problems: list[Problem]) -> CriteriaSet
         c = parse_criterion(cid, spec, lambda kp, cid=cid: doc.where(("criteria", cid) + tuple(kp)), problems)
         if c:
             items[cid] = c
+    vis = crit.get("visibility")
+    stated = isinstance(vis, dict) and bool({"signs", "sign_constant"} & set(vis))
     return CriteriaSet(str(data.get("name", doc.path.stem)), str(data.get("description", "")),
-                       [str(s) for s in sources], items, doc.path)
+                       [str(s) for s in sources], items, doc.path, signs_default=not stated)
 
 
 def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> CriteriaSet | None:
@@ -227,14 +294,20 @@ def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> C
             c = parse_criterion(cid, value[cid], lambda kp, cid=cid: where((cid,) + tuple(kp)), problems,
                                 inherited=items.get(cid))
             if c:
-                if c.source == "" or (base and c.limit_text != base.items.get(cid, c).limit_text):
+                spec = value[cid] if isinstance(value[cid], dict) else {}
+                changed = [k for k in spec if k != "source"]
+                if "source" not in spec and (c.source == "" or changed):
+                    inherited = items.get(cid)
+                    note = "set in the study file" + (f" (overrides {base.name}: {', '.join(changed)})"
+                                                      if base and changed else "")
                     c = Criterion(c.id, c.limit, c.limit_text, c.unit, c.params,
-                                  "set in the study file" + (f" (overrides {base.name})" if base else ""))
+                                  f"{inherited.source}; {note}" if inherited and inherited.source else note)
                 items[cid] = c
     if "only" in value:
         only = value["only"]
-        if not isinstance(only, list) or not all(isinstance(x, str) for x in only):
-            problems.append(Problem(where(("only",)), f"found {only!r}; expected a list of criterion ids"))
+        if not isinstance(only, list) or not all(isinstance(x, str) for x in only) or not only:
+            problems.append(Problem(where(("only",)), f"found {only!r}; expected a non-empty list of criterion "
+                                    f"ids, e.g. [{', '.join(list(items)[:2]) or 'temperature, visibility'}]"))
         else:
             if not items and not base:
                 problems.append(Problem(where(("only",)), "'only' needs criteria to choose from; expected a "
@@ -246,9 +319,12 @@ def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> C
                                             f"one of {', '.join(items)}{_did_you_mean(cid, items)}"))
             items = {k: v for k, v in items.items() if k in only}
     name = base.name + " (modified in the study)" if base else "set in the study file"
+    vis = value.get("visibility")
+    stated = isinstance(vis, dict) and bool({"signs", "sign_constant"} & set(vis))
     return CriteriaSet(name, base.description if base else "Criteria given in the study file.",
                        list(base.sources) if base else ["as stated in the study file"], items,
-                       base.path if base else None)
+                       base.path if base else None,
+                       signs_default=not stated and (base.signs_default if base else True))
 
 
 def override_criteria(text: str, study_value, problems: list[Problem],
@@ -287,7 +363,10 @@ def _named_or_file(text: str, where: str, base_dir: Path, names: list[str], prob
                                     f"existing file{_did_you_mean(text, names)}"))
             return None
     try:
-        return load_criteria_file(path)
+        cset = load_criteria_file(path)
     except InputError as exc:
         problems.extend(exc.problems)
         return None
+    if text in names:
+        cset.signs_default = True         # a bundled set's signs are an assumption, not the user's choice
+    return cset

@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import InputError, Problem
+from .tenability.irritants import IRRITANT_GASES
 from .study import SERIES_KEYS, ScenarioSpec, SeriesRef, did_you_mean
 from .units import check_unit, is_unit, same_unit, to_internal
 
@@ -467,7 +468,7 @@ def _plausible(key, values, ref, info, fname, line0, problems):
             problems.append(Problem(at(0), f"first value {values[0]:g} {unit} looks like kelvin; check the unit "
                                     "(expected degC near 20 at the start)", warning=True))
         return values
-    if key in ("co", "co2", "hcn", "o2"):
+    if key in ("co", "co2", "hcn", "o2", *IRRITANT_GASES):
         bad = (values < -ROUND_OFF.get(key, 1e-6)) if key != "o2" else (values < 0)
         if bad.any():
             i = first(bad)

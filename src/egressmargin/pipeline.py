@@ -22,6 +22,7 @@ from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
 from .stats import share, summarise
 from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study, data_problems
+from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
 from .verdict import CI_METHOD, decide, draw_outcomes, needs_more_samples, worst_outcome
 
@@ -120,13 +121,20 @@ def _on_ignition_clock(spec, data: ScenarioData, problems: list[Problem]) -> Sce
 
 
 def _factor_keys(prep: aset.Prepared) -> list[str]:
-    keys = ["temperature", "heat_flux", "co", "hcn", "co2", "o2", "layer_height"]
+    keys = ["temperature", "heat_flux", "co", "hcn", "co2", "o2", "layer_height", *IRRITANT_GASES]
     keys += sorted({aset.smoke_factor_key(k) for k in prep.smoke_kind if k})
     return keys
 
 
 def _stats_key(table: UncertaintyTable | None, factor_key: str) -> str | None:
-    """Which row of the table corrects a factor key (smoke kinds fall back to extinction)."""
+    """Which row of the table corrects a factor key (smoke kinds fall back to extinction).
+
+    How each row is applied (the factor f has mean 1/delta, :func:`uncertainty.factor_ppf`):
+    ``temperature`` multiplies the rise above ambient, ``o2`` the depletion below ambient;
+    ``extinction``, ``optical_density`` and ``soot`` multiply the extinction coefficient K
+    (so a visibility series becomes V/f); ``visibility`` multiplies the visibility (so K
+    becomes K/f); every other row multiplies its series as given.
+    """
     if table is None:
         return None
     if factor_key.startswith("smoke:"):
@@ -151,8 +159,17 @@ def draw_scenario_factors(table, prep, S: int, seed: int, scenario_index: int) -
     for fk in _factor_keys(prep):
         sk = _stats_key(table, fk)
         if sk is not None:
-            out[fk] = factor_ppf(table, sk, uniforms[sk])
+            out[fk] = _engine_factor(fk, sk, factor_ppf(table, sk, uniforms[sk]))
     return out
+
+
+def _engine_factor(factor_key: str, row: str, f):
+    """The engine's factor from a table row's factor: smoke keys are multipliers of K.
+
+    A ``visibility`` row is a visibility bias (corrected V* = V f), so on K it acts as
+    K / f; every other smoke row acts on K directly.
+    """
+    return 1.0 / f if factor_key.startswith("smoke:") and row == "visibility" else f
 
 
 def factor_ppfs(table, prep) -> dict:
@@ -167,7 +184,8 @@ def factor_ppfs(table, prep) -> dict:
         if sk is None:
             continue
         if sk not in out:
-            out[sk] = ((lambda u, sk=sk: factor_ppf(table, sk, np.atleast_1d(u))[0]), [])
+            out[sk] = ((lambda u, sk=sk, fk=fk: _engine_factor(fk, sk, factor_ppf(table, sk, np.atleast_1d(u))[0])),
+                       [])
         out[sk][1].append(fk)
     return out
 
@@ -177,7 +195,10 @@ FACTOR_LABELS = {"temperature": "model error: temperature", "heat_flux": "model 
                  "o2": "model error: O2 depletion", "layer_height": "model error: layer height",
                  "extinction": "model error: smoke (extinction)",
                  "optical_density": "model error: smoke (optical density)",
-                 "soot": "model error: smoke (soot)", "visibility": "model error: smoke (visibility)"}
+                 "soot": "model error: smoke (soot)", "visibility": "model error: smoke (visibility)",
+                 "hcl": "model error: HCl", "hbr": "model error: HBr", "hf": "model error: HF",
+                 "so2": "model error: SO2", "no2": "model error: NO2", "acrolein": "model error: acrolein",
+                 "formaldehyde": "model error: formaldehyde"}
 
 
 def si_keys(sweep_index) -> list[str]:
@@ -207,7 +228,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     if factors:
         corr = aset.evaluate(prep, crit, factors, S)
     else:
-        corr = {cid: aset.CriterionResult(np.repeat(r.times, S, axis=1), r.assessed, r.missing, None)
+        corr = {cid: aset.CriterionResult(np.repeat(r.times, S, axis=1), r.assessed, r.missing, None, r.partial)
                 for cid, r in raw.items()}
     loc_aset = aset.location_aset(corr)
     end = data.end_s
@@ -236,6 +257,8 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                 if r.missing[li]:
                     entry["missing_series"] = r.missing[li]
                     entry["note"] = "not supplied, contributes nothing: " + ", ".join(r.missing[li])
+                if r.partial is not None and r.partial[li]:
+                    entry["partial"] = True     # a dose-raising series (CO2) is missing: time is an upper bound
                 if r.grid_bound_s is not None and np.isfinite(r.grid_bound_s[li]):
                     entry["grid_bound_s"] = round(float(r.grid_bound_s[li]), 3)
                 flag = _outside_range(table, prep, data, cid, li, rr.times[li, 0], times, factors)
@@ -471,15 +494,20 @@ def _plot_locations(prep, crit, factors, corr, skip=frozenset()) -> dict:
     S = len(next(iter(sub.values()))) if sub else 0
     labels = {"temperature": ("Gas temperature", "degC"), "visibility": ("Visibility", "m"),
               "heat_flux": ("Radiant heat flux", "kW/m^2"), "layer_height": ("Smoke layer height", "m"),
-              "fed_toxic": ("FED, asphyxiant gases", "-"), "fed_heat": ("FED, heat", "-")}
+              "fed_toxic": ("FED, asphyxiant gases", "-"), "fed_heat": ("FED, heat", "-"),
+              "fed_hypoxia": ("FED, low oxygen", "-"), "fec_irritant": ("FEC, irritant gases", "-")}
     for cid, c in crit.items.items():
         if cid not in labels:          # a criterion this figure does not know how to draw
             continue
         rows = np.array([li for li in np.flatnonzero(corr[cid].assessed) if prep.ids[li] not in skip], int)
         if rows.size == 0:
             continue
-        if cid in ("fed_toxic", "fed_heat"):
+        if cid in aset.DOSE_CRITERIA:
             curves = _dose_curves(prep, c, rows, sub, S)
+        elif cid == "fec_irritant":       # raw FEC only (a sum over gases; no band drawn)
+            from .tenability.irritants import fec_irritant
+            curves = {li: (fec_irritant(**{g: v[li] for g, v in prep.gases.items() if g in IRRITANT_GASES}), None)
+                      for li in rows}
         else:
             curves = {li: _series_curves(prep, c, li, sub, S) for li in rows}
         label, unit = labels[cid]

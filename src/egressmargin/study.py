@@ -19,7 +19,10 @@ from .yamlfile import Located, load_located
 
 #: Location series keys (contract) plus `velocity` (for detector response).
 SERIES_KEYS = ("temperature", "co", "co2", "o2", "hcn", "extinction", "optical_density", "soot",
-               "visibility", "heat_flux", "layer_height", "velocity")
+               "visibility", "heat_flux", "layer_height", "velocity",
+               # irritant gases (ISO 13571 FEC), volume fractions; appended last so that the
+               # Monte Carlo streams of the keys above do not change
+               "hcl", "hbr", "hf", "so2", "no2", "acrolein", "formaldehyde")
 SMOKE_KEYS = ("extinction", "optical_density", "soot", "visibility")
 DISTRIBUTIONS = {"lognormal": ("median", "p95"), "normal": ("mean", "sd"), "uniform": ("low", "high"),
                  "triangular": ("low", "mode", "high")}

@@ -7,8 +7,10 @@ above ambient, O2 as the depletion below ambient, visibility through the extinct
 coefficient, the others as given. For a prediction M the corrected value is
 ``M * f`` with the error factor
 
-* lognormal: ``f = exp(sigma_M * Z) / delta``, Z standard normal, so ln(M f) has median
-  ln(M / delta) and standard deviation sigma_M;
+* lognormal: ``f = exp(sigma_M * Z - sigma_M^2 / 2) / delta``, Z standard normal, so
+  M f has mean M / delta (as McGrattan & Toman define delta: the mean of the corrected
+  value is M / delta), median (M / delta) exp(-sigma_M^2 / 2), and ln(M f) has standard
+  deviation sigma_M;
 * normal: ``f ~ Normal(1/delta, sigma_M/delta)`` truncated at zero, so M f has mean M/delta
   and standard deviation sigma_M M / delta before truncation.
 
@@ -307,7 +309,39 @@ def draw_factors(table: UncertaintyTable | None, quantities, n: int, rng: np.ran
 
 
 def factor_ppf(table: UncertaintyTable | None, q: str, u) -> np.ndarray:
-    """Error factor of quantity ``q`` at cumulative probability ``u`` (array)."""
+    """Error factor of quantity ``q`` at cumulative probability ``u`` (array).
+
+    Parameters
+    ----------
+    table : UncertaintyTable or None
+        The model-uncertainty table; None or no row for ``q``: factor 1.
+    q : str
+        Table row (quantity key).
+    u : array_like
+        Cumulative probabilities in (0, 1).
+
+    Returns
+    -------
+    numpy.ndarray
+        Factors [-] that multiply the prediction M (in its validated form).
+
+    Notes
+    -----
+    McGrattan & Toman (2011) define the bias delta through the mean: the true value
+    given a prediction M is distributed with mean M/delta. So both distributions have
+    mean 1/delta:
+
+    * lognormal, ln-sd sigma: :math:`f = \\exp(\\sigma z - \\sigma^2/2)/\\delta`, median
+      :math:`\\exp(-\\sigma^2/2)/\\delta` (scipy.stats.lognorm with s = sigma,
+      scale = exp(-sigma^2/2)/delta);
+    * normal: mean 1/delta, sd sigma/delta, truncated at zero (the truncation raises the
+      mean a little where sigma is large).
+
+    References
+    ----------
+    McGrattan, K., and Toman, B. (2011), Quantifying the predictive uncertainty of
+    complex numerical models, Metrologia 48, 173-180.
+    """
     u = np.asarray(u, float)
     stats = table.quantities.get(q) if table else None
     if stats is None:
@@ -317,11 +351,13 @@ def factor_ppf(table: UncertaintyTable | None, q: str, u) -> np.ndarray:
     if table.distribution == "lognormal":
         from scipy.special import ndtri  # the standard normal quantile, as scipy.stats.norm.ppf
 
-        return np.exp(stats.sigma_model * ndtri(u)) / stats.bias
+        sigma = stats.sigma_model
+        return np.exp(sigma * ndtri(u) - 0.5 * sigma * sigma) / stats.bias
     from .stats import truncated_normal_ppf  # = scipy.stats.truncnorm.ppf(u, -mean/sd, inf, mean, sd)
 
     return truncated_normal_ppf(u, 1.0 / stats.bias, stats.sigma_model / stats.bias)
 
 
 def median_factor(table: UncertaintyTable | None, q: str) -> float:
+    """The median error factor of row ``q`` (lognormal: exp(-sigma^2/2)/delta) [-]."""
     return float(factor_ppf(table, q, np.array([0.5]))[0])

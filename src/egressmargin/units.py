@@ -29,6 +29,7 @@ INTERNAL_UNITS: dict[str, str] = {
     "heat_flux": "kW/m^2",
     "layer_height": "m",
     "velocity": "m/s",
+    **{gas: "dimensionless" for gas in ("hcl", "hbr", "hf", "so2", "no2", "acrolein", "formaldehyde")},
     "length": "m",
     "duration": "s",
     "rti": "m^0.5*s^0.5",
@@ -51,6 +52,7 @@ EXAMPLES: dict[str, str] = {
     "heat_flux": "kW/m^2",
     "layer_height": "m",
     "velocity": "m/s",
+    **{gas: "ppm or mol/mol" for gas in ("hcl", "hbr", "hf", "so2", "no2", "acrolein", "formaldehyde")},
     "length": "m or mm",
     "duration": "s or min",
     "rti": "m^0.5*s^0.5",
@@ -300,7 +302,9 @@ def parse_obscuration(text) -> tuple[float, float]:
 def display_unit(quantity: str) -> str:
     """The unit used to show a quantity to people (report and results)."""
     return {"co": "ppm", "co2": "percent", "o2": "percent", "hcn": "ppm", "soot": "mg/m^3",
-            "fraction": "percent", "duration": "s", "length": "m"}.get(quantity, INTERNAL_UNITS[quantity])
+            "fraction": "percent", "duration": "s", "length": "m",
+            **{gas: "ppm" for gas in ("hcl", "hbr", "hf", "so2", "no2", "acrolein", "formaldehyde")},
+            }.get(quantity, INTERNAL_UNITS[quantity])
 
 
 def from_internal(values, quantity: str, unit: str | None = None) -> np.ndarray:

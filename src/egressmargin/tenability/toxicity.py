@@ -277,10 +277,14 @@ def iso13571_fed_rate(co=None, hcn=None, co2=None, o2=None):
     (each term as in :func:`iso13571_co_rate`, :func:`iso13571_hcn_rate`,
     :func:`iso13571_co2_multiplier`). FED = 1 is incapacitation of the median person.
 
-    Oxygen: from memory, ISO 13571 treats hypoxia from O2 depletion as a separate
-    consideration rather than a term of the asphyxiant FED (in most fires CO
-    dominates before O2 falls far enough to matter). Use the ``purser`` method, which
-    has an O2 hypoxia term, where vitiation matters. :data:`METHOD_GASES` lists the
+    Oxygen: the asphyxiant FED of ISO 13571:2012 has no O2 term. A search of the
+    public pages available to this project found the standard's scope (toxic gases,
+    heat, visual obscuration) but not its text on oxygen, so what follows is from
+    memory: the standard treats hypoxia from O2 depletion as a separate consideration
+    (in most fires CO dominates before O2 falls far enough to matter). So that a
+    supplied O2 series is never ignored, the bundled criteria sets add the separate
+    criterion ``fed_hypoxia`` (Purser's hypoxia dose, :func:`purser_o2_rate`), and the
+    ``purser`` method includes the O2 term in its FED. :data:`METHOD_GASES` lists the
     gases each method uses, so a caller can tell when a location has none of them.
 
     References
