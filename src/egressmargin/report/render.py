@@ -382,6 +382,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "detectors": sorted(detectors.values()),
         "credibility": credibility,
         "inputs": _inputs_view(results.get("inputs") or []),
+        "column_maps": _column_maps(results.get("inputs") or []),
         "figures": figs.items,
         "n_figures": len(figs.items),
     }
@@ -687,18 +688,27 @@ def _egress_view(egress: Mapping[str, Any]) -> dict[str, Any]:
 
 
 def _inputs_view(inputs) -> list[dict[str, Any]]:
-    out = []
+    return [{"path": f.get("path"), "sha256": f.get("sha256"), "role": f.get("role"),
+             "rows": f.get("rows"), "t_start_s": f.get("t_start_s"), "t_end_s": f.get("t_end_s")}
+            for f in inputs]
+
+
+def _column_maps(inputs) -> list[dict[str, Any]]:
+    """The histories' column maps, one paragraph per distinct map (grid variants and
+    scenarios that share a header are listed together), grouped by location."""
+    maps: dict[str, list[str]] = {}
     for f in inputs:
         cols = [c for c in f.get("columns") or [] if c.get("series") not in (None, "time")]
-        out.append({"path": f.get("path"), "sha256": f.get("sha256"), "role": f.get("role"),
-                    "rows": f.get("rows"), "t_start_s": f.get("t_start_s"),
-                    "t_end_s": f.get("t_end_s"),
-                    "columns": "; ".join(
-                        f"{c.get('column')} \u2192 {c.get('series')}"
-                        + (f" at {c.get('location')}" if c.get("location") else "")
-                        + (f" [{fmt_unit(c.get('unit_as_read'))}]" if c.get("unit_as_read") else "")
-                        for c in cols)})
-    return out
+        if not cols:
+            continue
+        by_loc: dict[str, list[str]] = {}
+        for c in cols:
+            unit = fmt_unit(c.get("unit_as_read"))
+            by_loc.setdefault(str(c.get("location") or "\u2014"), []).append(
+                f"{c.get('series')} {c.get('column')}" + (f" [{unit}]" if unit else ""))
+        text = "; ".join(f"{loc}: {', '.join(items)}" for loc, items in by_loc.items())
+        maps.setdefault(text, []).append(str(f.get("path")))
+    return [{"files": files, "text": text} for text, files in maps.items()]
 
 
 # ----------------------------------------------------------------------------- figures
