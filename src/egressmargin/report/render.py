@@ -349,7 +349,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "title": title,
         "study": study,
         "version": results.get("version"),
-        "generated": generated,
+        "generated": generated or results.get("generated"),
         "seed": results.get("seed"),
         "samples": results.get("samples"),
         "page_size": size,
