@@ -257,6 +257,18 @@ def test_basis_of_design_shows_design_fire_and_egress_inputs(rendered, fixture_d
     assert squash("Detection " + fmt.fmt_trio(det)) in text
 
 
+def test_path_elements_and_shared_elements_are_shown(rendered, fixture_data):
+    results, _ = fixture_data
+    rt = results["scenarios"][0]["routes"][0]
+    text = squash(rendered["text"])
+    door = rt["elements"][1]
+    assert squash("door door D2" + fmt.fmt_quantity(door["effective_width_m"], "m")
+                  + fmt.fmt_num(door["capacity_p_s"]) + "p/s") in text
+    assert squash("Clears at") in text and squash(fmt.fmt_time(door["clearing_s"])) in text
+    assert squash("Shared path elements: door D2 (routes: east-stair, west-exit; "
+                  "combined flow [persons/s]: 0.91)") in text
+
+
 def test_grid_table_columns_follow_their_headers(rendered, fixture_data):
     """Issue 15 item 2: the grid study lists values fine to coarse (cells_m); the table's
     columns are the study's resolutions, coarse first here. The fixture's times follow

@@ -215,7 +215,8 @@ def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
     matplotlib, plt = _plt()
     t = np.asarray(t_s, dtype=float)
     keys = list(specs)
-    nrows, ncols = _grid_shape(len(keys))
+    # a lone panel keeps the size it has among others (half the width), not the whole row
+    nrows, ncols = _grid_shape(len(keys)) if len(keys) > 1 else (1, 2)
     height = 1.75 * nrows + 0.45
     with matplotlib.rc_context(_RC):
         fig, axes = plt.subplots(nrows, ncols, figsize=(FIG_WIDTH_IN, height), squeeze=False)

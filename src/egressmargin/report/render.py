@@ -505,13 +505,25 @@ def _element_rows(elements: Any) -> list[dict[str, Any]]:
     return rows
 
 
+#: Unit suffixes of results keys -> printed unit.
+_KEY_UNITS = (("_p_s", "persons/s"), ("_m_s", "m/s"), ("_s", "s"), ("_m", "m"))
+
+
+def _key_words(key: str) -> str:
+    """A results key in words with its unit: ``combined_flow_p_s`` -> ``combined flow [persons/s]``."""
+    for suffix, unit in _KEY_UNITS:
+        if key.endswith(suffix):
+            return f"{key[: -len(suffix)].replace('_', ' ')} [{unit}]"
+    return key.replace("_", " ")
+
+
 def _shared_rows(sc: Mapping[str, Any]) -> list[dict[str, Any]]:
     rows = []
     for e in sc.get("shared_elements") or []:
         if not isinstance(e, Mapping):
             continue
         rows.append({"id": e.get("id") or e.get("element"),
-                     "text": "; ".join(f"{k.replace('_', ' ')}: {_given(v)}" for k, v in e.items()
+                     "text": "; ".join(f"{_key_words(k)}: {_given(v)}" for k, v in e.items()
                                        if k not in ("id", "element"))})
     return rows
 
