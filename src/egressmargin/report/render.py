@@ -828,8 +828,16 @@ def write_pdf(html: str, path: Path, progress: Any = None) -> Path:
     try:
         if progress is not None:
             progress.stage("PDF layout")
-        document = weasyprint.HTML(string=html, url_fetcher=_fetcher(),
-                                   base_url=str(path.parent)).render()
+        try:
+            document = weasyprint.HTML(string=html, url_fetcher=_fetcher(),
+                                       base_url=str(path.parent)).render()
+        except BaseException as exc:
+            # WeasyPrint's fatal fetch error is a BaseException; a refused fetch is our bug
+            # (the report is self-contained), so say so as an ordinary error.
+            if type(exc).__name__ != "FatalURLFetchingError":
+                raise
+            raise RuntimeError(f"report.html must be self-contained; {exc} "
+                               f"({exc.__cause__})") from exc
         if progress is not None:
             progress.stage("PDF writing")
         document.write_pdf(str(path))
