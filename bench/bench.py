@@ -498,9 +498,13 @@ class Plan:
     repeats: int
 
 
+    report: Size = Size(3, 40, 1801, 5000)   # the study timed with its PDF (section 5)
+
+
 FULL = Plan(Size(8, 50, 1801, 2000), (250, 500, 1000, 2000, 4000, 8000), (10, 50, 200, 500),
             (451, 901, 1801, 3601, 7201), Size(1, 5, 601, 500), 3)
-QUICK = Plan(Size(2, 10, 451, 250), (100, 200, 400), (5, 10), (226, 451), Size(1, 3, 301, 100), 1)
+QUICK = Plan(Size(2, 10, 451, 250), (100, 200, 400), (5, 10), (226, 451), Size(1, 3, 301, 100), 1,
+             Size(1, 4, 301, 100))
 
 
 def machine() -> dict:
@@ -659,7 +663,64 @@ def run_benchmark(plan: Plan, work: Path, say=print) -> dict:
             f"{row['pct_mismatch']:d} pct / {row['sample_mismatch']:d} samples")
     say(f"   engine (aset.evaluate) {acc['t_engine_s']:.4f} s; brute force {acc['t_brute_s']:.3f} s; "
         f"speed-up x{acc['speedup']:.0f}")
+
+    # 5: the report with its PDF ----------------------------------------------------------
+    figures["report"] = report_timing(plan, work, say)
     return figures
+
+
+def _all_cpus():
+    """Undo the one-core pin for a measurement that uses the report's process pool."""
+    if not hasattr(os, "sched_setaffinity"):
+        return None
+    before = os.sched_getaffinity(0)
+    os.sched_setaffinity(0, range(os.cpu_count() or 1))
+    return before
+
+
+def report_timing(plan: Plan, work: Path, say=print) -> dict:
+    """Wall clock of the bundled demo with its PDF, and of a study's report per location.
+
+    The report draws its figures in a process pool, so these two measurements run on every
+    CPU of the machine (the pin of sections 1-4 is lifted and restored afterwards).
+    """
+    before = _all_cpus()
+    try:
+        cpus = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
+        demo = best_wall([sys.executable, "-m", "egressmargin", "demo", "--out", str(work / "demo-out")],
+                         plan.repeats)
+        size = plan.report
+        loaded = load_quiet(write_study(work / "report-study", size))
+        opts = options(pdf=True)
+        t0 = time.perf_counter()
+        results, plots = pipeline.build_results(loaded, opts)
+        t1 = time.perf_counter()
+        from egressmargin.report import render_report
+        best = float("inf")
+        for _ in range(plan.repeats):
+            t2 = time.perf_counter()
+            paths = render_report(results, plots, work / "report-out")
+            best = min(best, time.perf_counter() - t2)
+        import pypdf
+        pages = len(pypdf.PdfReader(str(paths["pdf"])).pages)
+    finally:
+        if before is not None:
+            os.sched_setaffinity(0, before)
+    locations = size.scenarios * size.locations
+    used = sum(len({lid for rt in sc["routes"] for lid in rt.get("exposed_at", [])})
+               for sc in results["scenarios"])
+    out = {"cpus": cpus, "demo_with_pdf_s": demo, "study": size.label(), "compute_s": t1 - t0,
+           "report_s": best, "pages": pages, "locations": locations, "route_locations": used,
+           "report_per_location_s": best / locations,
+           "report_per_route_location_s": best / used if used else float("nan")}
+    say("")
+    say(f"5. The report with its PDF ({cpus} CPUs; figures in the report's process pool; best of {plan.repeats})")
+    say(f"   egressmargin demo --out DIR (whole command, subprocess)            {_fmt(demo)} s")
+    say(f"   study {size.label()}: compute {_fmt(t1 - t0)} s, report (HTML + PDF, {pages} pages) {_fmt(best)} s")
+    say(f"   report per location of the study ({locations})                      {best / locations * 1000:.0f} ms")
+    if used:
+        say(f"   report per location a route passes ({used}, the ones drawn)         {best / used * 1000:.0f} ms")
+    return out
 
 
 def profile_stages(size: Size, work: Path, top: int = 30, say=print) -> None:
@@ -709,7 +770,7 @@ def main(argv: list[str] | None = None) -> int:
         pin_one_core()
     plan = QUICK if args.quick else FULL
     if args.repeats:
-        plan = Plan(plan.main, plan.samples, plan.locations, plan.rows, plan.reference, max(1, args.repeats))
+        plan = dataclasses.replace(plan, repeats=max(1, args.repeats))
     if args.profile:
         with tempfile.TemporaryDirectory(prefix="egressmargin-profile-") as tmp:
             profile_stages(plan.main, Path(tmp))

@@ -255,6 +255,13 @@ def _scenario(sid: str, title: str, end_s: float, severity: float, n_locations: 
                                            "reached in some draws; extend the simulation.")
                 route["p_fail_bounds"] = {"low": 0.0, "high": 0.08}
         if with_extras and spec.get("extras"):
+            # per-element flow results (illustrative numbers in the shape of the results keys)
+            route["elements"] = [
+                {"type": "corridor", "effective_width_m": 1.7, "capacity_p_s": 2.2,
+                 "speed_m_s": 1.19, "clearing_s": 250.0, "queue_s": 0.0, "shared_with": []},
+                {"type": "door", "id": "door D2", "effective_width_m": 0.7, "capacity_p_s": 0.91,
+                 "speed_m_s": 1.0, "clearing_s": 395.0, "queue_s": 120.0, "shared_with": ["west-exit"]},
+            ]
             route["along_route"] = {
                 "criteria": {
                     "fed_toxic": {"p05": 0.04, "p50": 0.09, "p95": 0.21, "limit": 0.3,
@@ -292,6 +299,8 @@ def _scenario(sid: str, title: str, end_s: float, severity: float, n_locations: 
     plot = {"t_s": t, "locations": locs_plot, "routes": routes_plot, "credibility": {}}
     if with_extras:
         scenario["credibility"], plot["credibility"] = _credibility(locs_out[:2])
+        scenario["shared_elements"] = [{"id": "door D2", "routes": ["east-stair", "west-exit"],
+                                        "combined_flow_p_s": 0.91}]
         scenario["design_fire"] = {"growth": "fast t-squared, 0.047 kW/s^2 (illustrative)",
                                    "peak_hrr": "2.5 MW", "sprinklers": "none assumed",
                                    "yields": {"co": "0.03 kg/kg", "soot": "0.05 kg/kg"}}

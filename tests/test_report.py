@@ -257,6 +257,18 @@ def test_basis_of_design_shows_design_fire_and_egress_inputs(rendered, fixture_d
     assert squash("Detection " + fmt.fmt_trio(det)) in text
 
 
+def test_path_elements_and_shared_elements_are_shown(rendered, fixture_data):
+    results, _ = fixture_data
+    rt = results["scenarios"][0]["routes"][0]
+    text = squash(rendered["text"])
+    door = rt["elements"][1]
+    assert squash("door door D2" + fmt.fmt_quantity(door["effective_width_m"], "m")
+                  + fmt.fmt_num(door["capacity_p_s"]) + "p/s") in text
+    assert squash("Clears at") in text and squash(fmt.fmt_time(door["clearing_s"])) in text
+    assert squash("Shared path elements: door D2 (routes: east-stair, west-exit; "
+                  "combined flow [persons/s]: 0.91)") in text
+
+
 def test_grid_table_columns_follow_their_headers(rendered, fixture_data):
     """Issue 15 item 2: the grid study lists values fine to coarse (cells_m); the table's
     columns are the study's resolutions, coarse first here. The fixture's times follow
@@ -560,3 +572,21 @@ def test_every_figure_is_also_written_as_a_png_file(tmp_path):
     files = sorted((tmp_path / "plots").glob("figure-*.png"))
     assert len(files) == html.count('<figure class="plot-figure"') > 0
     assert files[0].read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_pdf_engine_fetches_nothing_but_inline_data(tmp_path):
+    """The report is self-contained: any other URL stops the rendering with the PDF
+    engine's own error (not an AttributeError from a plain-function fetcher), and an
+    inline data: image still renders."""
+    from egressmargin.report.render import write_pdf
+
+    png = plots.credibility_figure({"l": {"temperature": {"cells": [0.2, 0.1],
+                                                          "values_s": [310.0, 300.0]}}})
+    import base64
+    ok = ('<html><body><img src="data:image/png;base64,'
+          + base64.b64encode(png).decode("ascii") + '"></body></html>')
+    assert write_pdf(ok, tmp_path / "ok.pdf").stat().st_size > 1000
+    bad = '<html><body><img src="file:///etc/hostname"></body></html>'
+    with pytest.raises(RuntimeError) as err:
+        write_pdf(bad, tmp_path / "bad.pdf")
+    assert "self-contained" in str(err.value) and "file:///etc/hostname" in str(err.value)

@@ -215,7 +215,8 @@ def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
     matplotlib, plt = _plt()
     t = np.asarray(t_s, dtype=float)
     keys = list(specs)
-    nrows, ncols = _grid_shape(len(keys))
+    # a lone panel keeps the size it has among others (half the width), not the whole row
+    nrows, ncols = _grid_shape(len(keys)) if len(keys) > 1 else (1, 2)
     height = 1.75 * nrows + 0.45
     with matplotlib.rc_context(_RC):
         fig, axes = plt.subplots(nrows, ncols, figsize=(FIG_WIDTH_IN, height), squeeze=False)
@@ -340,7 +341,7 @@ def _timeline(ax, components_s, rset_s, aset_s, aset_raw_s, end_s) -> list:
     return handles
 
 
-def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05) -> None:
+def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05) -> list:
     m = np.asarray(margin_samples_s, dtype=float).ravel()
     fin = m[np.isfinite(m)]
     n_open = int(m.size - fin.size)
@@ -364,12 +365,11 @@ def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05) -> None:
     if max_p_fail is not None:
         txt += f"; acceptable if ≤ {fmt_prob(max_p_fail)}"
     if n_open:
-        txt += f"\n{n_open} of {m.size} draws reach no limit (not drawn)"
-    ax.text(0.01, 0.95, txt, transform=ax.transAxes, va="top", ha="left", fontsize=6.8,
-            bbox=dict(boxstyle="square,pad=0.3", facecolor="white", edgecolor=INK, linewidth=0.5))
+        txt += f"; {n_open} of {m.size} draws reach no limit (not drawn)"
+    ax.set_title(txt, loc="left", fontsize=6.8, pad=4)
     ax.set_xlabel("Margin ASET − RSET per draw [s]")
     ax.set_ylabel("Draws")
-    ax.legend(loc="upper right", fontsize=6.5)
+    return list(zip(*ax.get_legend_handles_labels()))
 
 
 def _tornado(ax, rows, base_margin_s) -> list:
@@ -441,24 +441,24 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
     show_hist = m is not None and np.isfinite(m).any() and np.ptp(m[np.isfinite(m)]) > 0
     rows = sorted(sensitivity or [], key=lambda r: -abs(float(r.get("swing_s") or 0.0)))
     show_tornado = any(abs(float(r.get("swing_s") or 0.0)) > 0 for r in rows)
-    # Heights in inches: each panel, then below it its x label (0.3) and its legend.
-    panels = [("timeline", 1.45, 0.62)]
+    # Heights in inches: room for a title above each panel, the panel, then below it its
+    # x label (0.32) and its legend.
+    panels = [("timeline", 0.0, 1.45, 0.62)]
     if show_hist:
-        panels.append(("histogram", 1.3, 0.1))
+        panels.append(("histogram", 0.16, 1.3, 0.34))
     if show_tornado:
-        panels.append(("tornado", 0.24 * len(rows) + 0.3, 0.34))
-    total = 0.1 + sum(h + 0.32 + leg for _, h, leg in panels)
+        panels.append(("tornado", 0.0, 0.24 * len(rows) + 0.3, 0.34))
+    total = 0.1 + sum(pre + h + 0.32 + leg for _, pre, h, leg in panels)
     with matplotlib.rc_context(_RC):
         fig = plt.figure(figsize=(FIG_WIDTH_IN, total))
         top = 1.0 - 0.1 / total
-        for kind, h, leg in panels:
-            bottom = top - h / total
+        for kind, pre, h, leg in panels:
+            bottom = top - (pre + h) / total
             ax = fig.add_axes((0.25, bottom, 0.72, h / total))
             if kind == "timeline":
                 entries = _timeline(ax, components_s, rset_s, aset_s, aset_raw_s, end_s)
             elif kind == "histogram":
-                _histogram(ax, m, p_fail, max_p_fail, margin_p05_s)
-                entries = []
+                entries = _histogram(ax, m, p_fail, max_p_fail, margin_p05_s)
             else:
                 entries = _tornado(ax, rows, base_margin_s)
             if entries:

@@ -349,7 +349,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "title": title,
         "study": study,
         "version": results.get("version"),
-        "generated": generated,
+        "generated": generated or results.get("generated"),
         "seed": results.get("seed"),
         "samples": results.get("samples"),
         "page_size": size,
@@ -382,6 +382,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "detectors": sorted(detectors.values()),
         "credibility": credibility,
         "inputs": _inputs_view(results.get("inputs") or []),
+        "column_maps": _column_maps(results.get("inputs") or []),
         "figures": figs.items,
         "n_figures": len(figs.items),
     }
@@ -504,13 +505,25 @@ def _element_rows(elements: Any) -> list[dict[str, Any]]:
     return rows
 
 
+#: Unit suffixes of results keys -> printed unit.
+_KEY_UNITS = (("_p_s", "persons/s"), ("_m_s", "m/s"), ("_s", "s"), ("_m", "m"))
+
+
+def _key_words(key: str) -> str:
+    """A results key in words with its unit: ``combined_flow_p_s`` -> ``combined flow [persons/s]``."""
+    for suffix, unit in _KEY_UNITS:
+        if key.endswith(suffix):
+            return f"{key[: -len(suffix)].replace('_', ' ')} [{unit}]"
+    return key.replace("_", " ")
+
+
 def _shared_rows(sc: Mapping[str, Any]) -> list[dict[str, Any]]:
     rows = []
     for e in sc.get("shared_elements") or []:
         if not isinstance(e, Mapping):
             continue
         rows.append({"id": e.get("id") or e.get("element"),
-                     "text": "; ".join(f"{k.replace('_', ' ')}: {_given(v)}" for k, v in e.items()
+                     "text": "; ".join(f"{_key_words(k)}: {_given(v)}" for k, v in e.items()
                                        if k not in ("id", "element"))})
     return rows
 
@@ -687,18 +700,27 @@ def _egress_view(egress: Mapping[str, Any]) -> dict[str, Any]:
 
 
 def _inputs_view(inputs) -> list[dict[str, Any]]:
-    out = []
+    return [{"path": f.get("path"), "sha256": f.get("sha256"), "role": f.get("role"),
+             "rows": f.get("rows"), "t_start_s": f.get("t_start_s"), "t_end_s": f.get("t_end_s")}
+            for f in inputs]
+
+
+def _column_maps(inputs) -> list[dict[str, Any]]:
+    """The histories' column maps, one paragraph per distinct map (grid variants and
+    scenarios that share a header are listed together), grouped by location."""
+    maps: dict[str, list[str]] = {}
     for f in inputs:
         cols = [c for c in f.get("columns") or [] if c.get("series") not in (None, "time")]
-        out.append({"path": f.get("path"), "sha256": f.get("sha256"), "role": f.get("role"),
-                    "rows": f.get("rows"), "t_start_s": f.get("t_start_s"),
-                    "t_end_s": f.get("t_end_s"),
-                    "columns": "; ".join(
-                        f"{c.get('column')} \u2192 {c.get('series')}"
-                        + (f" at {c.get('location')}" if c.get("location") else "")
-                        + (f" [{fmt_unit(c.get('unit_as_read'))}]" if c.get("unit_as_read") else "")
-                        for c in cols)})
-    return out
+        if not cols:
+            continue
+        by_loc: dict[str, list[str]] = {}
+        for c in cols:
+            unit = fmt_unit(c.get("unit_as_read"))
+            by_loc.setdefault(str(c.get("location") or "\u2014"), []).append(
+                f"{c.get('series')} {c.get('column')}" + (f" [{unit}]" if unit else ""))
+        text = "; ".join(f"{loc}: {', '.join(items)}" for loc, items in by_loc.items())
+        maps.setdefault(text, []).append(str(f.get("path")))
+    return [{"files": files, "text": text} for text, files in maps.items()]
 
 
 # ----------------------------------------------------------------------------- figures
@@ -806,8 +828,16 @@ def write_pdf(html: str, path: Path, progress: Any = None) -> Path:
     try:
         if progress is not None:
             progress.stage("PDF layout")
-        document = weasyprint.HTML(string=html, url_fetcher=_fetcher(),
-                                   base_url=str(path.parent)).render()
+        try:
+            document = weasyprint.HTML(string=html, url_fetcher=_fetcher(),
+                                       base_url=str(path.parent)).render()
+        except BaseException as exc:
+            # WeasyPrint's fatal fetch error is a BaseException; a refused fetch is our bug
+            # (the report is self-contained), so say so as an ordinary error.
+            if type(exc).__name__ != "FatalURLFetchingError":
+                raise
+            raise RuntimeError(f"report.html must be self-contained; {exc} "
+                               f"({exc.__cause__})") from exc
         if progress is not None:
             progress.stage("PDF writing")
         document.write_pdf(str(path))
