@@ -128,6 +128,13 @@ HEAT_OF_COMBUSTION_KJ_KG = 20000.0
 #: Yields [kg per kg of fuel burnt] (assumed, illustrative; well-ventilated mixed
 #: cellulosic and plastic furnishings).
 YIELDS = {"co2": 1.5, "co": 0.03, "soot": 0.05, "hcn": 0.003}
+#: Yield of HCl [kg/kg] (assumed, illustrative: a little PVC cable sheathing among the
+#: furnishings). HCl is carried like the other species (no wall deposition, which keeps
+#: its concentration on the high side), so its volume fraction is the HCN fraction times
+#: (Y_HCl / M_HCl) / (Y_HCN / M_HCN).
+YIELD_HCL = 0.004
+MOLAR_MASS_HCL = 36.461
+HCL_PER_HCN = (YIELD_HCL / MOLAR_MASS_HCL) / (YIELDS["hcn"] / MOLAR_MASS["hcn"])
 
 #: Time step of the internal integration [s] and of the written CSV files [s].
 DT_S = 0.25
@@ -659,20 +666,20 @@ TREE_W1 = {"heights": (0.5, 1.0, 1.5, 2.0, 2.5, 2.9), "ceiling": LOBBY["ceiling"
 #: SOOT [mg/m^3], VIS visibility [m], FLUX [kW/m^2], ZL layer height [m], U [m/s],
 #: TREE thermocouple tree [degC, unit given in the study].
 LOCATIONS = {
-    "reading-area": ("reading", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
+    "reading-area": ("reading", ("T", "CO", "CO2", "O2", "HCN", "HCL", "EXT", "FLUX", "ZL")),
     "reading-soffit": ("soffit_det", ("T", "U")),
-    "atrium-l2": ("atrium_L2", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
-    "atrium-l3": ("atrium_L3", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "TREE")),
+    "atrium-l2": ("atrium_L2", ("T", "CO", "CO2", "O2", "HCN", "HCL", "EXT", "FLUX", "ZL")),
+    "atrium-l3": ("atrium_L3", ("T", "CO", "CO2", "O2", "HCN", "HCL", "EXT", "FLUX", "TREE")),
     "atrium-roof": ("roof_beam", ("T", "OD")),
-    "corridor-l3-east": ("corr_L3E", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
-    "lobby-east-l3": ("lobby_E3", ("T", "CO", "XCO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
-    "stair-east": ("stair_E", ("TK", "CO", "CO2", "O2", "HCN", "VIS", "FLUX", "ZL")),
-    "exit-east": ("exit_E", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
-    "lobby-west-l2": ("lobby_W2", ("T", "CO", "CO2", "O2", "HCN", "SOOT", "FLUX", "ZL")),
-    "stair-west": ("stair_W", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
-    "lobby-west-l1": ("lobby_W1", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "TREE")),
-    "corridor-west-l1": ("corr_W1", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
-    "exit-main": ("exit_main", ("T", "CO", "CO2", "O2", "HCN", "EXT", "FLUX", "ZL")),
+    "corridor-l3-east": ("corr_L3E", ("T", "CO", "CO2", "O2", "HCN", "HCL", "EXT", "FLUX", "ZL")),
+    "lobby-east-l3": ("lobby_E3", ("T", "CO", "XCO2", "O2", "HCN", "HCL", "EXT", "FLUX", "ZL")),
+    "stair-east": ("stair_E", ("TK", "CO", "CO2", "O2", "HCN", "HCL", "VIS", "FLUX", "ZL")),
+    "exit-east": ("exit_E", ("T", "CO", "CO2", "O2", "HCN", "HCL", "EXT", "FLUX", "ZL")),
+    "lobby-west-l2": ("lobby_W2", ("T", "CO", "CO2", "O2", "HCN", "HCL", "SOOT", "FLUX", "ZL")),
+    "stair-west": ("stair_W", ("T", "CO", "CO2", "O2", "HCN", "HCL", "EXT", "FLUX", "ZL")),
+    "lobby-west-l1": ("lobby_W1", ("T", "CO", "CO2", "O2", "HCN", "HCL", "EXT", "FLUX", "TREE")),
+    "corridor-west-l1": ("corr_W1", ("T", "CO", "CO2", "O2", "HCN", "HCL", "EXT", "FLUX", "ZL")),
+    "exit-main": ("exit_main", ("T", "CO", "CO2", "O2", "HCN", "HCL", "EXT", "FLUX", "ZL")),
 }
 
 #: Floor level [m, absolute] of each location, for its layer height above the local floor.
@@ -694,7 +701,7 @@ LOCAL_VIEW = 0.5
 COLUMN_FORMAT = {
     "T": ("T_{} [degC]", 2), "TK": ("T_{} [K]", 2), "CO": ("CO_{} [ppm]", 1),
     "CO2": ("CO2_{} [percent]", 4), "XCO2": ("X_CO2_{}", 6), "O2": ("O2_{} [percent]", 3),
-    "HCN": ("HCN_{} [ppm]", 2), "EXT": ("Ext_{} [1/m]", 4), "OD": ("OD_{} [1/m]", 5),
+    "HCN": ("HCN_{} [ppm]", 2), "HCL": ("HCl_{} [ppm]", 2), "EXT": ("Ext_{} [1/m]", 4), "OD": ("OD_{} [1/m]", 5),
     "SOOT": ("Soot_{} [mg/m^3]", 3), "VIS": ("Vis_{} [m]", 2), "FLUX": ("Flux_{} [kW/m^2]", 3),
     "ZL": ("Zlayer_{} [m]", 3), "U": ("U_{} [m/s]", 3),
 }
@@ -719,6 +726,7 @@ def location_columns(zones: dict, t: np.ndarray, connections: dict, amp: float =
             "XCO2": X_CO2_AMBIENT + ex["co2"],
             "O2": (X_O2_AMBIENT - ex["o2def"]) * 100.0,
             "HCN": ex["hcn"] * 1e6,
+            "HCL": ex["hcn"] * HCL_PER_HCN * 1e6,
             "EXT": ex["K"],
             "OD": ex["K"] / math.log(10.0),
             "SOOT": ex["K"] / K_M_M2_KG * 1e6,
