@@ -492,7 +492,8 @@ def node_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float) -> np.ndarra
     return np.where(reached, t, np.inf)
 
 
-def dose_shape(prep: Prepared, criterion: Criterion, varying: list[str], rows: np.ndarray):
+def dose_shape(prep: Prepared, criterion: Criterion, varying: list[str], rows: np.ndarray,
+               f_max: dict[str, float] | None = None):
     """Per location of ``rows``: is the dose (monotone, convex, linear) in its varying factors?
 
     From the form of the rates, checked on the series (cheap, no pass over the grid):
@@ -507,6 +508,9 @@ def dose_shape(prep: Prepared, criterion: Criterion, varying: list[str], rows: n
       except the radiant term, which jumps at its threshold (fed_heat in ``heat_flux``);
     * linear: the ISO 13571 CO term alone (:func:`_linear_in`).
 
+    Where the corrected O2 would be clipped at zero (depletion x largest factor ``f_max``
+    reaching the ambient O2) the hypoxia rate flattens and is no longer convex there.
+
     ``tests/test_engine_bruteforce.py`` checks these claims against second differences on
     fine grids.
     """
@@ -515,6 +519,9 @@ def dose_shape(prep: Prepared, criterion: Criterion, varying: list[str], rows: n
         base = _base_series(prep, q)[rows]
         mono &= ~np.any(base < 0.0, axis=1)          # NaN (absent) compares False
     convex = np.full(rows.size, len(varying) == 1 and not (criterion.id == "fed_heat" and varying == ["heat_flux"]))
+    if varying == ["o2"]:
+        top = np.nanmax(np.where(np.isnan(prep.o2_depletion[rows]), 0.0, prep.o2_depletion[rows]), axis=1)
+        convex &= top * (f_max or {}).get("o2", np.inf) < prep.o2_amb
     linear = np.full(rows.size, _linear_in(criterion, varying))
     return mono, convex & ~linear, linear
 
@@ -726,7 +733,7 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
             continue
         single = False
         varying = [q for q in names if np.ptp(fac[q]) > 0]
-        mono, convex, linear = dose_shape(prep, criterion, varying, rows)
+        mono, convex, linear = dose_shape(prep, criterion, varying, rows, {q: float(fac[q].max()) for q in varying})
         t_rep, err, t_stop = _one_factor_times(fld, criterion.limit, mono, convex, linear)
         need = err > EXACT_TOLERANCE_S
         if need.any():
