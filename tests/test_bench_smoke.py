@@ -99,3 +99,12 @@ def test_brute_force_reproduces_a_closed_form_case(bench, tmp_path):
     times, _ = bench.brute_force_times(loaded, {"temperature": np.ones(4)}, 4)
     assert times["temperature"][0] == pytest.approx(np.full(4, 400.0))
 
+
+
+def test_hard_dose_cases_within_one_second_and_their_bound(bench):
+    """Radiant threshold with flux and temperature uncertain; ISO 13571 CO, HCN, CO2 uncertain."""
+    hard = bench.hard_cases_check(samples=60, locations=2, rows=301)
+    for name, row in hard.items():
+        assert row["within_bound"], name
+        assert row["max_sample_diff_s"] <= 1.0 and row["grid_bound_s"] <= 1.0, name
+        assert row["reached_mismatch"] == 0, name

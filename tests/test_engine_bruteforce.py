@@ -220,8 +220,24 @@ def test_dose_shape_claims_hold_on_a_fine_grid():
                 nodes = np.linspace(0.5, 2.0, 201)
                 grid = np.stack([aset.cumulative_dose(c, prep.t_s, aset.corrected_inputs(prep, [q], {q: f}),
                                                       (prep.n_loc, len(prep.t_s))) for f in nodes])
-                mono, convex, _ = aset.dose_shape(prep, c, [q], np.arange(prep.n_loc))
+                mono, convex, _ = aset.dose_shape(prep, c, [q], np.arange(prep.n_loc), {q: 2.0})
                 tol = 1e-9 * grid.max()
                 d1, d2 = np.diff(grid, axis=0), np.diff(grid, 2, axis=0)
                 assert np.all(d1.min(axis=(0, 2))[mono] >= -tol), (method, cid, q)
                 assert np.all(d2.min(axis=(0, 2))[convex] >= -tol), (method, cid, q)
+
+
+def test_hypoxia_dose_where_corrected_o2_is_clipped_at_zero():
+    """O2 falling to 4 %: draws with a depletion factor above 1.24 clip O2 at 0, where the
+    hypoxia rate stops growing (not convex): every draw still within 1 s and its bound."""
+    t = np.linspace(0.0, 900.0, 901)
+    o2 = 0.209 - 0.169 * (t / 900.0)
+    data = _single_location(t, {"o2": o2})
+    crit = CriteriaSet("x", "", ["x"], {"fed_hypoxia": Criterion("fed_hypoxia", 0.3, "0.3", "-")})
+    prep = aset.prepare(data, crit)
+    S = 300
+    f = np.exp(0.3 * np.random.default_rng(4).standard_normal(S))
+    res = aset.evaluate(prep, crit, {"o2": f}, S)["fed_hypoxia"]
+    # Purser, SFPE Handbook: hypoxia rate 1/exp(8.13 - 0.54 (20.9 - O2 %)) per minute
+    rates = [np.exp(-(8.13 - 0.54 * (20.9 - np.clip(20.9 - (20.9 - o2 * 100) * f[s], 0.0, None)))) for s in range(S)]
+    _check_every_draw(res.times[0], _per_draw(t, rates, 0.3), float(res.grid_bound_s[0]))

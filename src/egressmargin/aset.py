@@ -10,13 +10,17 @@ How it stays fast (no loop over samples x time in Python):
   extinction, layer height) is exact: the sample's factor moves the *level* instead of the
   series, and the first crossing of many levels on one series is one ``searchsorted`` on
   its running maximum (:func:`~egressmargin.tenability.crossing.crossing_times_for_levels`).
-* A dose (FED) depends on several factors. The cumulative dose is computed on a grid of
-  factor values (G nodes per uncertain quantity, spanning the samples) and interpolated
-  multilinearly in the factors for each sample; its crossing is found by a vectorised
-  bisection restricted to the bracket given by the crossings at the cell's corners. Every dose rate is
-  nondecreasing in every factor, so crossing times are monotone and the true crossing lies
-  between the crossings at the lower and upper corners of the sample's grid cell: that
-  bracket is reported as ``grid_bound_s``, an upper bound of the interpolation error.
+* A dose (FED) with one uncertain factor is computed on a grid of factor values (41
+  nodes spanning the samples; 3 where it is linear in the factor) and each sample's
+  crossing found on the interpolation between the two nodes of its cell. Every dose rate
+  is nondecreasing and convex in its factor (except the radiant term at its threshold),
+  so the true crossing is bracketed by the chord (above the dose) and the extended left
+  chord (below it): the midpoint is reported and half the bracket is a proven bound.
+  Samples whose bound exceeds 0.5 s, and every sample when two or more factors vary, are
+  integrated exactly (vectorised over those samples only). ``grid_bound_s`` is the
+  largest remaining bound per location: at most 0.5 s, 0 where every sample is exact.
+* The irritant FEC (a concentration summed over gases) is rebuilt and searched exactly
+  for each distinct combination of factors.
 """
 
 from __future__ import annotations
@@ -34,7 +38,8 @@ from .tenability.irritants import IRRITANT_GASES
 from .tenability.crossing import crossing_times_for_levels, cumulative_trapezoid, first_crossing
 
 #: Grid nodes per uncertain quantity for dose interpolation, by number of quantities
-#: (project choice: memory G**k * L * N kept moderate; the bound is reported).
+#: (project choice). The crossings use one-factor grids only; the 2-4 factor grids serve
+#: the along-route dose and the plotted bands (memory G**k * L * N kept moderate).
 GRID_NODES = {1: 41, 2: 10, 3: 6, 4: 5}
 #: Cap on the bytes of one dose grid; locations are processed in chunks below it.
 GRID_BYTES = 160e6
@@ -487,7 +492,8 @@ def node_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float) -> np.ndarra
     return np.where(reached, t, np.inf)
 
 
-def dose_shape(prep: Prepared, criterion: Criterion, varying: list[str], rows: np.ndarray):
+def dose_shape(prep: Prepared, criterion: Criterion, varying: list[str], rows: np.ndarray,
+               f_max: dict[str, float] | None = None):
     """Per location of ``rows``: is the dose (monotone, convex, linear) in its varying factors?
 
     From the form of the rates, checked on the series (cheap, no pass over the grid):
@@ -502,6 +508,9 @@ def dose_shape(prep: Prepared, criterion: Criterion, varying: list[str], rows: n
       except the radiant term, which jumps at its threshold (fed_heat in ``heat_flux``);
     * linear: the ISO 13571 CO term alone (:func:`_linear_in`).
 
+    Where the corrected O2 would be clipped at zero (depletion x largest factor ``f_max``
+    reaching the ambient O2) the hypoxia rate flattens and is no longer convex there.
+
     ``tests/test_engine_bruteforce.py`` checks these claims against second differences on
     fine grids.
     """
@@ -510,6 +519,9 @@ def dose_shape(prep: Prepared, criterion: Criterion, varying: list[str], rows: n
         base = _base_series(prep, q)[rows]
         mono &= ~np.any(base < 0.0, axis=1)          # NaN (absent) compares False
     convex = np.full(rows.size, len(varying) == 1 and not (criterion.id == "fed_heat" and varying == ["heat_flux"]))
+    if varying == ["o2"]:
+        top = np.nanmax(np.where(np.isnan(prep.o2_depletion[rows]), 0.0, prep.o2_depletion[rows]), axis=1)
+        convex &= top * (f_max or {}).get("o2", np.inf) < prep.o2_amb
     linear = np.full(rows.size, _linear_in(criterion, varying))
     return mono, convex & ~linear, linear
 
@@ -523,30 +535,6 @@ def _base_series(prep: Prepared, q: str) -> np.ndarray:
     if q == "o2":
         return prep.o2_depletion
     return prep.gases[q]
-
-
-def _index_bracket(t_s: np.ndarray, t_from: np.ndarray, t_to: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Sample indices (lo, hi) with t[lo] <= t_from and t[hi] >= t_to (finite inputs)."""
-    n = len(t_s)
-    lo = np.clip(np.searchsorted(t_s, t_from, "left") - 1, 0, n - 1)
-    hi = np.clip(np.searchsorted(t_s, t_to, "left"), 0, n - 1)
-    return lo, np.minimum(np.maximum(hi, lo + 1), n - 1)
-
-
-def _interpolated_times(fld: DoseField, limit: float, t_early, t_late, t_first) -> np.ndarray:
-    """(S, Lc) crossing of the multilinearly interpolated dose (NaN if it never reaches)."""
-    t = np.full(t_early.shape, np.nan)
-    both = np.isfinite(t_late)
-    if both.any():
-        lo, hi = _index_bracket(fld.t_s, np.where(both, t_early, t_first), np.where(both, t_late, t_first))
-        t = np.where(both, fld.bracketed_crossing(limit, lo, hi), t)
-        t = np.where(both & (t_early <= t_first), t_first, t)
-    mixed = np.isfinite(t_early) & ~both
-    if mixed.any():
-        cols = np.flatnonzero(mixed.any(axis=0))
-        sub = DoseField(fld.t_s, fld.grid[:, cols, :], fld.corners, fld.weights, fld.low, fld.high)
-        t[:, cols] = np.where(mixed[:, cols], sub.crossing(limit), t[:, cols])
-    return t
 
 
 def _pair_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float, loc: np.ndarray, nodes: np.ndarray,
@@ -673,6 +661,27 @@ def exact_dose_times(prep: Prepared, criterion: Criterion, fac: dict[str, np.nda
     return out
 
 
+def _exact_all_draws(prep: Prepared, criterion: Criterion, fac: dict[str, np.ndarray], rows: np.ndarray,
+                     S: int) -> np.ndarray:
+    """(len(rows), S) exact crossings of every draw at ``rows``, in blocks of draws.
+
+    Each block's corrected series are (draws, locations, time) by broadcasting (no
+    gather), integrated with the trapezoidal rule and searched, as a per-draw loop would.
+    """
+    t = prep.t_s
+    N, L = len(t), rows.size
+    names = dose_names(prep, criterion)
+    out = np.empty((L, S))
+    per_block = max(1, EXACT_BLOCK_ELEMENTS // (N * L))
+    for start in range(0, S, per_block):
+        d = np.arange(start, min(S, start + per_block))
+        f = {q: fac[q][d][:, None, None] for q in names}
+        inputs = corrected_inputs(prep, names, f, rows)              # (draws, locations, time)
+        dose = cumulative_dose(criterion, t, inputs, (d.size, L, N)).reshape(-1, N)
+        out[:, d] = first_crossing(t, dose, criterion.limit).reshape(d.size, L).T
+    return out
+
+
 def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int, ok: np.ndarray,
                with_bound: bool = True) -> tuple[np.ndarray, np.ndarray | None]:
     """(L, S) dose crossing times and, per location, a proven bound of their error [s].
@@ -688,8 +697,9 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
        chord; the midpoint of their crossings is reported with half their distance as its
        bound (second order in the node spacing). A dose linear in its factor (ISO 13571 CO
        alone) is exact.
-    4. Every draw whose bound exceeds :data:`EXACT_TOLERANCE_S`, and every draw of a
-       location whose grid is not monotone, is integrated exactly
+    4. Every draw whose bound exceeds :data:`EXACT_TOLERANCE_S`, every draw of a
+       location whose dose is not monotone, and every draw when two or more factors vary
+       (the first-order corner bracket rarely proves the tolerance), is integrated exactly
        (:func:`exact_dose_times`), vectorised over those draws only, up to the latest
        time its crossing can be.
 
@@ -707,7 +717,13 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
     k = sum(1 for q in names if np.ptp(fac[q]) > 0)
     per_loc = 8 * len(prep.t_s) * GRID_NODES.get(k, 4) ** k * (3 if k == 1 else 1)   # with temporaries
     chunk = max(1, int(GRID_BYTES // per_loc))
-    t_first = prep.t_s[0]
+    if k >= 2:
+        # Several varying factors: the grid's corner bracket is first order in the node
+        # spacing and rarely proves EXACT_TOLERANCE_S, so every draw is integrated exactly
+        # (cheaper than a grid whose draws would nearly all be integrated anyway).
+        out[rows_all] = _exact_all_draws(prep, criterion, fac, rows_all, S)
+        bound[rows_all] = 0.0
+        return out, (bound if with_bound else None)
     for start in range(0, rows_all.size, chunk):
         rows = rows_all[start:start + chunk]
         fld = dose_field(prep, criterion, factors, S, rows)
@@ -716,22 +732,9 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
             out[rows] = np.where(np.isinf(out[rows]), np.nan, out[rows])
             continue
         single = False
-        kv = fld.pos.shape[1]
         varying = [q for q in names if np.ptp(fac[q]) > 0]
-        mono, convex, linear = dose_shape(prep, criterion, varying, rows)
-        if kv == 1:
-            t_rep, err, t_stop = _one_factor_times(fld, criterion.limit, mono, convex, linear)
-        else:
-            t_nodes = node_crossings(prep.t_s, fld.grid, criterion.limit)            # (M, Lc)
-            t_early = t_nodes[fld.high]      # upper corner of each sample's cell: most dose, earliest
-            t_late = t_nodes[fld.low]        # lower corner: least dose, latest
-            t_rep = _interpolated_times(fld, criterion.limit, t_early, t_late, t_first)
-            with np.errstate(invalid="ignore"):
-                err = np.maximum(np.nan_to_num(t_rep - t_early, nan=np.inf),
-                                 np.nan_to_num(t_late - t_rep, nan=np.inf))
-            err = np.where(np.isfinite(t_early), err, 0.0)
-            err = np.where(mono[None, :], err, np.inf)          # no proven bracket: integrate every draw
-            t_stop = np.where(mono[None, :], t_late, np.inf)
+        mono, convex, linear = dose_shape(prep, criterion, varying, rows, {q: float(fac[q].max()) for q in varying})
+        t_rep, err, t_stop = _one_factor_times(fld, criterion.limit, mono, convex, linear)
         need = err > EXACT_TOLERANCE_S
         if need.any():
             s_idx, c_idx = np.nonzero(need)
