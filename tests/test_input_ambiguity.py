@@ -37,14 +37,6 @@ def test_duplicate_series_key_in_a_location(kit, make_study, expect_input_error)
     assert f"study.yaml:{second} scenarios[0].locations[0].co: error: found the key 'co' twice" in err
 
 
-def test_duplicate_key_in_a_criteria_file(kit, make_study, expect_input_error):
-    crit = ("name: twice\ndescription: illustrative\nsources: [common practice]\ncriteria:\n"
-            "  temperature: {limit: 60 degC}\n  temperature: {limit: 90 degC}\n")
-    text = kit.study.replace("criteria: general-2m", "criteria: crit.yaml")
-    err = expect_input_error(make_study(text, extra={"crit.yaml": crit}))
-    assert "crit.yaml:6 criteria.temperature: error: found the key 'temperature' twice (lines 5 and 6)" in err
-
-
 @pytest.mark.parametrize("value", [".nan", ".inf", "-.inf", ".NaN"])
 def test_non_finite_yaml_number(kit, make_study, expect_input_error, value):
     text = kit.study.replace("seed: 3", f"seed: {value}")
@@ -52,12 +44,23 @@ def test_non_finite_yaml_number(kit, make_study, expect_input_error, value):
     assert f"study.yaml:{kit.line_of(text, 'seed:')} seed: error: found '{value}', which is not a finite number" in err
 
 
-def test_non_finite_number_in_an_uncertainty_file(kit, make_study, expect_input_error):
-    table = ("source: illustrative\ndistribution: lognormal\nquantities:\n"
-             "  temperature: {bias: 1.03, sigma_model: .nan, sigma_exp: 0.07}\n")
-    text = kit.study.replace("samples: 200", "samples: 200\nuncertainty: unc.yaml")
-    err = expect_input_error(make_study(text, extra={"unc.yaml": table}))
-    assert "unc.yaml:4 quantities.temperature.sigma_model: error: found '.nan'" in err
+_CRIT_TWICE = ("name: twice\ndescription: illustrative\nsources: [common practice]\ncriteria:\n"
+               "  temperature: {limit: 60 degC}\n  temperature: {limit: 90 degC}\n")
+_UNC_NAN = ("source: illustrative\ndistribution: lognormal\nquantities:\n"
+            "  temperature: {bias: 1.03, sigma_model: .nan, sigma_exp: 0.07}\n")
+
+
+@pytest.mark.parametrize("old, new, name, body, words", [
+    ("criteria: general-2m", "criteria: crit.yaml", "crit.yaml", _CRIT_TWICE,
+     "crit.yaml:6 criteria.temperature: error: found the key 'temperature' twice (lines 5 and 6)"),
+    ("samples: 200", "samples: 200\nuncertainty: unc.yaml", "unc.yaml", _UNC_NAN,
+     "unc.yaml:4 quantities.temperature.sigma_model: error: found '.nan'"),
+])
+def test_every_yaml_file_read_is_checked_the_same_way(kit, make_study, expect_input_error, old, new, name, body,
+                                                      words):
+    """A criteria file and an uncertainty file go through the same reader as the study."""
+    err = expect_input_error(make_study(kit.study.replace(old, new), extra={name: body}))
+    assert words in err
 
 
 @pytest.mark.parametrize("quantity", ["1e999 s", "-1e400 s"])
