@@ -527,3 +527,16 @@ def test_data_rows_wider_than_the_names_row(kit, make_study, expect_input_error)
     rows = [r + ["7"] for r in kit.rows()]
     err = expect_input_error(make_study(csv=kit.csv_text(rows=rows)))
     assert "fire-a.csv:2: error: cannot read as CSV: line 2 has 8 fields and the names row 7" in err
+
+
+@pytest.mark.parametrize("criteria, key", [
+    ("{base: general-2m, visibility: {limit: 0 m}}", "criteria.visibility.limit"),
+    ("{base: general-2m, visibility: {limit: -5 m}}", "criteria.visibility.limit"),
+    ("{base: general-2m, layer_height: {limit: 0 m}}", "criteria.layer_height.limit"),
+    ("{base: general-2m, only: []}", "criteria.only"),
+])
+def test_criteria_run_cannot_apply(kit, make_study, expect_input_error, criteria, key):
+    """Issue 13 item 5: validate said OK, run crashed with a traceback."""
+    text = kit.study.replace("criteria: general-2m", f"criteria: {criteria}")
+    err = expect_input_error(make_study(text))
+    assert f"study.yaml:{kit.line_of(text, 'criteria:')} {key}: error: " in err

@@ -325,6 +325,8 @@ def check_study(path: str | Path) -> tuple[Study | None, list[ScenarioSpec], lis
     # Report fields are checked before the error count, so a map or list there is an error, not a blank.
     for key in ("reference", "prepared_by", "prepared_for"):
         ck.text(data.get(key), (key,))
+    if criteria is not None:
+        _usable_criteria(ck, criteria, data.get("criteria"))
     errors = [p for p in ck.problems if not p.warning]
     if errors or criteria is None:
         return None, scenarios, ck.problems
@@ -335,6 +337,17 @@ def check_study(path: str | Path) -> tuple[Study | None, list[ScenarioSpec], lis
                  prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),
                  paper="letter" if paper.lower() == "letter" else "A4", max_grid_change=max_grid_change,
                  warnings=[p for p in ck.problems if p.warning]), scenarios, ck.problems
+
+
+def _usable_criteria(ck, criteria: CriteriaSet, given) -> None:
+    """Errors for criteria the engine cannot apply: none left (``only: []``), or a limit of
+    zero or less where only a positive one means anything (every criterion but temperature)."""
+    if not criteria.items:
+        kp = ("criteria", "only") if isinstance(given, dict) and "only" in given else ("criteria",)
+        ck.err(kp, "no criterion is left to apply; expected at least one criterion id in 'only'")
+    for cid, c in criteria.items.items():
+        if cid != "temperature" and not c.limit > 0:
+            ck.err(("criteria", cid, "limit"), f"found '{c.limit_text}' for '{cid}'; expected a limit above zero")
 
 
 def _int(ck, value, kp, low, what):
