@@ -540,3 +540,11 @@ def test_criteria_run_cannot_apply(kit, make_study, expect_input_error, criteria
     text = kit.study.replace("criteria: general-2m", f"criteria: {criteria}")
     err = expect_input_error(make_study(text))
     assert f"study.yaml:{kit.line_of(text, 'criteria:')} {key}: error: " in err
+
+
+def test_ambient_below_absolute_zero(kit, make_study, expect_input_error):
+    """-300 degC is below absolute zero (-273.15 degC, the kelvin's definition)."""
+    text = kit.study.replace("    time: {column", "    ambient: {temperature: -300 degC}\n    time: {column")
+    err = expect_input_error(make_study(text))
+    assert f"study.yaml:{kit.line_of(text, 'ambient:')} scenarios[0].ambient.temperature: error: found '-300 degC', " \
+           "at or below absolute zero" in err

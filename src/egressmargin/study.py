@@ -436,6 +436,10 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
         if "ambient" in sc and ck.keys(sc["ambient"], kp + ("ambient",), {"temperature", "o2"}, "ambient"):
             if "temperature" in sc["ambient"]:
                 amb_t = ck.quantity(sc["ambient"]["temperature"], kp + ("ambient", "temperature"), "temperature")
+                if amb_t is not None and amb_t <= -273.15:
+                    ck.err(kp + ("ambient", "temperature"), f"found {_show(sc['ambient']['temperature'])}, at or "
+                           "below absolute zero; expected an ambient air temperature")
+                    amb_t = None
             if "o2" in sc["ambient"]:
                 amb_o2 = ck.quantity(sc["ambient"]["o2"], kp + ("ambient", "o2"), "o2")
                 if amb_o2 is not None and not 0 < amb_o2 <= 1:
