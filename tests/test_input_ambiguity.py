@@ -548,3 +548,28 @@ def test_ambient_below_absolute_zero(kit, make_study, expect_input_error):
     err = expect_input_error(make_study(text))
     assert f"study.yaml:{kit.line_of(text, 'ambient:')} scenarios[0].ambient.temperature: error: found '-300 degC', " \
            "at or below absolute zero" in err
+
+
+@pytest.mark.parametrize("transform", ["bom", "crlf", "bom+crlf"])
+def test_byte_order_mark_and_windows_line_ends_are_read(kit, make_study, transform):
+    """Spreadsheet exports often start with a UTF-8 byte order mark and end lines with CR LF."""
+    from egressmargin.histories import read_scenario
+    from egressmargin.study import load_study
+
+    csv = kit.csv
+    if "crlf" in transform:
+        csv = csv.replace("\n", "\r\n")
+    study = make_study(csv=False)
+    raw = (b"\xef\xbb\xbf" if "bom" in transform else b"") + csv.encode()
+    (study.parent / "fire-a.csv").write_bytes(raw)
+    data, _ = read_scenario(load_study(study).scenarios[0])
+    assert data.rows == 60 and data.series["temperature"][0][20] == pytest.approx(60.0)
+
+
+def test_latin1_degree_sign_is_an_input_error(kit, make_study, expect_input_error):
+    """A Latin-1 '°' (byte 0xB0) is not UTF-8: say so, naming the line."""
+    study = make_study(csv=False)
+    raw = kit.csv.replace("T_stair [degC]", "T_stair [\u00b0C]").encode("latin-1")
+    (study.parent / "fire-a.csv").write_bytes(raw)
+    err = expect_input_error(study)
+    assert "fire-a.csv:1: error: cannot read line 1 as UTF-8 text" in err
