@@ -37,14 +37,6 @@ def test_duplicate_series_key_in_a_location(kit, make_study, expect_input_error)
     assert f"study.yaml:{second} scenarios[0].locations[0].co: error: found the key 'co' twice" in err
 
 
-def test_duplicate_key_in_a_criteria_file(kit, make_study, expect_input_error):
-    crit = ("name: twice\ndescription: illustrative\nsources: [common practice]\ncriteria:\n"
-            "  temperature: {limit: 60 degC}\n  temperature: {limit: 90 degC}\n")
-    text = kit.study.replace("criteria: general-2m", "criteria: crit.yaml")
-    err = expect_input_error(make_study(text, extra={"crit.yaml": crit}))
-    assert "crit.yaml:6 criteria.temperature: error: found the key 'temperature' twice (lines 5 and 6)" in err
-
-
 @pytest.mark.parametrize("value", [".nan", ".inf", "-.inf", ".NaN"])
 def test_non_finite_yaml_number(kit, make_study, expect_input_error, value):
     text = kit.study.replace("seed: 3", f"seed: {value}")
@@ -52,12 +44,23 @@ def test_non_finite_yaml_number(kit, make_study, expect_input_error, value):
     assert f"study.yaml:{kit.line_of(text, 'seed:')} seed: error: found '{value}', which is not a finite number" in err
 
 
-def test_non_finite_number_in_an_uncertainty_file(kit, make_study, expect_input_error):
-    table = ("source: illustrative\ndistribution: lognormal\nquantities:\n"
-             "  temperature: {bias: 1.03, sigma_model: .nan, sigma_exp: 0.07}\n")
-    text = kit.study.replace("samples: 200", "samples: 200\nuncertainty: unc.yaml")
-    err = expect_input_error(make_study(text, extra={"unc.yaml": table}))
-    assert "unc.yaml:4 quantities.temperature.sigma_model: error: found '.nan'" in err
+_CRIT_TWICE = ("name: twice\ndescription: illustrative\nsources: [common practice]\ncriteria:\n"
+               "  temperature: {limit: 60 degC}\n  temperature: {limit: 90 degC}\n")
+_UNC_NAN = ("source: illustrative\ndistribution: lognormal\nquantities:\n"
+            "  temperature: {bias: 1.03, sigma_model: .nan, sigma_exp: 0.07}\n")
+
+
+@pytest.mark.parametrize("old, new, name, body, words", [
+    ("criteria: general-2m", "criteria: crit.yaml", "crit.yaml", _CRIT_TWICE,
+     "crit.yaml:6 criteria.temperature: error: found the key 'temperature' twice (lines 5 and 6)"),
+    ("samples: 200", "samples: 200\nuncertainty: unc.yaml", "unc.yaml", _UNC_NAN,
+     "unc.yaml:4 quantities.temperature.sigma_model: error: found '.nan'"),
+])
+def test_every_yaml_file_read_is_checked_the_same_way(kit, make_study, expect_input_error, old, new, name, body,
+                                                      words):
+    """A criteria file and an uncertainty file go through the same reader as the study."""
+    err = expect_input_error(make_study(kit.study.replace(old, new), extra={name: body}))
+    assert words in err
 
 
 @pytest.mark.parametrize("quantity", ["1e999 s", "-1e400 s"])
@@ -524,3 +527,49 @@ def test_data_rows_wider_than_the_names_row(kit, make_study, expect_input_error)
     rows = [r + ["7"] for r in kit.rows()]
     err = expect_input_error(make_study(csv=kit.csv_text(rows=rows)))
     assert "fire-a.csv:2: error: cannot read as CSV: line 2 has 8 fields and the names row 7" in err
+
+
+@pytest.mark.parametrize("criteria, key", [
+    ("{base: general-2m, visibility: {limit: 0 m}}", "criteria.visibility.limit"),
+    ("{base: general-2m, visibility: {limit: -5 m}}", "criteria.visibility.limit"),
+    ("{base: general-2m, layer_height: {limit: 0 m}}", "criteria.layer_height.limit"),
+    ("{base: general-2m, only: []}", "criteria.only"),
+])
+def test_criteria_run_cannot_apply(kit, make_study, expect_input_error, criteria, key):
+    """Issue 13 item 5: validate said OK, run crashed with a traceback."""
+    text = kit.study.replace("criteria: general-2m", f"criteria: {criteria}")
+    err = expect_input_error(make_study(text))
+    assert f"study.yaml:{kit.line_of(text, 'criteria:')} {key}: error: " in err
+
+
+def test_ambient_below_absolute_zero(kit, make_study, expect_input_error):
+    """-300 degC is below absolute zero (-273.15 degC, the kelvin's definition)."""
+    text = kit.study.replace("    time: {column", "    ambient: {temperature: -300 degC}\n    time: {column")
+    err = expect_input_error(make_study(text))
+    assert f"study.yaml:{kit.line_of(text, 'ambient:')} scenarios[0].ambient.temperature: error: found '-300 degC', " \
+           "at or below absolute zero" in err
+
+
+@pytest.mark.parametrize("transform", ["bom", "crlf", "bom+crlf"])
+def test_byte_order_mark_and_windows_line_ends_are_read(kit, make_study, transform):
+    """Spreadsheet exports often start with a UTF-8 byte order mark and end lines with CR LF."""
+    from egressmargin.histories import read_scenario
+    from egressmargin.study import load_study
+
+    csv = kit.csv
+    if "crlf" in transform:
+        csv = csv.replace("\n", "\r\n")
+    study = make_study(csv=False)
+    raw = (b"\xef\xbb\xbf" if "bom" in transform else b"") + csv.encode()
+    (study.parent / "fire-a.csv").write_bytes(raw)
+    data, _ = read_scenario(load_study(study).scenarios[0])
+    assert data.rows == 60 and data.series["temperature"][0][20] == pytest.approx(60.0)
+
+
+def test_latin1_degree_sign_is_an_input_error(kit, make_study, expect_input_error):
+    """A Latin-1 '°' (byte 0xB0) is not UTF-8: say so, naming the line."""
+    study = make_study(csv=False)
+    raw = kit.csv.replace("T_stair [degC]", "T_stair [\u00b0C]").encode("latin-1")
+    (study.parent / "fire-a.csv").write_bytes(raw)
+    err = expect_input_error(study)
+    assert "fire-a.csv:1: error: cannot read line 1 as UTF-8 text" in err

@@ -108,14 +108,14 @@ def _listing(names) -> str:
     return shown + (f" … ({len(names)} columns)" if len(names) > NAMES_LISTED else "")
 
 
-def _first_lines(raw: bytes, n: int) -> list[bytes]:
-    """The first ``n`` lines of ``raw`` without splitting the whole file."""
-    out, pos = [], 0
-    while len(out) < n and pos < len(raw):
-        end = raw.find(b"\n", pos)
-        end = len(raw) if end < 0 else end
-        out.append(raw[pos:end].rstrip(b"\r"))
-        pos = end + 1
+def _first_lines(path: Path, n: int) -> list[bytes]:
+    """The first ``n`` lines of the file (without line ends), without reading the rest."""
+    out = []
+    with open(path, "rb") as fh:
+        for line in fh:
+            out.append(line.rstrip(b"\r\n"))
+            if len(out) == n:
+                break
     return out
 
 
@@ -145,7 +145,7 @@ def _looks_like_units(cells: list[str], decimal: str) -> bool:
     return known * 2 >= len(filled)
 
 
-def _layout(spec, raw: bytes, fname: str, wanted: list[str]):
+def _layout(spec, head: list[bytes], fname: str, wanted: list[str]):
     """Where the names, the units row and the data are; one clear hint when the file's layout is not
     the one declared (a units row above or below the names, another delimiter).
 
@@ -157,7 +157,7 @@ def _layout(spec, raw: bytes, fname: str, wanted: list[str]):
     decimal = getattr(spec, "decimal", ".") or "."
     declared = spec.units_row            # False, "above" or "below" (true means below)
     declared = "below" if declared is True else declared
-    lines = _first_lines(raw, 3)
+    lines = head
     if not lines or not lines[0].strip():
         raise InputError([Problem(fname, "no columns found; expected a header row naming the columns")])
     rows = [_cells(line, delimiter, fname, i + 1) for i, line in enumerate(lines)]
@@ -224,7 +224,7 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
     problems: list[Problem] = []
     fname = str(path)
     try:
-        raw = path.read_bytes()
+        head = _first_lines(path, 3)
     except FileNotFoundError:
         raise InputError([Problem(fname, "file not found; expected the scenario's CSV histories")]) from None
     except OSError as exc:
@@ -236,8 +236,8 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
     for loc in spec.locations:
         wanted += [ref.column for ref in loc.series.values()]
         wanted += loc.profile.columns if loc.profile is not None else []
-    names, units_cells, names_line, units_at, line0 = _layout(spec, raw, fname, wanted)
-    digest = _check_field_counts(raw, path, fname, delimiter, skip=names_line - 1)
+    names, units_cells, names_line, units_at, line0 = _layout(spec, head, fname, wanted)
+    digest, filled = _scan(path, fname, delimiter, skip=names_line - 1)
     split = [_split_header(h) for h in names]
 
     def candidates(col: str) -> list[int]:
@@ -273,7 +273,7 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
     elif needed:
         n = len(as_text())
     else:
-        n = max(sum(1 for line in raw.splitlines() if line.strip()) - len(skip), 0)
+        n = max(filled - len(skip), 0)
     decimal_hint = []
 
     def unit_of(ref, quantity, what, i):
@@ -402,27 +402,40 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
 _DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+(?:[eE][-+]?\d+)?$")
 
 
-def _check_field_counts(raw: bytes, path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> str:
-    """Raise InputError for a row with more fields than the names row; return the SHA-256.
+def _scan(path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> tuple[str, int]:
+    """Read the file once, line by line: its SHA-256 and its number of non-blank lines.
 
-    Reading only the mapped columns would otherwise let a ragged row shift values into the
-    wrong column silently. Counting delimiters is cheap; only the lines whose count differs
-    from the names row's (line ``skip`` + 1) are parsed as CSV, so that quoted fields
-    holding delimiters are not mistaken for errors. A shorter row leaves blanks, which are
-    reported where a mapped column needs a number.
+    Raises InputError for a row with more fields than the names row (line ``skip`` + 1):
+    reading only the mapped columns would otherwise let a ragged row shift values into the
+    wrong column silently. Counting delimiters is cheap; only lines whose count differs
+    from the names row's are parsed as CSV, so that quoted fields holding delimiters are
+    not mistaken for errors. A shorter row leaves blanks, which are reported where a
+    mapped column needs a number. The file is never held whole in memory.
     """
     import pandas as pd
 
-    digest = hashlib.sha256(raw).hexdigest()
-    lines = raw.splitlines()
-    if len(lines) <= skip:
-        return digest
+    h = hashlib.sha256()
     sep = delimiter.encode()
-    n_sep = lines[skip].count(sep)
-    odd = [i for i, line in enumerate(lines) if line.strip() and line.count(sep) != n_sep]
-    if not odd:
-        return digest
-    if any(b'"' in lines[i] for i in odd + [skip]):
+    names, n_sep, wide, filled, quoted = b"", None, None, 0, False
+    with open(path, "rb") as fh:
+        for i, line in enumerate(fh):
+            h.update(line)
+            if i < skip or not line.strip():
+                continue
+            filled += 1
+            if n_sep is None:
+                names, n_sep = line, line.count(sep)
+                quoted = b'"' in line
+            elif line.count(sep) != n_sep:
+                if quoted or b'"' in line:
+                    quoted = True          # a quoted field may hold delimiters (or line breaks)
+                elif line.count(sep) > n_sep and wide is None:
+                    wide = (i, line)       # without quotes, more delimiters is more fields
+    filled += skip
+    digest = h.hexdigest()
+    if wide is None and not quoted:
+        return digest, filled
+    if quoted:
         # quotes may span lines: let the full parser judge
         try:
             pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, sep=delimiter,
@@ -430,19 +443,15 @@ def _check_field_counts(raw: bytes, path: Path, fname: str, delimiter: str = ","
         except Exception as exc:
             raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected a "
                                       "delimited file with one field per column on every line")]) from None
-        return digest
+        return digest, filled
 
-    def fields(i):
-        text = lines[i].decode("utf-8", errors="replace")
-        return len(next(csv.reader([text], delimiter=delimiter), []))
+    def fields(line):
+        return len(next(csv.reader([line.decode("utf-8", errors="replace")], delimiter=delimiter), []))
 
-    width = fields(skip)
-    for i in odd:
-        if fields(i) > width:
-            raise InputError([Problem(f"{fname}:{i + 1}", f"cannot read as CSV: line {i + 1} has {fields(i)} fields "
-                                      f"and the names row {width}; expected at most one field per column (a "
-                                      "delimiter inside a number? check the delimiter and decimal mark)")])
-    return digest
+    i, line = wide
+    raise InputError([Problem(f"{fname}:{i + 1}", f"cannot read as CSV: line {i + 1} has {fields(line)} fields and "
+                              f"the names row {fields(names)}; expected at most one field per column (a delimiter "
+                              "inside a number? check the delimiter and decimal mark)")])
 
 
 def _plausible(key, values, ref, info, fname, line0, problems):

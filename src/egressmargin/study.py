@@ -388,6 +388,8 @@ def check_study(path: str | Path, criteria_override: str | None = None
     # Report fields are checked before the error count, so a map or list there is an error, not a blank.
     for key in ("reference", "prepared_by", "prepared_for"):
         ck.text(data.get(key), (key,))
+    if criteria is not None:
+        _usable_criteria(ck, criteria, data.get("criteria"))
     errors = [p for p in ck.problems if not p.warning]
     if errors or criteria is None:
         return None, scenarios, ck.problems
@@ -398,6 +400,17 @@ def check_study(path: str | Path, criteria_override: str | None = None
                  prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),
                  paper="letter" if paper.lower() == "letter" else "A4", max_grid_change=max_grid_change,
                  warnings=[p for p in ck.problems if p.warning], elements=named), scenarios, ck.problems
+
+
+def _usable_criteria(ck, criteria: CriteriaSet, given) -> None:
+    """Errors for criteria the engine cannot apply: none left (``only: []``), or a limit of
+    zero or less where only a positive one means anything (every criterion but temperature)."""
+    if not criteria.items:
+        kp = ("criteria", "only") if isinstance(given, dict) and "only" in given else ("criteria",)
+        ck.err(kp, "no criterion is left to apply; expected at least one criterion id in 'only'")
+    for cid, c in criteria.items.items():
+        if cid != "temperature" and not c.limit > 0:
+            ck.err(("criteria", cid, "limit"), f"found '{c.limit_text}' for '{cid}'; expected a limit above zero")
 
 
 def _int(ck, value, kp, low, what):
@@ -486,6 +499,10 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
         if "ambient" in sc and ck.keys(sc["ambient"], kp + ("ambient",), {"temperature", "o2"}, "ambient"):
             if "temperature" in sc["ambient"]:
                 amb_t = ck.quantity(sc["ambient"]["temperature"], kp + ("ambient", "temperature"), "temperature")
+                if amb_t is not None and amb_t <= -273.15:
+                    ck.err(kp + ("ambient", "temperature"), f"found {_show(sc['ambient']['temperature'])}, at or "
+                           "below absolute zero; expected an ambient air temperature")
+                    amb_t = None
             if "o2" in sc["ambient"]:
                 amb_o2 = ck.quantity(sc["ambient"]["o2"], kp + ("ambient", "o2"), "o2")
                 if amb_o2 is not None and not 0 < amb_o2 <= 1:
