@@ -156,7 +156,7 @@ def test_summary_rows_print_the_results_numbers(rendered, fixture_data):
             lo, hi = rt["p_fail_ci95"]
             row = "".join([
                 sc["id"], rt["id"], marks[rt["verdict"]], fmt.fmt_prob(rt["p_fail"]),
-                fmt.fmt_prob(lo), "–", fmt.fmt_prob(hi),
+                "(", fmt.fmt_prob(lo), "–", fmt.fmt_prob(hi), ")",
                 fmt.fmt_time(rt["rset_s"]["p95"]), fmt.fmt_time(rt["aset_s"]["p05"], end),
                 fmt.fmt_route_margin(route_margin(rt)),
             ])
@@ -240,9 +240,31 @@ def test_running_header_footer_and_contents_page_numbers(rendered, fixture_data)
 
 def test_summary_is_at_most_two_pages(rendered):
     pages = rendered["pages"]
-    start = next(i for i, p in enumerate(pages) if "1Summary" in squash(p))
-    basis = next(i for i, p in enumerate(pages) if "2Basisofdesign" in squash(p))
+    start = next(i for i, p in enumerate(pages) if "Verdictperscenarioandroute" in squash(p))
+    basis = next(i for i, p in enumerate(pages) if "2.1Designfiresandscenarios" in squash(p))
     assert basis - start <= 2
+
+
+def test_summary_stays_within_two_pages_for_many_routes(tmp_path):
+    """Eight scenarios of four routes each (32 verdicts): the summary still fits two pages."""
+    results, plotdata = make_fixture(n_locations=3, samples=200, credibility=False)
+    base = results["scenarios"]
+    results["scenarios"] = []
+    for k in range(4):
+        for sc in base:
+            sc = copy.deepcopy(sc)
+            sc["id"] = f"{sc['id']}-{k}"
+            for rt in list(sc["routes"]):
+                extra = copy.deepcopy(rt)
+                extra["id"] = f"{rt['id']}-2"
+                sc["routes"].append(extra)
+            results["scenarios"].append(sc)
+    paths = render_report(results, {}, tmp_path)
+    pages = [p.extract_text() or "" for p in pypdf.PdfReader(str(paths["pdf"])).pages]
+    start = next(i for i, p in enumerate(pages) if "Verdictperscenarioandroute" in squash(p))
+    basis = next(i for i, p in enumerate(pages) if "2.1Designfiresandscenarios" in squash(p))
+    assert sum(len(sc["routes"]) for sc in results["scenarios"]) == 32
+    assert basis - start <= 2, basis - start
 
 
 def test_basis_of_design_shows_design_fire_and_egress_inputs(rendered, fixture_data):

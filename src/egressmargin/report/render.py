@@ -341,7 +341,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         })
 
     credibility = _credibility(scenarios_in, plotdata, figs)
-    not_supplied = sorted(na_groups.values(), key=lambda r: (not r["routes"], r["location"]))
+    not_supplied = _not_supplied_rows(na_groups)
     verdicts = [_verdict_word(r["verdict"]) for r in summary_rows]
     corrected = isinstance(uncertainty, Mapping)
 
@@ -372,7 +372,9 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "cautions": list(CAUTIONS),
         "scenarios": scenarios,
         "summary_rows": summary_rows,
-        "conclusions": conclusions,
+        "conclusions": [r for r in conclusions if r["verdict"] != "pass"],
+        "clear_passes": [r for r in conclusions if r["verdict"] == "pass" and not r["not_assessed"]],
+        "partial_passes": [r for r in conclusions if r["verdict"] == "pass" and r["not_assessed"]],
         "n_fail": verdicts.count("fail"),
         "n_pass": verdicts.count("pass"),
         "n_indeterminate": verdicts.count("indeterminate"),
@@ -549,7 +551,8 @@ def _matrix_row(loc, name, criterion_ids, routes) -> dict[str, Any]:
 
 
 def _collect_not_supplied(groups, sid, lid, loc, name, routes) -> None:
-    """Group what a location lacks (criteria not assessed, doses without a gas) across scenarios."""
+    """Group what locations lack (criteria not assessed, doses without a gas): one row per
+    distinct pattern, with every location and scenario that shows it."""
     crit = loc.get("criteria") or {}
     na = [(cid, tuple(c.get("missing_series") or [])) for cid, c in crit.items()
           if str(c.get("status")) == "not assessed"]
@@ -557,16 +560,28 @@ def _collect_not_supplied(groups, sid, lid, loc, name, routes) -> None:
                if str(c.get("status")) != "not assessed" and c.get("missing_series")]
     if not na and not partial:
         return
-    key = (lid, tuple(na), tuple(partial))
-    row = groups.setdefault(key, {
-        "location": name, "location_id": lid,
+    row = groups.setdefault((tuple(na), tuple(partial)), {
+        "locations": [], "names": {},
         "not_assessed": [f"{_label(cid)} (needs {', '.join(ms) or 'its series'})" for cid, ms in na],
         "partial": [f"{_label(cid)} without {', '.join(ms)}" for cid, ms in partial],
         "scenarios": [], "routes": []})
-    row["scenarios"].append(sid)
-    for r in routes:
-        if r not in row["routes"]:
-            row["routes"].append(r)
+    if lid not in row["locations"]:
+        row["locations"].append(lid)
+        row["names"][lid] = name
+    for key, values in (("scenarios", [sid]), ("routes", routes)):
+        for v in values:
+            if v not in row[key]:
+                row[key].append(v)
+
+
+def _not_supplied_rows(groups) -> list[dict[str, Any]]:
+    rows = []
+    for row in groups.values():
+        locs = row["locations"]
+        row["location"] = row["names"][locs[0]] if len(locs) == 1 else \
+            f"{len(locs)} locations: " + ", ".join(locs)
+        rows.append(row)
+    return sorted(rows, key=lambda r: (not r["routes"], -len(r["locations"])))
 
 
 def _location_figure(figs, sid, loc, name, end_s, t_s, specs) -> dict[str, Any] | None:
