@@ -133,7 +133,8 @@ def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, quantiles:
 
     ``quantiles`` overrides the uniform of an input (detection, alarm, premovement,
     occupants, flow_factor, speed_factor, or ``premovement.<parameter>``); ``scale``
-    multiplies ``occupants``, ``flow_factor`` or ``speed_factor`` (a +/-10 % sweep).
+    multiplies ``occupants``, ``flow_factor`` or ``speed_factor`` (a +/-10 % sweep), by a
+    number or by one per draw (shape (S,)).
 
     Notes
     -----
@@ -194,7 +195,8 @@ def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDr
     """RSET of every route of a scenario, routes that share named elements merged.
 
     ``quantiles``/``scale`` are per route (see :func:`route_inputs`); ``width_scale``
-    multiplies the effective width (hence capacity) of the named nodes given.
+    multiplies the effective width (hence capacity) of the named nodes given, by a
+    number or by one per draw (shape (S,)).
 
     Notes
     -----
@@ -462,66 +464,146 @@ def factor_sweep_rows(factor_ppfs: dict) -> tuple[dict[str, np.ndarray], list[tu
     return rows, index
 
 
-def sensitivity(route: RouteSpec, routes: list[RouteSpec], prep, sweep_factors, sweep_index, sweep_loc_aset,
-                labels: dict, named: dict | None = None) -> list[dict]:
-    """One-at-a-time swing of the route's margin (at median inputs) for each uncertain input.
+@dataclass(frozen=True)
+class SweepSetting:
+    """One row of a route's sensitivity table: an egress input at its low and its high value.
 
-    Every route of the scenario is evaluated together (they may share elements); only
-    the swept input of this route moves. Uncertain inputs are swept between their 5th
-    and 95th percentiles; occupant count, walking speed, flow capacity and the
-    effective width of the route's controlling element, when certain, by +/-10 %.
+    Attributes
+    ----------
+    label, low_name, high_name : str
+        The input's name in the table and the names of its two settings.
+    kind : str
+        "quantile": ``key`` is an input of :func:`route_inputs` (or
+        ``premovement.<parameter>``) and ``low``/``high`` its uniforms [-]; "scale":
+        ``key`` is occupants, flow_factor or speed_factor and ``low``/``high``
+        multipliers [-]; "width": ``key`` is a path node and ``low``/``high``
+        multipliers of its effective width [-].
     """
-    k = routes.index(route)
-    n = len(routes)
-    R = len(next(iter(sweep_factors.values()))) if sweep_factors else 1
-    a = route_aset(sweep_loc_aset, prep.ids, route.exposed_at)
-    # Where no limit is reached before the histories end, the margin is at least the
-    # time left: use the end time, and say that these margins are lower bounds.
-    censored = ~np.isfinite(a)
-    a = np.where(censored, prep.t_s[-1], a)
-    rset = scenario_egress(routes, prep, sweep_factors, [EgressDraws.median(R)] * n, named).routes[route.id].rset
-    margin = a - rset
-    base = float(margin[0])
-    rows = []
-    for key, lo, hi in sweep_index:
-        rows.append(_swing(labels.get(key, key), "p05", "p95", margin[lo], margin[hi]))
-    base_f = {key: v[:1] for key, v in sweep_factors.items()}
-    a0 = float(a[0])
 
-    def margin_with(quantiles=None, scale=None, width=None) -> float:
-        q = [None] * n
-        sc = [None] * n
-        q[k], sc[k] = quantiles, scale
-        eg = scenario_egress(routes, prep, base_f, [EgressDraws.median(1)] * n, named, q, sc, width)
-        return a0 - float(eg.routes[route.id].rset[0])
+    label: str
+    low_name: str
+    high_name: str
+    kind: str
+    key: str
+    low: float
+    high: float
 
-    sweeps = []
+
+def sweep_settings(route: RouteSpec) -> list[SweepSetting]:
+    """The route's egress inputs swept one at a time, in the table's order before sorting.
+
+    Uncertain inputs are swept between their 5th and 95th percentiles; occupant count,
+    walking speed and flow capacity, when certain, and the effective width of the
+    route's controlling element by +/-10 % (:data:`SWEEP_FRACTION`).
+    """
+    down, up = 1 - SWEEP_FRACTION, 1 + SWEEP_FRACTION
+    scaled, swept = [], []
     for name, spec in (("detection", route.detection), ("alarm", route.alarm)):
         if not (isinstance(spec, DetectorRule) or dist.is_fixed(spec)):
-            sweeps.append((f"{name} time", {name: SWEEP_LOW}, {name: SWEEP_HIGH}))
+            swept.append((f"{name} time", name))
     pre_plain = dist.with_parameters(route.premovement, {p: dist.median(sub) for p, sub in
                                                          dist.parameter_specs(route.premovement).items()})
     if not route.premovement_across and not dist.is_fixed(pre_plain):
-        sweeps.append(("premovement time", {"premovement": SWEEP_LOW}, {"premovement": SWEEP_HIGH}))
+        swept.append(("premovement time", "premovement"))
     for p, sub in dist.parameter_specs(route.premovement).items():
         if not dist.is_fixed(sub):
-            sweeps.append((f"premovement {p}", {f"premovement.{p}": SWEEP_LOW}, {f"premovement.{p}": SWEEP_HIGH}))
+            swept.append((f"premovement {p}", f"premovement.{p}"))
     for label, key, spec in (("occupant count", "occupants", route.occupants_dist or {"fixed": 1.0}),
                              ("walking speed", "speed_factor", route.speed_factor),
                              ("flow capacity", "flow_factor", route.flow_factor)):
         if dist.is_fixed(spec):
-            rows.append(_swing(label, "-10 %", "+10 %", margin_with(scale={key: 1 - SWEEP_FRACTION}),
-                               margin_with(scale={key: 1 + SWEEP_FRACTION})))
+            scaled.append(SweepSetting(label, "-10 %", "+10 %", "scale", key, down, up))
         else:
-            sweeps.append((label, {key: SWEEP_LOW}, {key: SWEEP_HIGH}))
-    for label, low, high in sweeps:
-        rows.append(_swing(label, "p05", "p95", margin_with(quantiles=low), margin_with(quantiles=high)))
+            swept.append((label, key))
     ctrl = int(np.argmin([element_properties(e)["capacity_p_s"] for e in route.path]))
-    node = _node(route, ctrl, route.path[ctrl])
-    rows.append(_swing(f"effective width of element {ctrl + 1} ({route.path[ctrl]['type']})", "-10 %", "+10 %",
-                       margin_with(width={node: 1 - SWEEP_FRACTION}), margin_with(width={node: 1 + SWEEP_FRACTION})))
-    rows.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
-    return [dict(r, base_margin_s=_finite(base), lower_bound=bool(censored.any())) for r in rows]
+    width = SweepSetting(f"effective width of element {ctrl + 1} ({route.path[ctrl]['type']})", "-10 %", "+10 %",
+                         "width", _node(route, ctrl, route.path[ctrl]), down, up)
+    return [*scaled, *(SweepSetting(label, "p05", "p95", "quantile", key, SWEEP_LOW, SWEEP_HIGH)
+                       for label, key in swept), width]
+
+
+#: The uniform streams of :class:`EgressDraws` a sweep can set (besides the parameters).
+_STREAMS = ("detection", "alarm", "premovement", "occupants", "flow_factor", "speed_factor")
+
+
+def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_index, sweep_loc_aset, labels: dict,
+                         named: dict | None = None, only: list[str] | None = None) -> dict[str, list[dict]]:
+    """One-at-a-time swing of each route's margin (at median inputs) for each uncertain input.
+
+    Parameters
+    ----------
+    routes : list of RouteSpec
+        Every route of the scenario: they are evaluated together (they may share
+        elements).
+    sweep_factors, sweep_index, sweep_loc_aset
+        Model-error factor rows of :func:`factor_sweep_rows` (row 0 all medians) and
+        the location ASETs [s] they give, shape (locations, rows).
+    labels : dict
+        Table words for the factor rows.
+    named : dict, optional
+        The study's named (shared) elements.
+    only : list of str, optional
+        Ids of the routes to sweep (default: all).
+
+    Returns
+    -------
+    dict
+        Route id -> the rows of its sensitivity table, largest swing first.
+
+    Notes
+    -----
+    Every setting is a row (a draw) of one flow run of the whole scenario: the factor
+    rows with all egress inputs at their medians, then two rows per
+    :func:`sweep_settings` entry of each swept route, in which only that route's input
+    moves (everything else at the median factors and medians). The flow model treats
+    draws independently, so this equals running the settings one at a time. Where no
+    limit is reached before the histories end, the margin is at least the time left:
+    the end time stands for the ASET, and the margins are flagged as lower bounds.
+    """
+    R0 = len(next(iter(sweep_factors.values()))) if sweep_factors else 1
+    swept = [k for k, r in enumerate(routes) if only is None or r.id in only]
+    settings = {k: sweep_settings(routes[k]) for k in swept}
+    R = R0 + 2 * sum(len(v) for v in settings.values())
+    factors = {key: np.concatenate([v, np.full(R - R0, v[0])]) for key, v in sweep_factors.items()}
+    streams = [{name: np.full(R, 0.5) for name in (*_STREAMS, *(f"premovement.{p}" for p in _PARAMETER_NAMES))}
+               for _ in routes]
+    scales = [{key: np.ones(R) for key in ("occupants", "flow_factor", "speed_factor")} for _ in routes]
+    widths: dict[str, np.ndarray] = {}
+    first_row: dict[int, list[int]] = {}
+    row = R0
+    for k, ss in settings.items():
+        first_row[k] = []
+        for st in ss:
+            target = (streams[k][st.key] if st.kind == "quantile" else scales[k][st.key] if st.kind == "scale"
+                      else widths.setdefault(st.key, np.ones(R)))
+            target[row], target[row + 1] = st.low, st.high
+            first_row[k].append(row)
+            row += 2
+    draws = [EgressDraws(*(st[name] for name in _STREAMS),
+                         parameters={p: st[f"premovement.{p}"] for p in _PARAMETER_NAMES}) for st in streams]
+    eg = scenario_egress(routes, prep, factors, draws, named, scale=scales, width_scale=widths)
+    out = {}
+    for k in swept:
+        route = routes[k]
+        rset = eg.routes[route.id].rset
+        a = route_aset(sweep_loc_aset, prep.ids, route.exposed_at)
+        censored = ~np.isfinite(a)
+        a = np.where(censored, prep.t_s[-1], a)
+        margin = a - rset[:R0]
+        rows = [_swing(labels.get(key, key), "p05", "p95", margin[lo], margin[hi]) for key, lo, hi in sweep_index]
+        a0 = float(a[0])
+        rows += [_swing(st.label, st.low_name, st.high_name, a0 - float(rset[r]), a0 - float(rset[r + 1]))
+                 for st, r in zip(settings[k], first_row[k])]
+        rows.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
+        out[route.id] = [dict(r, base_margin_s=_finite(margin[0]), lower_bound=bool(censored.any())) for r in rows]
+    return out
+
+
+def sensitivity(route: RouteSpec, routes: list[RouteSpec], prep, sweep_factors, sweep_index, sweep_loc_aset,
+                labels: dict, named: dict | None = None) -> list[dict]:
+    """The sensitivity table of one route (:func:`scenario_sensitivity` sweeping only it)."""
+    return scenario_sensitivity(routes, prep, sweep_factors, sweep_index, sweep_loc_aset, labels, named,
+                                only=[route.id])[route.id]
 
 
 def _finite(x) -> float | None:

@@ -304,6 +304,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     more = _MoreSamples(table, prep, crit, seed, index)
     s_max = max(study.max_samples, S)
     bigger: dict[int, object] = {}
+    sensitivities = None
     for ri, route in routes_here:
         eg, fac_r, s_used = egress, fac, S
         out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, eg.routes[route.id],
@@ -364,9 +365,11 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         entry["verdict_text"] = _verdict_text(entry, v, partial, undetected.mean() if undetected.size else 0.0)
         if route.along_route:
             entry["along_route"] = assess.along_route_dose(route, prep, crit, fac_r, s_used, eg.routes[route.id])
-        sf, si, sa = sweep
-        labels = {k: _label(k) for k in si_keys(si)}
-        entry["sensitivity"] = assess.sensitivity(route, specs_here, prep, sf, si, sa, labels, study.elements)
+        if sensitivities is None:          # every route's sweep in one flow run of the scenario
+            sf, si, sa = sweep
+            sensitivities = assess.scenario_sensitivity(specs_here, prep, sf, si, sa,
+                                                        {k: _label(k) for k in si_keys(si)}, study.elements)
+        entry["sensitivity"] = sensitivities[route.id]
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
     scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),

@@ -335,17 +335,18 @@ class NetElement:
         Walking length [m].
     k : float
         Speed constant [m/s].
-    effective_width_m : float
-        Effective width [m].
-    capacity_p_s : float
-        Flow capacity before any flow factor [persons/s].
+    effective_width_m : float or numpy.ndarray
+        Effective width [m]; scalar or shape (S,) (a width that differs by draw, as in
+        a sensitivity sweep).
+    capacity_p_s : float or numpy.ndarray
+        Flow capacity before any flow factor [persons/s]; scalar or shape (S,).
     """
 
     node: str
     length_m: float
     k: float
-    effective_width_m: float
-    capacity_p_s: float
+    effective_width_m: float | np.ndarray
+    capacity_p_s: float | np.ndarray
 
 
 @dataclass(frozen=True)
@@ -374,9 +375,16 @@ class NetRoute:
     speed_factor: np.ndarray
 
     @property
-    def controlling(self) -> int:
-        """Index of the element of least nominal capacity (the first if tied)."""
-        return int(np.argmin([e.capacity_p_s for e in self.elements]))
+    def controlling(self) -> int | np.ndarray:
+        """Index of the element of least nominal capacity (the first if tied).
+
+        An int; shape (S,), draw by draw, where some capacity differs by draw.
+        """
+        caps = [np.asarray(e.capacity_p_s, dtype=float) for e in self.elements]
+        if all(c.ndim == 0 for c in caps):
+            return int(np.argmin(caps))
+        S = self.starts_s.shape[0]
+        return np.argmin(np.stack([np.broadcast_to(c, (S,)) for c in caps]), axis=0)
 
 
 @dataclass
@@ -415,7 +423,7 @@ class RouteFlow:
     id: str
     elements: list[ElementPass]
     exit_s: np.ndarray
-    controlling: int
+    controlling: int | np.ndarray
 
 
 @dataclass
@@ -476,6 +484,7 @@ def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = Non
         if len({r for r, _ in us}) != len(us):
             raise ValueError(f"element '{node}' appears twice on route '{routes[us[0][0]].id}'")
     pos = [0] * len(routes)
+    ctrls = [route.controlling for route in routes]
     arrivals = [route.starts_s for route in routes]
     passes: list[list[ElementPass]] = [[] for _ in routes]
     nodes: dict[str, NodeFlow] = {}
@@ -488,7 +497,7 @@ def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = Non
             us = users[node]
             if not all(pos[u] == i for u, i in us):
                 continue
-            _pass_node(node, us, routes, arrivals, passes, nodes, priority.get(node, []))
+            _pass_node(node, us, routes, ctrls, arrivals, passes, nodes, priority.get(node, []))
             for u, _ in us:
                 pos[u] += 1
             progressed = True
@@ -497,12 +506,12 @@ def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = Non
                             if pos[r] < len(routes[r].elements)})
             raise ValueError("routes use the shared elements " + ", ".join(stuck) +
                              " in orders that contradict each other")
-    flows = {route.id: RouteFlow(route.id, passes[r], passes[r][-1].leave_s, route.controlling)
+    flows = {route.id: RouteFlow(route.id, passes[r], passes[r][-1].leave_s, ctrls[r])
              for r, route in enumerate(routes)}
     return flows, nodes
 
 
-def _pass_node(node, us, routes, arrivals, passes, nodes, first_ids):
+def _pass_node(node, us, routes, ctrls, arrivals, passes, nodes, first_ids):
     S = routes[us[0][0]].starts_s.shape[0]
     el = routes[us[0][0]].elements[us[0][1]]
     factor = np.min(np.stack([np.broadcast_to(routes[u].flow_factor, (S,)) for u, _ in us]), axis=0)
@@ -526,8 +535,8 @@ def _pass_node(node, us, routes, arrivals, passes, nodes, first_ids):
     leaves = []
     for (u, i), a, d in zip(us, streams, deps):
         route = routes[u]
-        base = np.asarray(speed(el.k, crowded if i >= route.controlling else 0.0), dtype=float)
-        v = np.broadcast_to(base, (S,)) * route.speed_factor
+        dens = np.where(i >= ctrls[u], crowded, 0.0)     # crowd speed at and after the controlling element
+        v = np.broadcast_to(np.asarray(speed(el.k, dens), dtype=float), (S,)) * route.speed_factor
         walk = el.length_m / v if el.length_m > 0 else np.zeros(S)
         leave = d + walk[:, None]
         present = np.isfinite(a)
@@ -536,7 +545,7 @@ def _pass_node(node, us, routes, arrivals, passes, nodes, first_ids):
         passes[u].append(ElementPass(
             arrive_s=_last(a, route.counts), pass_s=_last(d, route.counts), leave_s=_last(leave, route.counts),
             queue_s=np.maximum(wait.max(axis=1), 0.0), speed_m_s=v, capacity_p_s=cap,
-            density_p_m2=np.broadcast_to(crowded if i >= route.controlling else np.zeros(S), (S,)).copy()))
+            density_p_m2=np.broadcast_to(dens, (S,)).copy()))
         arrivals[u] = leave
         leaves.append(_last(leave, route.counts))
     if len(us) > 1:
