@@ -784,7 +784,7 @@ def report_timing(plan: Plan, work: Path, say=print) -> dict:
            "report_per_location_s": best / locations,
            "report_per_route_location_s": best / used if used else float("nan")}
     say("")
-    say(f"5. The report with its PDF ({cpus} CPUs; figures in the report's process pool; best of {plan.repeats})")
+    say(f"6. The report with its PDF ({cpus} CPUs; figures in the report's process pool; best of {plan.repeats})")
     say(f"   egressmargin demo --out DIR (whole command, subprocess)            {_fmt(demo)} s")
     say(f"   study {size.label()}: compute {_fmt(t1 - t0)} s, report (HTML + PDF, {pages} pages) {_fmt(best)} s")
     say(f"   report per location of the study ({locations})                      {best / locations * 1000:.0f} ms")
