@@ -24,7 +24,8 @@ from .stats import share, summarise
 from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study, data_problems
 from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
-from .verdict import CI_METHOD, decide, draw_outcomes, needs_more_samples, worst_outcome
+from .records import RouteResult, route_json
+from .verdict import decide, draw_outcomes, needs_more_samples, worst_outcome
 
 #: Samples used to draw the corrected p05-p95 band on the report's time plots.
 BAND_SAMPLES = 200
@@ -320,56 +321,27 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             out = assess.outcome(route, prep, loc_big, raw_aset, governing_raw, eg.routes[route.id],
                                  study.max_p_fail)
         margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
-        na = [{"location": loc, "criterion": cid} for loc in route.exposed_at
-              for cid in locations[prep.ids.index(loc)]["not_assessed"]]
-        entry = {
-            "id": route.id, "title": route.title, "occupants": route.occupants,
-            "exposed_at": list(route.exposed_at),
-            "rset_s": summarise(out.rset),
-            "rset_components_s": {k: summarise(v) for k, v in out.components.items()},
-            "movement": {"travel_s": round(float(np.mean(out.movement.travel_s)), 2),
-                         "flow_s": round(float(np.mean(out.movement.flow_s)), 2),
-                         "controlling_element": out.movement.controlling + 1,
-                         "controlling_type": route.path[out.movement.controlling]["type"],
-                         "capacity_p_s": round(float(out.movement.capacities_p_s[out.movement.controlling]), 4),
-                         "mode": route.movement_mode, "notes": list(out.movement.notes)},
-            **egress_summary.route_keys(route, eg.routes[route.id], eg.nodes, out.extras["location_aware"]),
-            "aset_raw_s": _t(out.aset_raw), "aset_s": summarise(out.aset),
-            "governing_location": out.governing_location, "governing_criterion": out.governing_criterion,
-            "margin_s": summarise(out.margin), "margin_raw_s": _t(margin_raw),
-            "not_assessed": na,
-        }
-        censored = ~np.isfinite(out.aset)
-        if censored.any():
-            entry["margin_at_least_s"] = summarise(np.where(censored, end, out.aset) - out.rset)
-            entry["share_aset_beyond_end"] = round(share(censored), 4)
-        undetected = ~np.isfinite(out.components["detection"])
-        if undetected.any():
-            entry["share_not_detected"] = round(share(undetected), 4)
-        assessed_any = any(c.get("status") == "assessed" for loc in route.exposed_at
-                           for c in locations[prep.ids.index(loc)]["criteria"].values())
-        entry["criteria_assessed"] = assessed_any
+        route_locs = [locations[prep.ids.index(loc)] for loc in route.exposed_at]
+        assessed_any = any(c.get("status") == "assessed" for loc in route_locs for c in loc["criteria"].values())
         v = decide(out.aset, out.rset, end, study.max_p_fail, assessed=assessed_any, max_samples=s_max)
-        entry.update(v.as_results())
-        entry["p_fail_method"] = CI_METHOD
-        entry["share_undecided"] = round(v.share_unknown, 4)
-        entry["verdict_basis"] = ("route ASET: the earliest ASET of the locations the route passes, against RSET; "
-                                  "the location-aware comparison is reported beside it")
         la = out.extras.get("location_aware")
-        if la is not None:
-            la_outcomes = worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end))
-            entry["location_aware_verdict"] = decide(la.aset_s, la.leave_s, end, study.max_p_fail,
-                                                     assessed=assessed_any, outcomes=la_outcomes).as_results()
-        partial = sorted({f"{cid} at {loc}" for loc in route.exposed_at
-                          for cid, c in locations[prep.ids.index(loc)]["criteria"].items() if c.get("partial")})
-        entry["verdict_text"] = _verdict_text(entry, v, partial, undetected.mean() if undetected.size else 0.0)
-        if route.along_route:
-            entry["along_route"] = assess.along_route_dose(route, prep, crit, fac_r, s_used, eg.routes[route.id])
+        v_la = None if la is None else decide(la.aset_s, la.leave_s, end, study.max_p_fail, assessed=assessed_any,
+                                              outcomes=worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end)))
         if sensitivities is None:          # every route's sweep in one flow run of the scenario
             sf, si, sa = sweep
             sensitivities = assess.scenario_sensitivity(specs_here, prep, sf, si, sa,
                                                         {k: _label(k) for k in si_keys(si)}, study.elements)
-        entry["sensitivity"] = sensitivities[route.id]
+        result = RouteResult(
+            route=route, outcome=out, flow=eg.routes[route.id], nodes=eg.nodes, end_s=end, margin_raw_s=margin_raw,
+            not_assessed=[{"location": loc["id"], "criterion": cid} for loc in route_locs
+                          for cid in loc["not_assessed"]],
+            partial=sorted({f"{cid} at {loc['id']}" for loc in route_locs
+                            for cid, c in loc["criteria"].items() if c.get("partial")}),
+            criteria_assessed=assessed_any, verdict=v, location_aware_verdict=v_la,
+            along_route=(assess.along_route_dose(route, prep, crit, fac_r, s_used, eg.routes[route.id])
+                         if route.along_route else None),
+            sensitivity=sensitivities[route.id])
+        entry = route_json(result)
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
     scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),
@@ -390,21 +362,6 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
 
 def _limit_value(c):
     return round(c.limit, 6)
-
-
-def _verdict_text(entry, v, partial: list[str], share_undetected: float) -> str:
-    """The verdict reason plus what the reader must know about the evidence behind it."""
-    words = v.reason
-    if entry["not_assessed"]:
-        pairs = sorted({f"{x['criterion']} at {x['location']}" for x in entry["not_assessed"]})
-        words += " Not assessed (missing series), so not part of this verdict: " + "; ".join(pairs) + "."
-    if partial:
-        words += (" Assessed without a modifying gas that was not supplied (the dose is partial and may be "
-                  "understated): " + "; ".join(partial) + ".")
-    if share_undetected > 0:
-        words += (f" In {share_undetected:.0%} of draws the detector does not respond before the histories end"
-                  " (such draws fail where a limit is reached and are undecided otherwise).")
-    return words
 
 
 class _MoreSamples:
