@@ -527,3 +527,19 @@ def test_a_mount_point_is_written_in_place(cli, good_study, tmp_path, monkeypatc
     assert status == 0, err
     assert sorted(os.listdir(out)) == [outputs.MANIFEST_NAME, "notes.txt", "results.json"]
     assert sorted(os.listdir(tmp_path)) == ["study", "volume"]
+
+
+def test_output_folder_has_the_usual_permissions(tmp_path, monkeypatch):
+    """The output folder is readable as the umask allows, not 0700 as a temporary folder is."""
+    import stat
+
+    from egressmargin.outputs import _usual_permissions
+
+    folder = tmp_path / "x"
+    folder.mkdir(mode=0o700)
+    old = os.umask(0o022)
+    try:
+        _usual_permissions(folder)
+    finally:
+        os.umask(old)
+    assert stat.S_IMODE(folder.stat().st_mode) == 0o755

@@ -426,6 +426,7 @@ class OutputFolder:
                     shutil.rmtree(p, ignore_errors=True)
                 self.staging = Path(tempfile.mkdtemp(prefix=_hidden(self.out, f"{_TMP_TAG}-{os.getpid()}-"),
                                                      dir=self.home))
+                _usual_permissions(self.staging)
         except OSError as exc:
             self._release()
             problem = user_os_error(exc, self.home)
@@ -557,3 +558,11 @@ def claim(out: Path, inputs: Iterable[Path] = (), force: bool = False) -> Output
             raise
         raise problem from None
     return OutputFolder(plan, Path(out), inputs, force, run_time())
+
+
+def _usual_permissions(folder: Path) -> None:
+    """A staging folder gets the permissions of a folder made with mkdir (mkdtemp makes it 0700),
+    so the output that replaces it is readable as the user's umask allows."""
+    mask = os.umask(0)
+    os.umask(mask)
+    os.chmod(folder, 0o777 & ~mask)

@@ -240,6 +240,8 @@ def write_comparison(comparison: Mapping[str, Any], out_dir: Path, pdf: bool = T
     html = render_compare_html(comparison, generated)
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}-", dir=out.parent))
+    from ..outputs import _usual_permissions
+    _usual_permissions(tmp)
     try:
         files = {"json": "comparison.json", "html": "comparison.html"}
         (tmp / files["json"]).write_text(json.dumps(comparison, indent=2, allow_nan=False) + "\n", encoding="utf-8")
