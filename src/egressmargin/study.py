@@ -741,8 +741,16 @@ def _routes(ck, value, loc_ids: dict[str, dict], named: dict | None = None,
         for j, element in enumerate(path):
             if element.get("at") is not None:
                 _location_ref(ck, element["at"], element["at_kp"], covered, loc_ids)
+                if "exposed_at" in r and element["at"] not in exposed:
+                    ck.err(element["at_kp"], f"path element {j + 1} says its people are at '{element['at']}', "
+                           "which is not in the route's exposed_at; expected it there too (the route is judged "
+                           "against the ASET of every location its occupants pass)")
         start_at = _location_ref(ck, r["start_at"], kp + ("start_at",), covered, loc_ids) \
             if "start_at" in r else None
+        if start_at is not None and "exposed_at" in r and start_at not in exposed:
+            ck.err(kp + ("start_at",), f"the occupants start at '{start_at}', which is not in the route's "
+                   "exposed_at; expected it there too (the route is judged against the ASET of every location "
+                   "its occupants are at)")
         factors = {key: _positive_number_or_distribution(ck, r[key], kp + (key,), "a multiplier")
                    if key in r else {"fixed": 1.0} for key in ("flow_factor", "speed_factor")}
         mode = _movement_mode(ck, r.get("movement", "flow"), kp + ("movement",))
