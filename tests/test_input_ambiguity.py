@@ -150,7 +150,8 @@ def test_study_unit_over_a_different_header_unit(kit, make_study, expect_input_e
     err = expect_input_error(make_study(text))
     line = kit.line_of(text, "unit: percent")
     assert "fire-a.csv column 'CO_hall [ppm]'" in err
-    assert f"found the unit 'percent' in the study (" in err and f"study.yaml:{line} scenarios[0].locations[0].co)" in err
+    assert "found the unit 'percent' in the study (" in err
+    assert f"study.yaml:{line} scenarios[0].locations[0].co)" in err
     assert "and 'ppm' in the header 'CO_hall [ppm]'; expected one unit" in err
 
 
@@ -277,7 +278,7 @@ def test_only_mapped_series_are_allocated(make_study):
     assert peak < 6e6, peak
 
 
-# --------------------------------------------------------------------------- property: every declared layout reads the same numbers
+# --------------------------------------------------------------------------- property: any declared layout, same numbers
 
 from hypothesis import HealthCheck, given, settings  # noqa: E402
 from hypothesis import strategies as st  # noqa: E402
@@ -338,7 +339,7 @@ def test_every_declared_layout_reads_pints_numbers(make_study, temps, co, delimi
     assert data.series["co"][0] == pytest.approx([co * 1e-6] * len(temps), rel=1e-12, abs=1e-15)
 
 
-# --------------------------------------------------------------------------- report fields, memory, detection rules, truncation
+# --------------------------------------------------------------------------- report fields, memory, detectors, truncation
 
 
 @pytest.mark.parametrize("key", ["reference", "prepared_by", "prepared_for", "title"])

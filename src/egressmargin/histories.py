@@ -163,9 +163,10 @@ def _layout(spec, head: list[bytes], fname: str, wanted: list[str]):
         for other, name in ((";", "semicolon"), ("\t", "tab")):
             if first.count(other) > first.count(","):
                 hint = " (and decimal: ',' if numbers are written like 1,5)" if other == ";" else ""
+                declare = "tab" if other == "\t" else repr(other)
                 raise InputError([Problem(f"{fname}:1", f"the header has {first.count(other)} {name}s and "
                                           f"{first.count(',')} commas: the file looks {name}-delimited; expected "
-                                          f"commas, or declare delimiter: {'tab' if other == chr(9) else repr(other)} on the scenario "
+                                          f"commas, or declare delimiter: {declare} on the scenario "
                                           f"({spec.where}){hint}")])
     names_at = 1 if declared == "above" else 0
     if declared == "above" and len(rows) < 2:
@@ -193,7 +194,7 @@ def _layout(spec, head: list[bytes], fname: str, wanted: list[str]):
     mapped = [i for i, h in enumerate(names) if h in wanted or _split_header(h)[0] in wanted]
     if declared == "below" and len(rows) > 1:
         cells = [rows[1][i] for i in mapped if i < len(rows[1])]
-        if cells and all(_is_number(c, decimal) for c in cells if c):
+        if any(cells) and all(_is_number(c, decimal) for c in cells if c):
             raise InputError([Problem(f"{fname}:2", f"units_row: below, but line 2 holds numbers "
                                       f"({_listing(cells)}); expected a units row under the names, or remove "
                                       f"units_row from the scenario ({spec.where})")])
