@@ -574,3 +574,10 @@ def test_latin1_degree_sign_is_an_input_error(kit, make_study, expect_input_erro
     (study.parent / "fire-a.csv").write_bytes(raw)
     err = expect_input_error(study)
     assert "fire-a.csv:1: error: cannot read line 1 as UTF-8 text" in err
+
+
+@pytest.mark.parametrize("gas", ["hcl", "hbr", "hf", "so2", "no2", "acrolein", "formaldehyde"])
+def test_irritant_gases_are_volume_fractions_too(gas):
+    """Contract, "Added in turn 2": the irritant series keys are volume fractions (pint: ppm = 1e-6)."""
+    assert check_unit("ppm", gas) is None and check_unit("mg/kg", gas) is not None
+    assert float(to_internal(100.0, "ppmv", gas)) == pytest.approx(1e-4, rel=1e-12)
