@@ -581,3 +581,11 @@ def test_irritant_gases_are_volume_fractions_too(gas):
     """Contract, "Added in turn 2": the irritant series keys are volume fractions (pint: ppm = 1e-6)."""
     assert check_unit("ppm", gas) is None and check_unit("mg/kg", gas) is not None
     assert float(to_internal(100.0, "ppmv", gas)) == pytest.approx(1e-4, rel=1e-12)
+
+
+def test_declared_semicolons_on_a_comma_file_gives_one_hint(kit, make_study, expect_input_error):
+    text = kit.study.replace("    time: {column", "    delimiter: ';'\n    time: {column")
+    err = expect_input_error(make_study(text))
+    assert err.count("error:") == 1
+    assert "fire-a.csv:1: error: the header has 6 commas and 0 semicolons: the file looks comma-delimited" in err
+    assert "declare delimiter: ',' on the scenario" in err

@@ -159,15 +159,16 @@ def _layout(spec, head: list[bytes], fname: str, wanted: list[str]):
         raise InputError([Problem(fname, "no columns found; expected a header row naming the columns")])
     rows = [_cells(line, delimiter, fname, i + 1) for i, line in enumerate(lines)]
     first = lines[0].decode("utf-8-sig", errors="replace")
-    if delimiter == ",":
-        for other, name in ((";", "semicolon"), ("\t", "tab")):
-            if first.count(other) > first.count(","):
-                hint = " (and decimal: ',' if numbers are written like 1,5)" if other == ";" else ""
-                declare = "tab" if other == "\t" else repr(other)
-                raise InputError([Problem(f"{fname}:1", f"the header has {first.count(other)} {name}s and "
-                                          f"{first.count(',')} commas: the file looks {name}-delimited; expected "
-                                          f"commas, or declare delimiter: {declare} on the scenario "
-                                          f"({spec.where}){hint}")])
+    names_of = {",": "comma", ";": "semicolon", "\t": "tab"}
+    for other, name in names_of.items():
+        if other != delimiter and first.count(other) > first.count(delimiter):
+            hint = " (and decimal: ',' if numbers are written like 1,5)" if other == ";" else ""
+            declare = "tab" if other == "\t" else repr(other)
+            mine = names_of.get(delimiter, repr(delimiter))
+            raise InputError([Problem(f"{fname}:1", f"the header has {first.count(other)} {name}s and "
+                                      f"{first.count(delimiter)} {mine}s: the file looks {name}-delimited; expected "
+                                      f"{mine}s, or declare delimiter: {declare} on the scenario ({spec.where})"
+                                      f"{hint if other != ',' else ''}")])
     names_at = 1 if declared == "above" else 0
     if declared == "above" and len(rows) < 2:
         raise InputError([Problem(fname, "units_row: above, but the file has only one line; expected a units "
