@@ -589,3 +589,23 @@ def test_declared_semicolons_on_a_comma_file_gives_one_hint(kit, make_study, exp
     assert err.count("error:") == 1
     assert "fire-a.csv:1: error: the header has 6 commas and 0 semicolons: the file looks comma-delimited" in err
     assert "declare delimiter: ',' on the scenario" in err
+
+
+@pytest.mark.parametrize("chunk", [7, 64, 1 << 24])
+def test_scan_agrees_across_chunk_sizes(kit, tmp_path, chunk, monkeypatch):
+    """Lines split across read chunks are counted once: the same hash (hashlib on the whole
+    file) and the same over-wide line, whatever the chunk size."""
+    import hashlib
+
+    from egressmargin import histories
+
+    monkeypatch.setattr(histories, "SCAN_CHUNK", chunk)
+    good = tmp_path / "good.csv"
+    good.write_text(kit.csv.replace("\n", "\r\n"), encoding="utf-8")
+    digest, filled = histories._scan(good, "good.csv")
+    assert digest == hashlib.sha256(good.read_bytes()).hexdigest() and filled == 61
+    bad = tmp_path / "bad.csv"
+    bad.write_text(kit.with_cell(kit.csv, 30, "T_hall [degC]", "1,5"), encoding="utf-8")
+    with pytest.raises(InputError) as exc:
+        histories._scan(bad, "bad.csv")
+    assert exc.value.problems[0].where == f"bad.csv:{kit.csv_line(30)}"
