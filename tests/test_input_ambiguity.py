@@ -150,7 +150,8 @@ def test_study_unit_over_a_different_header_unit(kit, make_study, expect_input_e
     err = expect_input_error(make_study(text))
     line = kit.line_of(text, "unit: percent")
     assert "fire-a.csv column 'CO_hall [ppm]'" in err
-    assert f"found the unit 'percent' in the study (" in err and f"study.yaml:{line} scenarios[0].locations[0].co)" in err
+    assert "found the unit 'percent' in the study (" in err
+    assert f"study.yaml:{line} scenarios[0].locations[0].co)" in err
     assert "and 'ppm' in the header 'CO_hall [ppm]'; expected one unit" in err
 
 
@@ -277,7 +278,7 @@ def test_only_mapped_series_are_allocated(make_study):
     assert peak < 6e6, peak
 
 
-# --------------------------------------------------------------------------- property: every declared layout reads the same numbers
+# --------------------------------------------------------------------------- property: any declared layout, same numbers
 
 from hypothesis import HealthCheck, given, settings  # noqa: E402
 from hypothesis import strategies as st  # noqa: E402
@@ -338,7 +339,7 @@ def test_every_declared_layout_reads_pints_numbers(make_study, temps, co, delimi
     assert data.series["co"][0] == pytest.approx([co * 1e-6] * len(temps), rel=1e-12, abs=1e-15)
 
 
-# --------------------------------------------------------------------------- report fields, memory, detection rules, truncation
+# --------------------------------------------------------------------------- report fields, memory, detectors, truncation
 
 
 @pytest.mark.parametrize("key", ["reference", "prepared_by", "prepared_for", "title"])
@@ -573,3 +574,38 @@ def test_latin1_degree_sign_is_an_input_error(kit, make_study, expect_input_erro
     (study.parent / "fire-a.csv").write_bytes(raw)
     err = expect_input_error(study)
     assert "fire-a.csv:1: error: cannot read line 1 as UTF-8 text" in err
+
+
+@pytest.mark.parametrize("gas", ["hcl", "hbr", "hf", "so2", "no2", "acrolein", "formaldehyde"])
+def test_irritant_gases_are_volume_fractions_too(gas):
+    """Contract, "Added in turn 2": the irritant series keys are volume fractions (pint: ppm = 1e-6)."""
+    assert check_unit("ppm", gas) is None and check_unit("mg/kg", gas) is not None
+    assert float(to_internal(100.0, "ppmv", gas)) == pytest.approx(1e-4, rel=1e-12)
+
+
+def test_declared_semicolons_on_a_comma_file_gives_one_hint(kit, make_study, expect_input_error):
+    text = kit.study.replace("    time: {column", "    delimiter: ';'\n    time: {column")
+    err = expect_input_error(make_study(text))
+    assert err.count("error:") == 1
+    assert "fire-a.csv:1: error: the header has 6 commas and 0 semicolons: the file looks comma-delimited" in err
+    assert "declare delimiter: ',' on the scenario" in err
+
+
+@pytest.mark.parametrize("chunk", [7, 64, 1 << 24])
+def test_scan_agrees_across_chunk_sizes(kit, tmp_path, chunk, monkeypatch):
+    """Lines split across read chunks are counted once: the same hash (hashlib on the whole
+    file) and the same over-wide line, whatever the chunk size."""
+    import hashlib
+
+    from egressmargin import histories
+
+    monkeypatch.setattr(histories, "SCAN_CHUNK", chunk)
+    good = tmp_path / "good.csv"
+    good.write_text(kit.csv.replace("\n", "\r\n"), encoding="utf-8")
+    digest, filled = histories._scan(good, "good.csv")
+    assert digest == hashlib.sha256(good.read_bytes()).hexdigest() and filled == 61
+    bad = tmp_path / "bad.csv"
+    bad.write_text(kit.with_cell(kit.csv, 30, "T_hall [degC]", "1,5"), encoding="utf-8")
+    with pytest.raises(InputError) as exc:
+        histories._scan(bad, "bad.csv")
+    assert exc.value.problems[0].where == f"bad.csv:{kit.csv_line(30)}"

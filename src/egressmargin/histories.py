@@ -162,14 +162,16 @@ def _layout(spec, head: list[bytes], fname: str, wanted: list[str]):
         raise InputError([Problem(fname, "no columns found; expected a header row naming the columns")])
     rows = [_cells(line, delimiter, fname, i + 1) for i, line in enumerate(lines)]
     first = lines[0].decode("utf-8-sig", errors="replace")
-    if delimiter == ",":
-        for other, name in ((";", "semicolon"), ("\t", "tab")):
-            if first.count(other) > first.count(","):
-                hint = " (and decimal: ',' if numbers are written like 1,5)" if other == ";" else ""
-                raise InputError([Problem(f"{fname}:1", f"the header has {first.count(other)} {name}s and "
-                                          f"{first.count(',')} commas: the file looks {name}-delimited; expected "
-                                          f"commas, or declare delimiter: {'tab' if other == chr(9) else repr(other)} on the scenario "
-                                          f"({spec.where}){hint}")])
+    names_of = {",": "comma", ";": "semicolon", "\t": "tab"}
+    for other, name in names_of.items():
+        if other != delimiter and first.count(other) > first.count(delimiter):
+            hint = " (and decimal: ',' if numbers are written like 1,5)" if other == ";" else ""
+            declare = "tab" if other == "\t" else repr(other)
+            mine = names_of.get(delimiter, repr(delimiter))
+            raise InputError([Problem(f"{fname}:1", f"the header has {first.count(other)} {name}s and "
+                                      f"{first.count(delimiter)} {mine}s: the file looks {name}-delimited; expected "
+                                      f"{mine}s, or declare delimiter: {declare} on the scenario ({spec.where})"
+                                      f"{hint if other != ',' else ''}")])
     names_at = 1 if declared == "above" else 0
     if declared == "above" and len(rows) < 2:
         raise InputError([Problem(fname, "units_row: above, but the file has only one line; expected a units "
@@ -196,7 +198,7 @@ def _layout(spec, head: list[bytes], fname: str, wanted: list[str]):
     mapped = [i for i, h in enumerate(names) if h in wanted or _split_header(h)[0] in wanted]
     if declared == "below" and len(rows) > 1:
         cells = [rows[1][i] for i in mapped if i < len(rows[1])]
-        if cells and all(_is_number(c, decimal) for c in cells if c):
+        if any(cells) and all(_is_number(c, decimal) for c in cells if c):
             raise InputError([Problem(f"{fname}:2", f"units_row: below, but line 2 holds numbers "
                                       f"({_listing(cells)}); expected a units row under the names, or remove "
                                       f"units_row from the scenario ({spec.where})")])
@@ -402,41 +404,74 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
 _DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+(?:[eE][-+]?\d+)?$")
 
 
+#: Bytes read at a time when scanning a CSV (the file is never held whole).
+SCAN_CHUNK = 1 << 24
+
+
 def _scan(path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> tuple[str, int]:
-    """Read the file once, line by line: its SHA-256 and its number of non-blank lines.
+    """Read the file once, in chunks: its SHA-256 and its number of non-blank lines.
 
     Raises InputError for a row with more fields than the names row (line ``skip`` + 1):
     reading only the mapped columns would otherwise let a ragged row shift values into the
-    wrong column silently. Counting delimiters is cheap; only lines whose count differs
-    from the names row's are parsed as CSV, so that quoted fields holding delimiters are
-    not mistaken for errors. A shorter row leaves blanks, which are reported where a
-    mapped column needs a number. The file is never held whole in memory.
+    wrong column silently. Delimiters are counted per line with numpy; only when a count
+    differs from the names row's and the file holds quotes (a quoted field may hold
+    delimiters) is the file parsed as CSV. A shorter row leaves blanks, which are
+    reported where a mapped column needs a number.
     """
     import pandas as pd
 
     h = hashlib.sha256()
-    sep = delimiter.encode()
-    names, n_sep, wide, filled, quoted = b"", None, None, 0, False
+    sep = ord(delimiter)
+    st = {"base": 0, "names": b"", "n_sep": None, "wide": None, "filled": 0, "quoted": False, "odd": False}
+
+    def lines_of(buf: bytes) -> None:
+        arr = np.frombuffer(buf, np.uint8)
+        ends = np.flatnonzero(arr == 10)
+        if buf and buf[-1] != 10:
+            ends = np.append(ends, len(buf))
+        starts = np.concatenate(([0], ends[:-1] + 1)).astype(np.int64)
+        seps = np.flatnonzero(arr == sep)
+        counts = np.searchsorted(seps, ends) - np.searchsorted(seps, starts)
+        length = ends - starts
+        cr = np.zeros(len(ends), bool)
+        cr[length > 0] = arr[ends[length > 0] - 1] == 13
+        filled = (length - cr) > 0
+        index = st["base"] + np.arange(len(ends))
+        st["quoted"] = st["quoted"] or bool((arr == 34).any())
+        if st["n_sep"] is None and st["base"] <= skip < st["base"] + len(ends):
+            k = skip - st["base"]
+            st["names"], st["n_sep"] = buf[starts[k]:ends[k]], int(counts[k])
+        if st["n_sep"] is not None:
+            body = filled & (index > skip)
+            odd = body & (counts != st["n_sep"])
+            st["odd"] = st["odd"] or bool(odd.any())
+            wide = np.flatnonzero(body & (counts > st["n_sep"]))
+            if st["wide"] is None and wide.size:
+                k = int(wide[0])
+                st["wide"] = (int(index[k]), buf[starts[k]:ends[k]])
+        st["filled"] += int((filled & (index >= skip)).sum())
+        st["base"] += len(ends)
+
+    carry = b""
+    chunk = min(SCAN_CHUNK, path.stat().st_size + 1)   # read(n) reserves n bytes first
     with open(path, "rb") as fh:
-        for i, line in enumerate(fh):
-            h.update(line)
-            if i < skip or not line.strip():
-                continue
-            filled += 1
-            if n_sep is None:
-                names, n_sep = line, line.count(sep)
-                quoted = b'"' in line
-            elif line.count(sep) != n_sep:
-                if quoted or b'"' in line:
-                    quoted = True          # a quoted field may hold delimiters (or line breaks)
-                elif line.count(sep) > n_sep and wide is None:
-                    wide = (i, line)       # without quotes, more delimiters is more fields
-    filled += skip
-    digest = h.hexdigest()
-    if wide is None and not quoted:
+        while True:
+            block = fh.read(chunk)
+            if not block:
+                break
+            h.update(block)
+            data = carry + block
+            cut = data.rfind(b"\n") + 1
+            if cut:
+                lines_of(data[:cut])
+            carry = data[cut:]
+    if carry:
+        lines_of(carry)
+    digest, filled = h.hexdigest(), st["filled"] + skip
+    if not st["odd"]:
         return digest, filled
-    if quoted:
-        # quotes may span lines: let the full parser judge
+    if st["quoted"]:
+        # quotes may hold delimiters or span lines: let the full parser judge
         try:
             pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, sep=delimiter,
                         header=skip)
@@ -444,14 +479,16 @@ def _scan(path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> tuple[
             raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected a "
                                       "delimited file with one field per column on every line")]) from None
         return digest, filled
+    if st["wide"] is None:
+        return digest, filled
 
     def fields(line):
         return len(next(csv.reader([line.decode("utf-8", errors="replace")], delimiter=delimiter), []))
 
-    i, line = wide
+    i, line = st["wide"]
     raise InputError([Problem(f"{fname}:{i + 1}", f"cannot read as CSV: line {i + 1} has {fields(line)} fields and "
-                              f"the names row {fields(names)}; expected at most one field per column (a delimiter "
-                              "inside a number? check the delimiter and decimal mark)")])
+                              f"the names row {fields(st['names'])}; expected at most one field per column (a "
+                              "delimiter inside a number? check the delimiter and decimal mark)")])
 
 
 def _plausible(key, values, ref, info, fname, line0, problems):

@@ -138,6 +138,11 @@ def _factor_offset(unit: str, target: str) -> tuple[float, float]:
     return float(a), float(b)
 
 
+def _target(quantity: str) -> str:
+    """Internal unit of ``quantity``; every gas key is a volume fraction, listed or not."""
+    return INTERNAL_UNITS.get(quantity) or ("dimensionless" if quantity in GAS_KEYS else INTERNAL_UNITS[quantity])
+
+
 def check_unit(unit: str, quantity: str) -> str | None:
     """Return None if ``unit`` converts to the internal unit of ``quantity``, else a message.
 
@@ -151,9 +156,10 @@ def check_unit(unit: str, quantity: str) -> str | None:
     "found 'mg/kg', which is not a volume fraction; expected ppm, ppmv, ppb, percent, %, vol%, mol/mol or '-'"
     """
     try:
-        _factor_offset(unit, INTERNAL_UNITS[quantity])
+        _factor_offset(unit, _target(quantity))
     except UnitProblem as exc:
-        return f"{exc}; expected a unit of {quantity.replace('_', ' ')} such as {EXAMPLES[quantity]}"
+        example = EXAMPLES.get(quantity, _VOLUME_FRACTION_TEXT)
+        return f"{exc}; expected a unit of {quantity.replace('_', ' ')} such as {example}"
     if quantity in GAS_KEYS and _clean(unit) not in VOLUME_FRACTION_UNITS:
         return f"found '{unit}', which is not a volume fraction; expected {_VOLUME_FRACTION_TEXT}"
     return None
@@ -185,7 +191,7 @@ def same_unit(a: str, b: str, quantity: str) -> bool:
     >>> same_unit("C", "degC", "temperature"), same_unit("percent", "ppm", "co")
     (True, False)
     """
-    fa, fb = _factor_offset(a, INTERNAL_UNITS[quantity]), _factor_offset(b, INTERNAL_UNITS[quantity])
+    fa, fb = _factor_offset(a, _target(quantity)), _factor_offset(b, _target(quantity))
     return all(math.isclose(x, y, rel_tol=1e-9, abs_tol=1e-12) for x, y in zip(fa, fb))
 
 
@@ -208,7 +214,7 @@ def to_internal(values, unit: str, quantity: str) -> np.ndarray:
     >>> round(float(to_internal(68.0, "degF", "temperature")), 6)
     20.0
     """
-    a, b = _factor_offset(unit, INTERNAL_UNITS[quantity])  # raises UnitProblem with a message for the user
+    a, b = _factor_offset(unit, _target(quantity))  # raises UnitProblem with a message for the user
     out = np.asarray(values, dtype=float) * a
     return out + b if b else out
 
