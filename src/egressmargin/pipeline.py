@@ -25,7 +25,7 @@ from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study, data_problems
 from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
 from .records import RouteResult, route_json
-from .verdict import decide, draw_outcomes, needs_more_samples, worst_outcome
+from .verdict import CI_METHOD, decide, draw_outcomes, needs_more_samples, worst_outcome
 
 #: Samples used to draw the corrected p05-p95 band on the report's time plots.
 BAND_SAMPLES = 200
@@ -642,7 +642,9 @@ def build_results(loaded: Loaded, options: RunOptions):
         "criteria": study.criteria.as_results(),
         "uncertainty": loaded.table.as_results() if loaded.table else None,
         "egress_method": egress_method(),
-        "acceptance": {"max_p_fail": study.max_p_fail},
+        "acceptance": {"max_p_fail": study.max_p_fail, "max_samples": study.max_samples,
+                       "interval_method": CI_METHOD},
+        "raw_only": bool(options.raw_only),
         "assumptions": assumptions(loaded),
         "warnings": [str(w) for w in loaded.warnings] + [w for sc in scenarios for w in sc["warnings"]],
         "scenarios": scenarios,

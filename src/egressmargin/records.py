@@ -91,12 +91,57 @@ def verdict_text(r: RouteResult) -> str:
     return words
 
 
+def _spec_text(spec, unit: str = "s") -> str:
+    """A duration or count specification as a reviewer reads it ("lognormal: median 60 s, p95 180 s")."""
+    if spec is None:
+        return "-"
+    if not isinstance(spec, dict):
+        return f"{spec:g} {unit}".strip() if isinstance(spec, (int, float)) else str(spec)
+    (kind, body), = spec.items()
+    if kind == "fixed":
+        return f"{body:g} {unit}".strip()
+    if isinstance(body, dict):
+        parts = ", ".join(f"{k} ({_spec_text(v, unit)})" if isinstance(v, dict) else f"{k} {v:g} {unit}".rstrip()
+                          for k, v in body.items())
+        return f"{kind}: {parts}"
+    return f"{kind}: {body}"
+
+
+def route_inputs(route) -> dict:
+    """The route's egress inputs as given (in seconds, counts and factors), for a reviewer's re-check."""
+    from .study import DetectorRule
+
+    det = route.detection
+    if isinstance(det, DetectorRule):
+        if det.kind == "heat":
+            detection = (f"heat detector at {det.location}: RTI {det.rti:g} m^0.5 s^0.5, activation "
+                         f"{det.activation_c:g} degC, gas velocity "
+                         + (f"{det.velocity_m_s:g} m/s" if det.velocity_m_s else "from the location's series"))
+        else:
+            detection = (f"smoke detector at {det.location}: {det.threshold_text} (extinction coefficient "
+                         f"{det.extinction_per_m:.3g} 1/m)")
+    else:
+        detection = _spec_text(det)
+    return {
+        "occupants": _spec_text(route.occupants_dist or route.occupants, "persons"),
+        "detection": detection,
+        "alarm": _spec_text(route.alarm),
+        "premovement": (("spread across the occupants (person i starts at quantile (i - 1/2)/N): "
+                         if route.premovement_across else "one uncertain time for everyone: ")
+                        + _spec_text(route.premovement)),
+        "flow_factor": _spec_text(route.flow_factor, ""),
+        "speed_factor": _spec_text(route.speed_factor, ""),
+        "start_at": route.start_at or "-",
+    }
+
+
 def route_json(r: RouteResult) -> dict:
     """The results.json entry of a route (contract keys and the documented extensions)."""
     out, route, mv = r.outcome, r.route, r.outcome.movement
     entry = {
         "id": route.id, "title": route.title, "occupants": route.occupants,
         "exposed_at": list(route.exposed_at),
+        "inputs": route_inputs(route),
         "rset_s": summarise(out.rset),
         "rset_components_s": {k: summarise(v) for k, v in out.components.items()},
         "movement": {"travel_s": round(float(np.mean(mv.travel_s)), 2),
