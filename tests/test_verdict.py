@@ -163,3 +163,33 @@ def test_fixed_inputs_give_a_point_interval(tmp_path):
                        routes=[_route()], criteria={"base": "general-2m", "only": ["temperature"]})
     r = results_for(path)[0]["scenarios"][0]["routes"][0]
     assert r["verdict"] == "pass" and r["p_fail_ci95"] == [0.0, 0.0] and r["samples_used"] == 400
+
+
+def test_along_route_dose_is_not_determined_for_occupants_still_inside_at_the_end(tmp_path):
+    """A detector that never responds: the occupants are still inside when the histories end,
+    so their dose is unknown; it must not read as a dose within the limit (a new user's find)."""
+    t = np.arange(0.0, 301.0, 10.0)
+    cols = {"T": ("degC", 20 + 0.01 * t), "CO": ("ppm", 100 + 0 * t), "K": ("1/m", 0.0 * t)}
+    locs = [{"id": "a", "temperature": "T", "co": "CO", "extinction": "K"}]
+    rule = {"smoke": {"location": "a", "extinction": "0.1 1/m"}}
+    path = write_study(tmp_path, t, cols, locs, routes=[_route(detection=rule, exposure="along-route",
+                                                               start_at="a")])
+    r = results_for(path)[0]["scenarios"][0]["routes"][0]
+    tox = r["along_route"]["criteria"]["fed_toxic"]
+    # 100 ppm CO for the whole 300 s is 100 * 5 / 35000 = 0.014 (ISO 13571), far below 0.3,
+    # yet the dose after 300 s is unknown: not determined, counted as exceeding.
+    assert tox["p50"] is None and tox["share_undetermined"] == 1.0 and tox["exceeds_p"] == 1.0
+    assert tox["exceeds_p_bounds"] == {"low": 0.0, "high": 1.0}
+    assert tox["within_limit_at_p95"] is False
+
+
+def test_an_implausibly_narrow_element_is_flagged(tmp_path, capsys):
+    """width: 1.8 ft (0.55 m) is accepted by pint but is almost surely a unit slip: a warning."""
+    from egressmargin.cli import main
+
+    t = np.arange(0.0, 61.0, 10.0)
+    path = write_study(tmp_path, t, {"T": ("degC", 20 + t)}, [{"id": "a", "temperature": "T"}],
+                       routes=[_route(path=[{"corridor": {"length": "10 m", "width": "1.8 ft"}}])])
+    assert main(["validate", str(path)]) == 0
+    err = capsys.readouterr().err
+    assert "narrower than any escape corridor" in err and "check the unit" in err

@@ -415,9 +415,17 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
             times_in[:, j], times_out[:, j] = t_in, t_out
             d = fld.at_times(times_out) - fld.at_times(times_in)
             dose += np.where(ok[rows][j], d[:, j], 0.0)
-        summary = summarise(dose, 4)
+        # Where the last occupant is still inside when the histories end and the limit is not
+        # yet reached, the dose is not determined (conditions after the end are unknown): such
+        # draws are counted as exceeding in exceeds_p (the conservative reading) and make the
+        # percentiles they touch null, never a dose that looks within the limit.
+        undetermined = (exit_t > end) & ~(dose >= c.limit)
+        summary = summarise(np.where(undetermined, np.nan, dose), 4)
+        exceeds = dose >= c.limit
         out[cid] = {"status": "assessed", "limit": c.limit, **summary,
-                    "exceeds_p": share(dose >= c.limit),
+                    "exceeds_p": share(exceeds | undetermined),
+                    "exceeds_p_bounds": {"low": share(exceeds), "high": share(exceeds | undetermined)},
+                    "share_undetermined": share(undetermined),
                     "within_limit_at_p95": summary["p95"] is not None and summary["p95"] < c.limit}
     beyond = share(exit_t > end)
     placed = element_locations(route)
@@ -435,8 +443,10 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
                 "Element locations: " + "; ".join(
                     f"{i + 1} {route.path[i]['type']} at '{loc}' ({'given' if how == 'at' else 'assigned in order of distance along exposed_at'})"
                     for i, (loc, how) in enumerate(placed)) + ".",
-                "Doses accrue only while the occupant is at a location; after the end of the histories no "
-                "further dose is counted" + (f" (this affects {beyond:.0%} of draws)" if beyond > 0 else "") + ".",
+                "Doses accrue only while the occupant is at a location. Where the last occupant is still inside "
+                "when the histories end and the limit has not been reached, the dose is not determined: such "
+                "draws count as exceeding the limit and their percentiles are not given"
+                + (f" (this affects {beyond:.0%} of draws)" if beyond > 0 else "") + ".",
             ]}
 
 

@@ -225,8 +225,16 @@ def _summary(out: Path) -> None:
         for r in sc["routes"]:
             margin = r["margin_s"]["p05"]
             at_least = (r.get("margin_at_least_s") or {}).get("p05")
-            margin_text = t(margin) if margin is not None or at_least is None else f">= {at_least:.0f}"
-            rows.append((sc["id"], r["id"], t(r["rset_s"]["p50"]), t(r["aset_s"]["p50"]),
+            if margin is not None:
+                margin_text = f"{margin:.0f}"
+            elif at_least is not None:
+                margin_text = f">= {at_least:.0f}"       # no limit reached by the end: a lower bound
+            else:
+                margin_text = "unknown"                  # e.g. no detection, or both beyond the data
+            rset_p50 = r["rset_s"]["p50"]
+            rset_text = ("not detected" if rset_p50 is None and (r.get("share_not_detected") or 0) >= 0.5
+                         else t(rset_p50))
+            rows.append((sc["id"], r["id"], rset_text, t(r["aset_s"]["p50"]),
                          margin_text, f"{r['p_fail']:.3f}",
                          r["verdict"].upper() + ("" if r.get("criteria_assessed", True) else " (nothing assessed)")))
         if not sc["routes"]:

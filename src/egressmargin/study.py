@@ -53,6 +53,9 @@ DELIMITERS = {",": ",", ";": ";", "\t": "\t", r"\t": "\t", "tab": "\t", "|": "|"
 DECIMALS = (".", ",")
 
 DEFAULT_SAMPLES = 2000
+#: A clear width below this is flagged as a likely unit slip (common practice: escape
+#: doors and corridors are rarely narrower than about 0.7 m).
+MIN_PLAUSIBLE_WIDTH_M = 0.6
 #: Cap on the draws taken to settle a verdict whose interval straddles max_p_fail
 #: (project choice: enough to resolve p_fail = 0.05 to about +/-0.003 at 95 %).
 DEFAULT_MAX_SAMPLES = 16000
@@ -1128,6 +1131,10 @@ def _element(ck, el, ekp) -> dict | None:
         ck.err(ekp + (kind, "width"), f"width {spec['width']} leaves no effective width after the boundary "
                f"layers ({exc}); expected a wider element")
         return None
+    if element["width_m"] < MIN_PLAUSIBLE_WIDTH_M:
+        ck.warn(ekp + (kind, "width"), f"width {spec['width']} is {element['width_m']:.2f} m, narrower than any "
+                f"escape {kind} is likely to be ({MIN_PLAUSIBLE_WIDTH_M} m); check the unit (it controls the "
+                f"route's flow at {we:.2f} m effective width)")
     if "at" in spec:
         element["at"] = spec["at"] if isinstance(spec["at"], (str, int)) and not isinstance(spec["at"], bool) \
             else None
