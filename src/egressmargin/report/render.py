@@ -170,6 +170,14 @@ def _trio(d: Any) -> dict[str, Any]:
     return {k: d.get(k) for k in ("p05", "p50", "p95")}
 
 
+def _location_aware_view(v: Any) -> dict | None:
+    """The location-aware comparison's verdict, for the line beside the governing one."""
+    if not isinstance(v, Mapping):
+        return None
+    return {"verdict": _verdict_word(v.get("verdict")) or "n/a", "p_fail": v.get("p_fail"),
+            "reason": _sentence(v.get("verdict_reason"))}
+
+
 def _given(value: Any) -> str:
     """A value from the study as given: mappings as ``key: value; ...``, lists joined."""
     if isinstance(value, Mapping):
@@ -441,6 +449,8 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
         "verdict": _verdict_word(rt.get("verdict")) or "n/a",
         "verdict_reason": _sentence(rt.get("verdict_reason")),
         "verdict_text": _sentence(rt.get("verdict_text")),
+        "verdict_basis": _sentence(rt.get("verdict_basis")),
+        "location_aware": _location_aware_view(rt.get("location_aware_verdict")),
         "governing_location": loc_titles.get(str(gl), gl) if gl else None,
         "governing_location_id": str(gl) if gl else None,
         "governing_criterion": _label(rt["governing_criterion"]) if rt.get("governing_criterion") else None,
