@@ -445,7 +445,7 @@ class NodeFlow:
 
 
 def _last(x: np.ndarray, counts: np.ndarray) -> np.ndarray:
-    return np.take_along_axis(x, (counts - 1)[:, None], axis=1)[:, 0]
+    return x[np.arange(x.shape[0]), counts - 1]
 
 
 def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = None
