@@ -233,3 +233,26 @@ def test_priority_merge_vectorised_over_draws_equals_draw_by_draw():
         np.testing.assert_allclose(dp[s], p1[0])
         np.testing.assert_allclose(dj[s], j1[0])
     assert np.isinf(dj[2, -2:]).all() and np.isfinite(dj[2, :-2]).all()
+
+
+def test_one_capacity_in_every_draw_equals_the_per_draw_form():
+    """The shortcut for a capacity that is the same in every draw gives, bit for bit, what
+    the per-draw form gives (the recursion of :func:`brute_fifo` is the reference)."""
+    a = np.array([[0.0, 0.3, 0.3, 2.0, np.inf], [0.1, 0.1, 0.5, 0.6, 0.7]])
+    same = flow.fifo_departures(a, np.array([0.91, 0.91]))
+    mixed = flow.fifo_departures(a, np.array([0.91, 2.0]))
+    assert same[0].tobytes() == mixed[0].tobytes()
+    np.testing.assert_allclose(same[0, :4], brute_fifo(a[0, :4], 0.91), rtol=1e-12)
+    np.testing.assert_allclose(mixed[1], brute_fifo(a[1], 2.0), rtol=1e-12)
+
+
+def test_transferred_flow_skips_nan_and_queue_counts_only_persons_present():
+    # F = (n - 1)/(last - first) over the finite pass times: 2 persons over 4 s -> 0.25 per s
+    got = flow.transferred_flow(np.array([[1.0, np.nan, 5.0, np.inf]]), 2.0)
+    assert got.tolist() == [0.25]
+    # three persons at t = 0 through 1 person/s wait 0, 1 and 2 s (d_k - 1/c - a_k);
+    # a draw in which nobody starts (never detected) has no queue
+    r = route("r", [[0.0, 0.0, 0.0], [np.inf, np.inf, np.inf]], [flow.NetElement("d", 0.0, 1.4, 1.0, 1.0)], S=2)
+    flows, _ = flow.simulate([r])
+    assert flows["r"].elements[0].queue_s.tolist() == [2.0, 0.0]
+    assert flows["r"].exit_s[0] == 3.0 and np.isinf(flows["r"].exit_s[1])

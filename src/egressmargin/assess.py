@@ -157,13 +157,16 @@ def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, quantiles:
               for name in dist.parameter_specs(route.premovement)}
     if route.premovement_across:
         pre = dist.ppf_varying(route.premovement, quantile_positions(counts), params)
+        with np.errstate(invalid="ignore"):
+            starts = (det + alarm)[:, None] + pre
+        starts = np.where(np.isnan(starts), np.inf, starts)
     else:
         one = dist.ppf_varying(route.premovement, _u(draws.premovement, S, q.get("premovement")), params)
         present = np.arange(counts.max())[None, :] < counts[:, None]
         pre = np.where(present, one[:, None], np.nan)
-    with np.errstate(invalid="ignore"):
-        starts = (det + alarm)[:, None] + pre
-    starts = np.where(np.isnan(starts), np.inf, starts)
+        with np.errstate(invalid="ignore"):
+            start = (det + alarm) + one             # everyone of a draw starts together
+        starts = np.where(present & ~np.isnan(start)[:, None], start[:, None], np.inf)
     return RouteInputs(det, alarm, pre, starts, counts, flow_f, speed_f)
 
 

@@ -85,9 +85,14 @@ def fifo_departures(arrivals_s, capacity_p_s) -> np.ndarray:
     """
     a = np.asarray(arrivals_s, dtype=float)
     c = np.asarray(capacity_p_s, dtype=float)
+    if c.ndim == 1 and c.size and np.all(c == c[0]):
+        c = c[:1]                            # one capacity in every draw: j/c once, not per draw
     c = c[:, None] if c.ndim == 1 else c
     j = np.arange(a.shape[1], dtype=float)[None, :]
-    return (j + 1.0) / c + np.maximum.accumulate(a - j / c, axis=1)
+    d = a - j / c
+    np.maximum.accumulate(d, axis=1, out=d)
+    d += (j + 1.0) / c
+    return d
 
 
 def _merged(streams: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray, list[int]]:
@@ -286,8 +291,10 @@ def transferred_flow(pass_s: np.ndarray, capacity_p_s) -> np.ndarray:
     c = np.broadcast_to(np.asarray(capacity_p_s, dtype=float), (pass_s.shape[0],))
     finite = np.isfinite(pass_s)
     n = finite.sum(axis=1)
-    first = np.where(finite, pass_s, np.inf).min(axis=1)
-    last = np.where(finite, pass_s, -np.inf).max(axis=1)
+    first = pass_s.min(axis=1)               # the least finite time, unless NaN or -inf are present
+    if np.isnan(first).any() or np.isneginf(first).any():
+        first = np.where(finite, pass_s, np.inf).min(axis=1)
+    last = np.max(pass_s, axis=1, where=finite, initial=-np.inf)
     with np.errstate(divide="ignore", invalid="ignore"):
         f = (n - 1) / (last - first)
     return np.where((n >= 2) & (last > first), np.minimum(f, c), c)
@@ -438,7 +445,7 @@ class NodeFlow:
 
 
 def _last(x: np.ndarray, counts: np.ndarray) -> np.ndarray:
-    return np.take_along_axis(x, (counts - 1)[:, None], axis=1)[:, 0]
+    return x[np.arange(x.shape[0]), counts - 1]
 
 
 def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = None
@@ -528,7 +535,7 @@ def _pass_node(node, us, routes, ctrls, arrivals, passes, nodes, first_ids):
             deps[k] = d
     else:
         deps = merge_fifo(streams, cap) if len(us) > 1 else [fifo_departures(streams[0], cap)]
-    flow = transferred_flow(np.concatenate(deps, axis=1), cap)
+    flow = transferred_flow(deps[0] if len(deps) == 1 else np.concatenate(deps, axis=1), cap)
     fs = flow / el.effective_width_m
     density = density_for_flow(el.k, fs)
     crowded = np.where(density < DENSITY_UNIMPEDED_P_M2, 0.0, density)
@@ -537,14 +544,15 @@ def _pass_node(node, us, routes, ctrls, arrivals, passes, nodes, first_ids):
         route = routes[u]
         dens = np.where(i >= ctrls[u], crowded, 0.0)     # crowd speed at and after the controlling element
         v = np.broadcast_to(np.asarray(speed(el.k, dens), dtype=float), (S,)) * route.speed_factor
-        walk = el.length_m / v if el.length_m > 0 else np.zeros(S)
-        leave = d + walk[:, None]
-        present = np.isfinite(a)
+        leave = d + (el.length_m / v)[:, None] if el.length_m > 0 else d
+        # wait at the entry: pass - 1/c - arrival; an absent person (a = d = +inf) gives NaN,
+        # which fmax skips, so the queue is the longest wait of the persons present (or 0)
         with np.errstate(invalid="ignore"):
-            wait = np.where(present, d - 1.0 / cap[:, None] - a, 0.0)
+            wait = d - (1.0 / cap)[:, None]
+            wait -= a
         passes[u].append(ElementPass(
             arrive_s=_last(a, route.counts), pass_s=_last(d, route.counts), leave_s=_last(leave, route.counts),
-            queue_s=np.maximum(wait.max(axis=1), 0.0), speed_m_s=v, capacity_p_s=cap,
+            queue_s=np.fmax(np.fmax.reduce(wait, axis=1), 0.0), speed_m_s=v, capacity_p_s=cap,
             density_p_m2=np.broadcast_to(dens, (S,)).copy()))
         arrivals[u] = leave
         leaves.append(_last(leave, route.counts))
