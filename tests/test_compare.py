@@ -99,7 +99,7 @@ def test_the_differing_input_is_the_criteria_set(compared):
     assert [d["role"] for d in diff["inputs"]] == ["criteria"]
     names = [Path(f["path"]).name for f in diff["inputs"][0]["files"].values()]
     assert names == ["general-2m.yaml", "small-familiar.yaml"]
-    assert diff["criteria"]["names"] == {"A": "general-2m", "B": "small-familiar"}
+    assert diff["criteria"]["names"] == {"A": "general-2m (modified in the study)", "B": "small-familiar"}
     assert diff["criteria"]["differences"] == [{"criterion": "visibility", "field": "limit",
                                                 "values": {"A": "10 m", "B": "5 m"}}]
     assert diff["criteria"]["overrides"]["B"]["option"] == "--criteria small-familiar"

@@ -79,6 +79,14 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
             warnings.extend(table.warnings)
         except InputError as exc:
             problems.extend(exc.problems)
+    signs = study.criteria.visibility_signs
+    if signs is not None and signs["default"]:
+        warnings.append(Problem(f"{study.path} criteria", "the visibility criterion assumes "
+                                f"{signs['signs']} exit signs (C = {signs['sign_constant']:g}, Jin) because the "
+                                "criteria do not say which signs the building has; with light-reflecting signs "
+                                "(C = 3) the same visibility needs a lower extinction coefficient: state "
+                                "'signs: light-emitting' or 'signs: light-reflecting' in the visibility criterion",
+                                warning=True))
     data, res = {}, {}
     for spec in study.scenarios:
         try:

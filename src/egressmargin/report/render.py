@@ -368,7 +368,9 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "raw_only": raw_only,
         "criteria": {"name": criteria.get("name"), "description": criteria.get("description"),
                      "sources": list(criteria.get("sources") or []),
-                     "rows": _criteria_rows(applied)},
+                     "rows": _criteria_rows(applied),
+                     "signs": criteria.get("visibility_signs")
+                     if isinstance(criteria.get("visibility_signs"), Mapping) else None},
         "criterion_ids": criterion_ids,
         "criterion_heads": [CRITERION_SHORT.get(c, c) for c in criterion_ids],
         "uncertainty": _uncertainty_view(uncertainty) if corrected else None,
