@@ -45,3 +45,19 @@ def location(results, lid, scenario=0):
 def without_sign_default(items):
     """Warnings other than the one every bundled set gets for its default exit-sign type."""
     return [x for x in items if "visibility criterion assumes" not in str(x)]
+
+
+class ProgressRecorder:
+    """A progress object (stage/step/done) that records its calls, for the tests."""
+
+    def __init__(self):
+        self.calls = []
+
+    def stage(self, name, total=None):
+        self.calls.append(("stage", name, total))
+
+    def step(self, n=1):
+        self.calls.append(("step", n))
+
+    def done(self):
+        self.calls.append(("done",))

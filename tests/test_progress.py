@@ -14,21 +14,10 @@ from pathlib import Path
 
 from egressmargin.pipeline import RunOptions, run
 from egressmargin.progress import BAR_WIDTH, Progress
-from engine_helpers import without_sign_default
+from engine_helpers import ProgressRecorder, without_sign_default
 
 
-class Recorder:
-    def __init__(self):
-        self.calls = []
-
-    def stage(self, name, total=None):
-        self.calls.append(("stage", name, total))
-
-    def step(self, n=1):
-        self.calls.append(("step", n))
-
-    def done(self):
-        self.calls.append(("done",))
+Recorder = ProgressRecorder
 
 
 def test_one_line_per_stage_when_not_a_terminal():

@@ -362,18 +362,7 @@ def test_unknown_paper_is_an_input_error(fixture_data):
 
 
 def test_progress_is_told_of_every_stage(tmp_path, fixture_data):
-    class Recorder:
-        def __init__(self):
-            self.calls = []
-
-        def stage(self, name, total=None):
-            self.calls.append(("stage", name, total))
-
-        def step(self, n=1):
-            self.calls.append(("step", n))
-
-        def done(self):
-            self.calls.append(("done",))
+    from engine_helpers import ProgressRecorder as Recorder
 
     results, plotdata = fixture_data
     rec = Recorder()
