@@ -93,3 +93,15 @@ def test_long_sensitivity_labels_fit_left_of_the_panel():
         x0 = min(t.get_window_extent(renderer).x0 for t in ax.get_yticklabels())
         plt.close(fig)
     assert x0 >= 0.0
+
+
+def test_histogram_key_keeps_the_fail_colour_when_no_draw_fails():
+    from matplotlib.colors import to_rgba
+    matplotlib, plt = plots._plt()
+    with matplotlib.rc_context(plots._RC):
+        fig, ax = plt.subplots()
+        entries = plots._histogram(ax, [150.0, 200.0, 310.0, float("nan")], 0.0, 0.05, 150.0, "pass")
+        plt.close(fig)
+    keys = {label: handle for handle, label in entries}
+    assert keys["ASET < RSET (fails)"].get_facecolor() == to_rgba(plots.FAIL)
+    assert keys["ASET ≥ RSET"].get_facecolor() == to_rgba(plots.PASS_FILL)

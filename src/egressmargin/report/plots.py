@@ -383,10 +383,15 @@ def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05, verdict=Non
     counts, edges = np.histogram(fin, bins=edges)
     neg = edges[1:] <= 0
     width = np.diff(edges)
+    from matplotlib.patches import Patch
+    # The legend keys are drawn as patches of the bars' own colours: a bar set with no bar
+    # in it (no failing draw) would otherwise get matplotlib's default colour in the key.
     ax.bar(edges[:-1][neg], counts[neg], width=width[neg], align="edge", color=FAIL,
-           edgecolor="white", linewidth=0.3, label="ASET < RSET (fails)")
+           edgecolor="white", linewidth=0.3)
     ax.bar(edges[:-1][~neg], counts[~neg], width=width[~neg], align="edge", color=PASS_FILL,
-           edgecolor=PASS, linewidth=0.3, label="ASET ≥ RSET")
+           edgecolor=PASS, linewidth=0.3)
+    keys = [(Patch(facecolor=FAIL, edgecolor="white"), "ASET < RSET (fails)"),
+            (Patch(facecolor=PASS_FILL, edgecolor=PASS), "ASET ≥ RSET")]
     ax.axvline(0.0, color=INK, lw=1.5, label="zero margin")
     if margin_p05 is not None and np.isfinite(margin_p05):
         ax.axvline(float(margin_p05), color=INK, lw=1.0, ls=(0, (4, 2)),
@@ -395,7 +400,7 @@ def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05, verdict=Non
     ax.set_title(txt, loc="left", fontsize=6.8, pad=4)
     ax.set_xlabel("Margin ASET − RSET per draw [s]")
     ax.set_ylabel("Draws")
-    return list(zip(*ax.get_legend_handles_labels()))
+    return list(zip(*ax.get_legend_handles_labels())) + keys
 
 
 def _tornado(ax, rows, base_margin_s) -> list:
