@@ -21,11 +21,12 @@ from __future__ import annotations
 import io
 import math
 import re
+import textwrap
 from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-from .format import fmt_num, fmt_prob, fmt_time, fmt_unit
+from .format import fmt_num, fmt_prob, fmt_time, fmt_unit, fmt_verdict
 
 # The report's own palette (chosen for this project; reads in greyscale because each
 # colour pairs with a distinct line style, marker or grey value).
@@ -56,6 +57,10 @@ SERIES_STYLES = [  # (colour, line style, marker) for several lines on one axis
 ]
 
 FIG_WIDTH_IN = 6.7  # fits the A4 and Letter text width of the report CSS
+#: Left edge of the route figure's panels (fraction of its width): room for the tick
+#: labels of the sensitivity panel, wrapped to two lines of TICK_LABEL_CHARS characters.
+AXES_LEFT = 0.27
+TICK_LABEL_CHARS = 26
 FIG_DPI = 130  # PNG resolution: sharp at the printed size, small files (project choice)
 MAX_POINTS = 240  # points kept per plotted curve (min/max per bucket)
 
@@ -341,7 +346,32 @@ def _timeline(ax, components_s, rset_s, aset_s, aset_raw_s, end_s) -> list:
     return handles
 
 
-def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05) -> list:
+def histogram_title(p_fail: Any, max_p_fail: Any = None, verdict: Any = None,
+                    n_open: int = 0, n_draws: int = 0) -> str:
+    """The histogram's title: p_fail, the acceptance limit, the verdict word, open draws.
+
+    The limit is named as a limit (never "acceptable" beside a failing value) and the
+    verdict is printed as its word, so the line cannot be misread.
+    """
+    txt = f"P(ASET < RSET) = {fmt_prob(p_fail)}"
+    if max_p_fail is not None:
+        txt += f"; acceptance limit {fmt_prob(max_p_fail)}"
+    if verdict is not None:
+        txt += f"; verdict {fmt_verdict(verdict)}"
+    if n_open:   # on a line of its own: the whole would run past the panel
+        txt += f";\n{n_open} of {n_draws} draws reach no limit (not drawn)"
+    return txt
+
+
+def wrap_label(text: Any, width: int = TICK_LABEL_CHARS) -> str:
+    """A tick label wrapped to at most two lines of ``width`` characters (then cut with …)."""
+    lines = textwrap.wrap(_plain(text), width) or [""]
+    if len(lines) > 2:
+        lines = [lines[0], textwrap.shorten(" ".join(lines[1:]), width, placeholder="…")]
+    return "\n".join(lines)
+
+
+def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05, verdict=None) -> list:
     m = np.asarray(margin_samples_s, dtype=float).ravel()
     fin = m[np.isfinite(m)]
     n_open = int(m.size - fin.size)
@@ -353,23 +383,24 @@ def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05) -> list:
     counts, edges = np.histogram(fin, bins=edges)
     neg = edges[1:] <= 0
     width = np.diff(edges)
+    from matplotlib.patches import Patch
+    # The legend keys are drawn as patches of the bars' own colours: a bar set with no bar
+    # in it (no failing draw) would otherwise get matplotlib's default colour in the key.
     ax.bar(edges[:-1][neg], counts[neg], width=width[neg], align="edge", color=FAIL,
-           edgecolor="white", linewidth=0.3, label="ASET < RSET (fails)")
+           edgecolor="white", linewidth=0.3)
     ax.bar(edges[:-1][~neg], counts[~neg], width=width[~neg], align="edge", color=PASS_FILL,
-           edgecolor=PASS, linewidth=0.3, label="ASET ≥ RSET")
+           edgecolor=PASS, linewidth=0.3)
+    keys = [(Patch(facecolor=FAIL, edgecolor="white"), "ASET < RSET (fails)"),
+            (Patch(facecolor=PASS_FILL, edgecolor=PASS), "ASET ≥ RSET")]
     ax.axvline(0.0, color=INK, lw=1.5, label="zero margin")
     if margin_p05 is not None and np.isfinite(margin_p05):
         ax.axvline(float(margin_p05), color=INK, lw=1.0, ls=(0, (4, 2)),
                    label=f"margin p05 {fmt_time(margin_p05, signed=True)}")
-    txt = f"P(ASET < RSET) = {fmt_prob(p_fail)}"
-    if max_p_fail is not None:
-        txt += f"; acceptable if ≤ {fmt_prob(max_p_fail)}"
-    if n_open:
-        txt += f"; {n_open} of {m.size} draws reach no limit (not drawn)"
+    txt = histogram_title(p_fail, max_p_fail, verdict, n_open, m.size)
     ax.set_title(txt, loc="left", fontsize=6.8, pad=4)
     ax.set_xlabel("Margin ASET − RSET per draw [s]")
     ax.set_ylabel("Draws")
-    return list(zip(*ax.get_legend_handles_labels()))
+    return list(zip(*ax.get_legend_handles_labels())) + keys
 
 
 def _tornado(ax, rows, base_margin_s) -> list:
@@ -389,7 +420,8 @@ def _tornado(ax, rows, base_margin_s) -> list:
     if base_margin_s is not None and np.isfinite(base_margin_s):
         ax.axvline(float(base_margin_s), color=INK, lw=0.9, ls=(0, (1, 1.5)),
                    label=f"median-input margin {fmt_time(base_margin_s, signed=True)}")
-    ax.set_yticks(range(n), [_plain(r.get("input", "?")) for r in reversed(rows)])
+    ax.set_yticks(range(n), [wrap_label(r.get("input", "?")) for r in reversed(rows)],
+                  fontsize=6.5, linespacing=0.95)
     xs = [0.0] + [v for r in rows for v in (_val(r, "margin_low_s"), _val(r, "margin_high_s"))
                   if v is not None]
     if base_margin_s is not None and np.isfinite(base_margin_s):
@@ -407,7 +439,7 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
                  margin_samples_s: np.ndarray | None = None, p_fail: Any = None,
                  max_p_fail: Any = None, margin_p05_s: Any = None,
                  sensitivity: Sequence[Mapping[str, Any]] = (), base_margin_s: Any = None,
-                 uid: str = "rt", fmt: str = "png"):
+                 uid: str = "rt", fmt: str = "png", verdict: Any = None):
     """One route in one scenario: timeline, margin histogram and sensitivity, stacked.
 
     Parameters
@@ -435,6 +467,8 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
         The margin with every input at its median [s] (the centre of the sweep).
     uid, fmt
         As for :func:`location_figure`.
+    verdict : str, optional
+        The route's verdict, printed as its word on the histogram.
     """
     matplotlib, plt = _plt()
     m = None if margin_samples_s is None else np.asarray(margin_samples_s, float).ravel()
@@ -445,7 +479,7 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
     # x label (0.32) and its legend.
     panels = [("timeline", 0.0, 1.45, 0.62)]
     if show_hist:
-        panels.append(("histogram", 0.16, 1.3, 0.34))
+        panels.append(("histogram", 0.28, 1.3, 0.34))   # room for a two-line title
     if show_tornado:
         panels.append(("tornado", 0.0, 0.24 * len(rows) + 0.3, 0.34))
     total = 0.1 + sum(pre + h + 0.32 + leg for _, pre, h, leg in panels)
@@ -454,11 +488,11 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
         top = 1.0 - 0.1 / total
         for kind, pre, h, leg in panels:
             bottom = top - (pre + h) / total
-            ax = fig.add_axes((0.25, bottom, 0.72, h / total))
+            ax = fig.add_axes((AXES_LEFT, bottom, 0.97 - AXES_LEFT, h / total))
             if kind == "timeline":
                 entries = _timeline(ax, components_s, rset_s, aset_s, aset_raw_s, end_s)
             elif kind == "histogram":
-                entries = _histogram(ax, m, p_fail, max_p_fail, margin_p05_s)
+                entries = _histogram(ax, m, p_fail, max_p_fail, margin_p05_s, verdict)
             else:
                 entries = _tornado(ax, rows, base_margin_s)
             if entries:

@@ -34,6 +34,7 @@ CRITERION_LABELS: dict[str, str] = {
     "heat_flux": "Radiant heat flux",
     "fed_toxic": "FED, asphyxiant gases",
     "fed_heat": "FED, heat",
+    "fed_hypoxia": "FED, hypoxia (low oxygen)",
     "fec_irritant": "FEC, irritant gases",
     "layer_height": "Smoke layer height",
     "aset": "ASET (earliest criterion)",
@@ -42,24 +43,36 @@ CRITERION_LABELS: dict[str, str] = {
 #: Short column heads for the location matrix.
 CRITERION_SHORT: dict[str, str] = {
     "temperature": "Temp.", "visibility": "Visib.", "heat_flux": "Rad. flux",
-    "fed_toxic": "FED tox.", "fed_heat": "FED heat", "fec_irritant": "FEC irr.",
+    "fed_toxic": "FED tox.", "fed_heat": "FED heat", "fed_hypoxia": "FED hyp.", "fec_irritant": "FEC irr.",
     "layer_height": "Layer",
 }
 
 #: Printed names of the location series (uncertainty quantities).
 QUANTITY_LABELS: dict[str, str] = {
-    "temperature": "Temperature (rise above ambient)",
+    "temperature": "Temperature",
     "co": "Carbon monoxide",
     "co2": "Carbon dioxide",
-    "o2": "Oxygen (depletion below ambient)",
+    "o2": "Oxygen",
     "hcn": "Hydrogen cyanide",
+    "hcl": "Hydrogen chloride",
+    "hbr": "Hydrogen bromide",
+    "hf": "Hydrogen fluoride",
+    "so2": "Sulphur dioxide",
+    "no2": "Nitrogen dioxide",
+    "acrolein": "Acrolein",
+    "formaldehyde": "Formaldehyde",
     "extinction": "Extinction coefficient",
     "optical_density": "Optical density",
     "soot": "Soot concentration",
     "visibility": "Visibility (through the extinction coefficient)",
     "heat_flux": "Radiant heat flux",
     "layer_height": "Layer height",
+    "velocity": "Gas velocity",
 }
+
+#: How the run applies a quantity's row (results.json ``uncertainty.quantities.*.basis``).
+BASIS_LABELS: dict[str, str] = {"rise": "rise above ambient", "depletion": "depletion below ambient",
+                                "as-given": "as given"}
 
 COMPONENT_LABELS = {"detection": "Detection", "alarm": "Alarm",
                     "premovement": "Pre-movement", "movement": "Movement"}
@@ -433,7 +446,8 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
             aset_raw_s=rt.get("aset_raw_s"), end_s=end_s,
             margin_samples_s=samples.get("margin_samples"), p_fail=rt.get("p_fail"),
             max_p_fail=acceptance, margin_p05_s=m05["value"] if not m05["at_least"] else None,
-            sensitivity=sens[:10], base_margin_s=base_margin, uid=f"fig-{anchor}")
+            sensitivity=sens[:10], base_margin_s=base_margin, uid=f"fig-{anchor}",
+            verdict=rt.get("verdict"))
     along = rt.get("along_route") if isinstance(rt.get("along_route"), Mapping) else {}
     mv = rt.get("movement") or {}
     ci = rt.get("p_fail_ci95")
@@ -442,6 +456,7 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
            "criterion": _label(str(n.get("criterion")))} for n in rt.get("not_assessed") or []]
     view = {
         "anchor": anchor, "id": rid, "name": _named(rt), "scenario": sid, "end_s": end_s,
+        "title": str(rt["title"]) if rt.get("title") and str(rt["title"]) != rid else None,
         "occupants": rt.get("occupants"),
         "rset_s": _trio(rt.get("rset_s")), "aset_s": _trio(rt.get("aset_s")),
         "aset_raw_s": rt.get("aset_raw_s"), "margin_p05": m05, "margin_p50": m50,
@@ -713,7 +728,9 @@ def _uncertainty_view(uncertainty: Mapping[str, Any]) -> dict[str, Any]:
                    + (f" {fmt_unit(rng.get('unit'))}" if rng.get("unit") else ""))
         qrows.append({"id": q, "label": QUANTITY_LABELS.get(q, q), "bias": s.get("bias"),
                       "sigma_model": s.get("sigma_model"), "sigma_exp": s.get("sigma_exp"),
-                      "basis": s.get("basis"), "range": rng or None})
+                      "basis": s.get("basis"),
+                      "applied": BASIS_LABELS.get(s.get("basis"), s.get("basis") or "as given"),
+                      "range": rng or None})
     return {"source": uncertainty.get("source"),
             "distribution": uncertainty.get("distribution") or "lognormal",
             "path": uncertainty.get("path"), "sha256": uncertainty.get("sha256"),
