@@ -96,9 +96,18 @@ def fifo_departures(arrivals_s, capacity_p_s) -> np.ndarray:
 
 
 def _merged(streams: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray, list[int]]:
-    """Concatenate streams and sort each draw's arrivals; return sorted, order, sizes."""
+    """Concatenate streams and sort each draw's arrivals; return sorted, order, sizes.
+
+    Arrivals at the same instant from different streams are interleaved in proportion
+    to the streams' sizes (person j of N_r ranks by (j + 1/2)/N_r), so that two groups
+    reaching a shared element together share it, and the order the routes are listed in
+    the study does not decide who goes first (project choice: first come, first served
+    has no rule for a tie).
+    """
     joined = np.concatenate(streams, axis=1)
-    order = np.argsort(joined, axis=1, kind="stable")
+    rank = np.concatenate([np.broadcast_to((np.arange(s.shape[1]) + 0.5) / max(s.shape[1], 1), s.shape)
+                           for s in streams], axis=1)
+    order = np.lexsort((rank, joined), axis=1)
     return np.take_along_axis(joined, order, axis=1), order, [s.shape[1] for s in streams]
 
 
