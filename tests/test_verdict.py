@@ -193,3 +193,25 @@ def test_an_implausibly_narrow_element_is_flagged(tmp_path, capsys):
     assert main(["validate", str(path)]) == 0
     err = capsys.readouterr().err
     assert "narrower than any escape corridor" in err and "check the unit" in err
+
+
+def test_max_samples_that_would_not_fit_is_refused_before_computing(tmp_path, monkeypatch):
+    """The extra draws of a straddling verdict are made for one scenario at a time: only that
+    scenario's need at max_samples is compared with the memory (project estimate, sizing.py)."""
+    import yaml
+
+    from egressmargin import sizing
+    from egressmargin.errors import InputError
+    from egressmargin.pipeline import load
+
+    t = np.arange(0.0, 61.0, 10.0)
+    path = write_study(tmp_path, t, {"T": ("degC", 20 + t)}, [{"id": "a", "temperature": "T"}],
+                       routes=[_route()])
+    monkeypatch.setattr(sizing, "available_memory", lambda: (100e6, 200e6))
+    load(path)                                   # 400 samples and the default max_samples fit
+    doc = yaml.safe_load(path.read_text())
+    doc["max_samples"] = 10**6                   # 1e6 x (256 + 512) B = 768 MB > 100 MB
+    path.write_text(yaml.safe_dump(doc))
+    with pytest.raises(InputError) as exc:
+        load(path)
+    assert "max_samples" in str(exc.value) and "samples need about" in str(exc.value)

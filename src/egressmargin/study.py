@@ -1172,7 +1172,7 @@ def data_problems(study: Study, data: dict, samples: int | None = None) -> list[
 
     ``data`` maps scenario id to its :class:`~egressmargin.histories.ScenarioData`.
     """
-    from .sizing import memory_problems
+    from .sizing import estimate_bytes, memory_problems
 
     problems: list[Problem] = []
     by_id = {s.id: s for s in study.scenarios}
@@ -1201,9 +1201,15 @@ def data_problems(study: Study, data: dict, samples: int | None = None) -> list[
     most = int(getattr(study, "max_samples", 0) or 0)
     shapes = [(len(d.location_ids), sum(1 for r in study.routes if r.scenarios is None or sid in r.scenarios),
                len(d.t_s)) for sid, d in data.items()]
-    memory = memory_problems(max(drawn, most), shapes, "")
+    # Every scenario keeps its `samples` draws to the end; the extra draws that settle a
+    # straddling verdict (up to max_samples) are made for one scenario at a time and dropped.
+    memory = memory_problems(drawn, shapes, "")
+    key = "samples"
+    if not memory and most > drawn and shapes:
+        largest = max(shapes, key=lambda sh: estimate_bytes(most, [sh]))
+        memory = memory_problems(most, [largest], "")
+        key = "max_samples"
     if memory:   # locate the key only when there is something to say (reads the study again)
-        key = "max_samples" if most > drawn else "samples"
         where = "--samples (command line)" if samples and key == "samples" else \
             load_located(study.path).where((key,))
         problems += [Problem(where, p.message) for p in memory]
