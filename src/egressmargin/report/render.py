@@ -300,6 +300,10 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
     study = {k: study_in.get(k) for k in ("title", "reference", "prepared_by", "prepared_for",
                                           "paper", "path", "sha256")}
     title = study.get("title") or "Egress margin assessment"
+    # the study's `report: {unused_locations: omit}` leaves out locations no route uses
+    # (named in one line); anything else, or none given, keeps them in the appendix
+    report_options = study_in.get("report") if isinstance(study_in.get("report"), Mapping) else {}
+    omit_unused = report_options.get("unused_locations") == "omit"
     acceptance_in = results.get("acceptance") or {}
     acceptance = acceptance_in.get("max_p_fail")
     criteria = results.get("criteria") or {}
@@ -355,6 +359,9 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
 
         matrix = [_matrix_row(loc_by_id[lid], loc_titles[lid], criterion_ids, exposed_by.get(lid, []))
                   for lid in used]
+        omitted = [loc_titles[lid] for lid in unused] if omit_unused else []
+        if omit_unused:
+            unused = []
         matrix_unused = [_matrix_row(loc_by_id[lid], loc_titles[lid], criterion_ids, [])
                          for lid in unused]
         for lid in used + unused:
@@ -372,6 +379,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
             "design_fire": [(DESIGN_FIRE_LABELS.get(k, str(k)), _given(v))
                             for k, v in _ordered_design_fire(sc.get("design_fire"))],
             "routes": routes, "matrix": matrix, "matrix_unused": matrix_unused,
+            "omitted_locations": omitted,
             "location_figures": loc_figures, "shared_elements": _shared_rows(sc),
         })
 
