@@ -382,7 +382,11 @@ def test_html_is_self_contained_with_inline_png(rendered):
     html = rendered["html"]
     n_figures = html.count('<figure class="plot-figure"')
     assert n_figures >= 6
-    assert html.count('<img class="plot" src="data:image/png;base64,') == n_figures
+    # one image a figure, except route figures drawn one image a panel
+    n_parts = html.count('<div class="plot-part">')
+    n_single = n_figures - len(re.findall(r'<figure class="plot-figure"[^>]*data-parts=', html))
+    assert n_parts > 0
+    assert html.count('<img class="plot" src="data:image/png;base64,') == n_single + n_parts
     srcs = re.findall(r'\bsrc\s*=\s*"([^"]*)"', html)
     assert all(s.startswith("data:image/png;base64,") for s in srcs)
     hrefs = re.findall(r'\bhref\s*=\s*"([^"]*)"', html)
@@ -537,7 +541,8 @@ def test_twenty_locations_render(tmp_path):
     results["scenarios"] = results["scenarios"][:1]
     ctx = build_context(results, plotdata)
     html = render_html(results, plotdata)
-    assert html.count('<img class="plot"') == ctx["n_figures"] >= 3
+    assert html.count('<img class="plot"') == sum(len(f["parts"]) for f in ctx["figures"])
+    assert ctx["n_figures"] >= 3
 
 
 def test_report_paths_returned(tmp_path, fixture_data):
@@ -575,14 +580,48 @@ def test_plots_cope_with_degenerate_inputs():
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
 
 
+def test_route_figure_panels_draw_one_at_a_time(rendered):
+    """A route figure is drawn one image a panel so a page may break between panels;
+    each panel image shows its own panel only, and the caption follows the last panel."""
+    kw = dict(components_s={"detection": {"p50": 60.0}},
+              rset_s={"p05": 60, "p50": 70, "p95": 80}, aset_s={"p05": 100, "p50": 120, "p95": 140},
+              margin_samples_s=np.linspace(-10.0, 80.0, 200), p_fail=0.1, max_p_fail=0.05,
+              sensitivity=[{"input": "walking speed", "margin_low_s": 10.0,
+                            "margin_high_s": 40.0, "swing_s": 30.0}], fmt="svg")
+    assert plots.route_panels(kw["margin_samples_s"], kw["sensitivity"]) == \
+        ["timeline", "histogram", "tornado"]
+    assert plots.route_panels(np.full(5, 3.0), []) == ["timeline"]
+    timeline = plots.route_figure(**kw, panels=["timeline"], uid="t")
+    hist = plots.route_figure(**kw, panels=["histogram"], uid="h")
+    tornado = plots.route_figure(**kw, panels=["tornado"], uid="s")
+    assert "RSET components" in timeline and "P(ASET" not in timeline
+    assert "P(ASET" in hist and "RSET components" not in hist and "walking speed" not in hist
+    assert "walking speed" in tornado and "P(ASET" not in tornado
+    html = rendered["html"]
+    blocks = re.findall(r'<figure class="plot-figure"[^>]*data-parts="\d+">.*?</figure>', html, flags=re.S)
+    assert blocks
+    for block in blocks:
+        parts = block.split('<div class="plot-part">')[1:]
+        assert len(parts) >= 2
+        assert block.count("<figcaption>") == 1 and "<figcaption>" in parts[-1]
+        assert all(p.count('<img class="plot"') == 1 for p in parts)
+    css = (templates_dir() / "report.css").read_text(encoding="utf-8")
+    assert ".plot-part { break-inside: avoid; }" in css
+
+
 def test_every_figure_is_also_written_as_a_png_file(tmp_path):
-    """The output folder carries the plots as files, one per figure of the report."""
+    """The output folder carries the plots as files, one per image of the report: a
+    figure drawn in parts is written as figure-NNN-a.png, -b ... in the order shown."""
     results, plotdata = make_fixture()
     paths = render_report(results, plotdata, tmp_path, pdf=False)
     html = paths["html"].read_text(encoding="utf-8")
     files = sorted((tmp_path / "plots").glob("figure-*.png"))
-    assert len(files) == html.count('<figure class="plot-figure"') > 0
+    assert len(files) == html.count('<img class="plot"') > html.count('<figure class="plot-figure"')
     assert files[0].read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    numbers = {re.match(r"figure-(\d{3})", f.name).group(1) for f in files}
+    assert len(numbers) == html.count('<figure class="plot-figure"')
+    parts = sorted(f.name for f in files if "-a.png" in f.name or "-b.png" in f.name)
+    assert parts and all(n.replace("-a.png", "-b.png") in parts for n in parts if "-a" in n)
 
 
 def test_pdf_engine_fetches_nothing_but_inline_data(tmp_path):

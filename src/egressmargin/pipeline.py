@@ -645,7 +645,7 @@ def build_results(loaded: Loaded, options: RunOptions):
         "version": __version__, "seed": seed, "samples": S,
         "study": {"title": study.title, "reference": study.reference, "prepared_by": study.prepared_by,
                   "prepared_for": study.prepared_for, "paper": study.paper, "path": str(study.path),
-                  "sha256": sha256_of(study.path)},
+                  "sha256": sha256_of(study.path), "report": dict(study.report)},
         "inputs": inputs,
         "criteria": study.criteria.as_results(),
         "uncertainty": loaded.table.as_results() if loaded.table else None,

@@ -37,7 +37,7 @@ NAMED_ELEMENT_KEYS = {"id", "title", "upstream"}
 #: zero it gives zero people or zero capacity).
 POSITIVE_DISTRIBUTIONS = ("lognormal", "uniform", "triangular")
 TOP_KEYS = {"title", "criteria", "uncertainty", "samples", "seed", "acceptance", "scenarios", "egress", "credibility",
-            "reference", "prepared_by", "prepared_for", "paper", "max_samples", "elements"}
+            "reference", "prepared_by", "prepared_for", "paper", "max_samples", "elements", "report"}
 SCENARIO_KEYS = {"id", "title", "histories", "time", "units_row", "locations", "ambient", "resolutions",
                  "ignition", "design_fire"}
 LOCATION_KEYS = {"id", "title", "temperature_profile", "role", *SERIES_KEYS}
@@ -170,6 +170,11 @@ class NamedElement:
     where: str = ""
 
 
+#: What the report shows of locations no route uses (`report: {unused_locations: ...}`):
+#: their detail in the appendix (default), or left out with a line naming them.
+UNUSED_LOCATIONS = ("appendix", "omit")
+
+
 @dataclass
 class Study:
     path: Path
@@ -192,6 +197,8 @@ class Study:
     warnings: list[Problem] = field(default_factory=list)
     #: Named path elements (top-level `elements:`), by id.
     elements: dict[str, "NamedElement"] = field(default_factory=dict)
+    #: Report options (top-level `report:`), e.g. ``{"unused_locations": "appendix"}``.
+    report: dict = field(default_factory=lambda: {"unused_locations": UNUSED_LOCATIONS[0]})
 
     @property
     def base_dir(self) -> Path:
@@ -378,6 +385,7 @@ def check_study(path: str | Path, criteria_override: str | None = None
                                 positive=True, default_unit="dimensionless")
                 if v is not None:
                     max_grid_change = v
+    report = _report_options(ck, data.get("report"))
     paper = ck.text(data.get("paper"), ("paper",), default="A4")
     if paper.lower() not in ("a4", "letter"):
         ck.err(("paper",), f"found '{paper}'; expected A4 or letter")
@@ -402,7 +410,28 @@ def check_study(path: str | Path, criteria_override: str | None = None
                  prepared_by=ck.text(data.get("prepared_by"), ("prepared_by",)),
                  prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),
                  paper="letter" if paper.lower() == "letter" else "A4", max_grid_change=max_grid_change,
-                 warnings=[p for p in ck.problems if p.warning], elements=named), scenarios, ck.problems
+                 warnings=[p for p in ck.problems if p.warning], elements=named,
+                 report=report), scenarios, ck.problems
+
+
+def _report_options(ck, value) -> dict:
+    """The top-level `report:` block: ``unused_locations: appendix | omit``.
+
+    ``appendix`` (the default) prints the detail of locations no route uses in the
+    appendix; ``omit`` leaves it out and the report names the locations left out.
+    """
+    options = {"unused_locations": UNUSED_LOCATIONS[0]}
+    if value is None or not ck.keys(value, ("report",), {"unused_locations"}, "report"):
+        return options
+    if "unused_locations" in value:
+        v = value["unused_locations"]
+        word = v.strip().lower() if isinstance(v, str) else None
+        if word not in UNUSED_LOCATIONS:
+            ck.err(("report", "unused_locations"), f"found {_show(v)}; expected appendix (the detail of "
+                   "locations no route uses goes in the appendix) or omit (left out, the report names them)")
+        else:
+            options["unused_locations"] = word
+    return options
 
 
 def _usable_criteria(ck, criteria: CriteriaSet, given) -> None:

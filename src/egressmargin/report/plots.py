@@ -434,12 +434,29 @@ def _tornado(ax, rows, base_margin_s) -> list:
     return list(zip(*ax.get_legend_handles_labels()))
 
 
+def route_panels(margin_samples_s: np.ndarray | None = None,
+                 sensitivity: Sequence[Mapping[str, Any]] = ()) -> list[str]:
+    """The panels :func:`route_figure` draws, top to bottom.
+
+    ``"timeline"`` always; ``"histogram"`` when the finite margins per draw differ (a
+    single value shows nothing); ``"tornado"`` when any sensitivity swing is non-zero.
+    """
+    m = None if margin_samples_s is None else np.asarray(margin_samples_s, float).ravel()
+    kinds = ["timeline"]
+    if m is not None and np.isfinite(m).any() and np.ptp(m[np.isfinite(m)]) > 0:
+        kinds.append("histogram")
+    if any(abs(float(r.get("swing_s") or 0.0)) > 0 for r in sensitivity or []):
+        kinds.append("tornado")
+    return kinds
+
+
 def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[str, Any],
                  aset_s: Mapping[str, Any], aset_raw_s: Any = None, end_s: float | None = None,
                  margin_samples_s: np.ndarray | None = None, p_fail: Any = None,
                  max_p_fail: Any = None, margin_p05_s: Any = None,
                  sensitivity: Sequence[Mapping[str, Any]] = (), base_margin_s: Any = None,
-                 uid: str = "rt", fmt: str = "png", verdict: Any = None):
+                 uid: str = "rt", fmt: str = "png", verdict: Any = None,
+                 panels: Sequence[str] | None = None):
     """One route in one scenario: timeline, margin histogram and sensitivity, stacked.
 
     Parameters
@@ -469,24 +486,26 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
         As for :func:`location_figure`.
     verdict : str, optional
         The route's verdict, printed as its word on the histogram.
+    panels : sequence of str, optional
+        Draw only these of :func:`route_panels` (e.g. ``["histogram"]``, one image a
+        panel, so that a page may break between panels); default all of them.
     """
     matplotlib, plt = _plt()
     m = None if margin_samples_s is None else np.asarray(margin_samples_s, float).ravel()
-    show_hist = m is not None and np.isfinite(m).any() and np.ptp(m[np.isfinite(m)]) > 0
     rows = sorted(sensitivity or [], key=lambda r: -abs(float(r.get("swing_s") or 0.0)))
-    show_tornado = any(abs(float(r.get("swing_s") or 0.0)) > 0 for r in rows)
+    shown = route_panels(m, rows)
+    wanted = [k for k in shown if panels is None or k in panels]
     # Heights in inches: room for a title above each panel, the panel, then below it its
     # x label (0.32) and its legend.
-    panels = [("timeline", 0.0, 1.45, 0.62)]
-    if show_hist:
-        panels.append(("histogram", 0.28, 1.3, 0.34))   # room for a two-line title
-    if show_tornado:
-        panels.append(("tornado", 0.0, 0.24 * len(rows) + 0.3, 0.34))
-    total = 0.1 + sum(pre + h + 0.32 + leg for _, pre, h, leg in panels)
+    sizes = {"timeline": (0.0, 1.45, 0.62),
+             "histogram": (0.28, 1.3, 0.34),   # room for a two-line title
+             "tornado": (0.0, 0.24 * len(rows) + 0.3, 0.34)}
+    layout = [(kind, *sizes[kind]) for kind in wanted]
+    total = 0.1 + sum(pre + h + 0.32 + leg for _, pre, h, leg in layout)
     with matplotlib.rc_context(_RC):
         fig = plt.figure(figsize=(FIG_WIDTH_IN, total))
         top = 1.0 - 0.1 / total
-        for kind, pre, h, leg in panels:
+        for kind, pre, h, leg in layout:
             bottom = top - (pre + h) / total
             ax = fig.add_axes((AXES_LEFT, bottom, 0.97 - AXES_LEFT, h / total))
             if kind == "timeline":
@@ -589,5 +608,6 @@ __all__ = [
     "svg_from_figure",
     "location_figure",
     "route_figure",
+    "route_panels",
     "credibility_figure",
 ]

@@ -22,7 +22,7 @@ import base64
 import multiprocessing as mp
 import os
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any, Mapping, Sequence
 
 from . import plots
 from .format import FILTERS, fmt_num, fmt_time, fmt_unit, fmt_value
@@ -223,13 +223,26 @@ class _Counter:
 
 
 class _Figures:
-    """Numbers figures in reading order and records what to draw for each."""
+    """Numbers figures in reading order and records what to draw for each.
+
+    A figure is one image, or with ``panels`` one image a panel (``fn`` drawn with
+    ``panels=[name]``): the parts of one numbered figure, so that a page may break
+    between panels but never inside one (the caption stays with the last part).
+    """
 
     def __init__(self) -> None:
         self.items: list[dict[str, Any]] = []
 
-    def add(self, fn: str, caption: str, **kwargs: Any) -> dict[str, Any]:
-        fig = {"number": len(self.items) + 1, "caption": caption, "job": (fn, kwargs),
+    def add(self, fn: str, caption: str, panels: Sequence[str] = (), **kwargs: Any
+            ) -> dict[str, Any]:
+        number = len(self.items) + 1
+        if len(panels) > 1:
+            parts = [{"job": (fn, {**kwargs, "panels": [name], "uid": f"{kwargs.get('uid', 'f')}-{k}"}),
+                      "suffix": f"-{chr(ord('a') + k)}", "src": None}
+                     for k, name in enumerate(panels)]
+        else:
+            parts = [{"job": (fn, kwargs), "suffix": "", "src": None}]
+        fig = {"number": number, "caption": caption, "job": parts[0]["job"], "parts": parts,
                "src": None}
         self.items.append(fig)
         return fig
@@ -287,6 +300,10 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
     study = {k: study_in.get(k) for k in ("title", "reference", "prepared_by", "prepared_for",
                                           "paper", "path", "sha256")}
     title = study.get("title") or "Egress margin assessment"
+    # the study's `report: {unused_locations: omit}` leaves out locations no route uses
+    # (named in one line); anything else, or none given, keeps them in the appendix
+    report_options = study_in.get("report") if isinstance(study_in.get("report"), Mapping) else {}
+    omit_unused = report_options.get("unused_locations") == "omit"
     acceptance_in = results.get("acceptance") or {}
     acceptance = acceptance_in.get("max_p_fail")
     criteria = results.get("criteria") or {}
@@ -342,6 +359,9 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
 
         matrix = [_matrix_row(loc_by_id[lid], loc_titles[lid], criterion_ids, exposed_by.get(lid, []))
                   for lid in used]
+        omitted = [loc_titles[lid] for lid in unused] if omit_unused else []
+        if omit_unused:
+            unused = []
         matrix_unused = [_matrix_row(loc_by_id[lid], loc_titles[lid], criterion_ids, [])
                          for lid in unused]
         for lid in used + unused:
@@ -359,6 +379,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
             "design_fire": [(DESIGN_FIRE_LABELS.get(k, str(k)), _given(v))
                             for k, v in _ordered_design_fire(sc.get("design_fire"))],
             "routes": routes, "matrix": matrix, "matrix_unused": matrix_unused,
+            "omitted_locations": omitted,
             "location_figures": loc_figures, "shared_elements": _shared_rows(sc),
         })
 
@@ -447,7 +468,8 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
             margin_samples_s=samples.get("margin_samples"), p_fail=rt.get("p_fail"),
             max_p_fail=acceptance, margin_p05_s=m05["value"] if not m05["at_least"] else None,
             sensitivity=sens[:10], base_margin_s=base_margin, uid=f"fig-{anchor}",
-            verdict=rt.get("verdict"))
+            verdict=rt.get("verdict"),
+            panels=plots.route_panels(samples.get("margin_samples"), sens[:10]))
     along = rt.get("along_route") if isinstance(rt.get("along_route"), Mapping) else {}
     mv = rt.get("movement") or {}
     ci = rt.get("p_fail_ci95")
@@ -787,9 +809,10 @@ def draw_figures(figures: list[dict[str, Any]], progress: Any = None) -> None:
 
     The figures are independent, so the order they are drawn in does not change a byte.
     """
+    parts = [part for f in figures for part in f["parts"]]
     if progress is not None:
-        progress.stage("figures", total=len(figures))
-    jobs = [f["job"] for f in figures]
+        progress.stage("figures", total=len(parts))
+    jobs = [part["job"] for part in parts]
     workers = _pool_size(len(jobs))
     if workers > 1:
         from concurrent.futures import ProcessPoolExecutor, as_completed
@@ -807,9 +830,11 @@ def draw_figures(figures: list[dict[str, Any]], progress: Any = None) -> None:
             images.append(_draw(job))
             if progress is not None:
                 progress.step()
-    for fig, png in zip(figures, images):
-        fig["png"] = png
-        fig["src"] = "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+    for part, png in zip(parts, images):
+        part["png"] = png
+        part["src"] = "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+    for fig in figures:
+        fig["png"], fig["src"] = fig["parts"][0]["png"], fig["parts"][0]["src"]
 
 
 # ----------------------------------------------------------------------------- render
@@ -918,7 +943,8 @@ def render_report(results: dict, plotdata: dict, out_dir: Path, paper: str = "A4
     -------
     dict of str to Path
         ``{"html": .../report.html}``, ``"plots": .../plots`` (one PNG file a figure,
-        numbered as in the report) and, with ``pdf``, ``"pdf": .../report.pdf``.
+        numbered as in the report; ``figure-NNN-a.png``, ``-b`` ... a panel of a figure
+        drawn in parts) and, with ``pdf``, ``"pdf": .../report.pdf``.
     """
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -929,7 +955,9 @@ def render_report(results: dict, plotdata: dict, out_dir: Path, paper: str = "A4
         plot_dir = out_dir / "plots"
         plot_dir.mkdir(exist_ok=True)
         for fig in figures:
-            (plot_dir / f"figure-{int(fig['number']):03d}.png").write_bytes(fig["png"])
+            for part in fig["parts"]:
+                name = f"figure-{int(fig['number']):03d}{part['suffix']}.png"
+                (plot_dir / name).write_bytes(part["png"])
         paths["plots"] = plot_dir
     if pdf:
         paths["pdf"] = write_pdf(html, out_dir / "report.pdf", progress)
