@@ -336,8 +336,6 @@ class DoseField:
     grid: np.ndarray          # (M, Lc, N) cumulative dose
     corners: np.ndarray       # (S, C) node indices
     weights: np.ndarray       # (S, C)
-    low: np.ndarray           # (S,) node index of the lower corner
-    high: np.ndarray          # (S,) node index of the upper corner
     pos: np.ndarray | None = None
     _base: np.ndarray | None = field(default=None, repr=False)
 
@@ -349,37 +347,6 @@ class DoseField:
             self._base = (self.corners[:, :, None] * Lc + lc[:, None, :]) * N
         g = self.grid.reshape(-1)[self._base + idx[:, None, :]]
         return np.einsum("sc,scl->sl", self.weights, g)
-
-    def crossing(self, limit: float) -> np.ndarray:
-        """(S, Lc) first time the dose reaches ``limit`` (linear between samples); NaN if never."""
-        n = self.grid.shape[2]
-        shape = (self.corners.shape[0], self.grid.shape[1])
-        last = self.values(np.full(shape, n - 1))
-        first = self.values(np.zeros(shape, int))
-        tc = self.bracketed_crossing(limit, np.zeros(shape, int), np.full(shape, n - 1))
-        tc = np.where(first >= limit, self.t_s[0], tc)
-        return np.where(last >= limit, tc, np.nan)
-
-    def bracketed_crossing(self, limit: float, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
-        """First crossing of the interpolated dose when ``dose(lo) < limit <= dose(hi)`` is known.
-
-        Bisection inside the bracket only, then linear interpolation between the two
-        samples (:meth:`crossing` calls it with the whole time axis as the bracket).
-        """
-        lo, hi = lo.copy(), hi.copy()
-        while True:
-            active = hi - lo > 1
-            if not active.any():
-                break
-            mid = (lo + hi) // 2
-            hit = self.values(mid) >= limit
-            hi = np.where(active & hit, mid, hi)
-            lo = np.where(active & ~hit, mid, lo)
-        d_lo, d_hi = self.values(lo), self.values(hi)
-        t = self.t_s
-        with np.errstate(divide="ignore", invalid="ignore"):
-            frac = np.where(d_hi > d_lo, (limit - d_lo) / (d_hi - d_lo), 1.0)
-        return t[lo] + np.clip(frac, 0.0, 1.0) * (t[hi] - t[lo])
 
     def at_times(self, times_s: np.ndarray) -> np.ndarray:
         """Dose at times (S, Lc) [s], linear between samples, held at the end value after the end."""
@@ -432,7 +399,7 @@ def dose_field(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
     k = len(g_vary)
     if k == 0:
         corners = np.zeros((S, 1), int)
-        return DoseField(prep.t_s, grid, corners, np.ones((S, 1)), corners[:, 0], corners[:, 0])
+        return DoseField(prep.t_s, grid, corners, np.ones((S, 1)))
     G = len(nodes[g_vary[0]])
     pos = np.empty((S, k))
     for j, q in enumerate(g_vary):
@@ -444,7 +411,7 @@ def dose_field(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
     bits = np.array(list(product((0, 1), repeat=k)))                      # (C, k)
     corners = ((i0[:, None, :] + bits[None, :, :]) * strides).sum(-1)      # (S, C)
     weights = np.prod(np.where(bits[None, :, :] == 1, w[:, None, :], 1 - w[:, None, :]), axis=-1)
-    return DoseField(prep.t_s, grid, corners, weights, (i0 * strides).sum(-1), ((i0 + 1) * strides).sum(-1), pos)
+    return DoseField(prep.t_s, grid, corners, weights, pos)
 
 
 def _linear_in(criterion: Criterion, varying: list[str]) -> bool:
