@@ -140,3 +140,12 @@ def test_median_incapacitation_uses_fed_1():
     for key, expected in GENERAL.items():
         if key not in ("fed_toxic", "fed_heat", "fed_hypoxia", "fec_irritant"):
             assert got[key] == expected, key
+
+
+def test_signs_not_a_word_is_a_located_problem():
+    """A list given for ``signs`` is reported as a problem (not a TypeError from a dict lookup)."""
+    from egressmargin.criteria import parse_criterion
+    problems = []
+    parse_criterion("visibility", {"limit": "10 m", "signs": ["light-emitting"]}, lambda kp: kp, problems)
+    assert [p.where for p in problems] == [("signs",)]
+    assert "expected one of light-emitting, light-reflecting" in problems[0].message

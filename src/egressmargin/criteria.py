@@ -47,6 +47,9 @@ POSITIVE_LIMITS = ("visibility", "heat_flux", "layer_height")
 
 TOXIC_METHODS = ("iso13571", "purser")
 
+#: Parameters whose value is one of a fixed set of words.
+CHOICES: dict[str, tuple[str, ...]] = {"method": TOXIC_METHODS, "signs": tuple(SIGN_CONSTANTS)}
+
 
 @dataclass(frozen=True)
 class Criterion:
@@ -164,10 +167,10 @@ def parse_criterion(cid: str, spec, where, problems: list[Problem], inherited: C
         if key not in spec:
             continue
         value = spec[key]
-        if key == "method":
-            if value not in TOXIC_METHODS:
-                problems.append(Problem(where((key,)), f"found '{value}'; expected one of "
-                                        f"{', '.join(TOXIC_METHODS)}{_did_you_mean(value, TOXIC_METHODS)}"))
+        if key in CHOICES:
+            if value not in CHOICES[key]:
+                problems.append(Problem(where((key,)), f"found {value!r}; expected one of "
+                                        f"{', '.join(CHOICES[key])}{_did_you_mean(value, CHOICES[key])}"))
                 continue
             params[key] = value
         elif key == "sign_constant":
@@ -177,12 +180,6 @@ def parse_criterion(cid: str, spec, where, problems: list[Problem], inherited: C
                                         "(8 for light-emitting, 3 for light-reflecting signs)"))
                 continue
             params[key] = float(value)
-        elif key == "signs":
-            if value not in SIGN_CONSTANTS:
-                problems.append(Problem(where((key,)), f"found {value!r}; expected one of "
-                                        f"{', '.join(SIGN_CONSTANTS)}{_did_you_mean(value, SIGN_CONSTANTS)}"))
-                continue
-            params[key] = value
         else:
             try:
                 params[key] = parse_quantity(value, pq)
@@ -220,6 +217,11 @@ def _settle_signs(spec: dict, params: dict, where, problems: list[Problem]) -> N
         params["signs"] = named[0] if named else "custom"
     params.setdefault("sign_constant", SIGN_CONSTANTS["light-emitting"])
     params.setdefault("signs", "light-emitting")
+
+
+def _states_signs(spec) -> bool:
+    """True when a visibility criterion's mapping states the kind of sign or its constant."""
+    return isinstance(spec, dict) and bool({"signs", "sign_constant"} & set(spec))
 
 
 def load_criteria_file(path: Path) -> CriteriaSet:
@@ -260,8 +262,7 @@ def criteria_from_document(doc: Located, problems: list[Problem]) -> CriteriaSet
         c = parse_criterion(cid, spec, lambda kp, cid=cid: doc.where(("criteria", cid) + tuple(kp)), problems)
         if c:
             items[cid] = c
-    vis = crit.get("visibility")
-    stated = isinstance(vis, dict) and bool({"signs", "sign_constant"} & set(vis))
+    stated = _states_signs(crit.get("visibility"))
     return CriteriaSet(str(data.get("name", doc.path.stem)), str(data.get("description", "")),
                        [str(s) for s in sources], items, doc.path, signs_default=not stated)
 
@@ -319,8 +320,7 @@ def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> C
                                             f"one of {', '.join(items)}{_did_you_mean(cid, items)}"))
             items = {k: v for k, v in items.items() if k in only}
     name = base.name + " (modified in the study)" if base else "set in the study file"
-    vis = value.get("visibility")
-    stated = isinstance(vis, dict) and bool({"signs", "sign_constant"} & set(vis))
+    stated = _states_signs(value.get("visibility"))
     return CriteriaSet(name, base.description if base else "Criteria given in the study file.",
                        list(base.sources) if base else ["as stated in the study file"], items,
                        base.path if base else None,
