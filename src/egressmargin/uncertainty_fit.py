@@ -471,8 +471,7 @@ def read_pairs(
             entry["unit"].append(cell("unit") or None)
 
     for quantity, lines in unknown.items():
-        close = difflib.get_close_matches(quantity, QUANTITIES, n=1, cutoff=0.6)
-        hint = f"; did you mean '{close[0]}'?" if close else ""
+        hint = did_you_mean(quantity, QUANTITIES)
         where_lines = ", ".join(str(k) for k in lines[:10]) + (", ..." if len(lines) > 10 else "")
         problems.append(
             Problem(
