@@ -556,16 +556,12 @@ def _parse_finite(text: str) -> float | None:
     return value if math.isfinite(value) else None
 
 
-#: Basis words a pairs file or ``--basis`` may use for each quantity: what its values are.
-#: Temperature may be given as rises, O2 as depletions; any quantity as given.
-_BASES_FOR = {"temperature": ("rise", "as-given"), "o2": ("depletion", "as-given")}
-
-
 def _basis_problems(where: str, quantity: str, word: str) -> list[Problem]:
     if word not in BASES:
         return [Problem(where, f"found '{word}', expected one of {', '.join(BASES)}"
                                f"{did_you_mean(word, BASES)}")]
-    allowed = _BASES_FOR.get(quantity, ("as-given",))
+    # what its values may be: the basis the run applies (rise, depletion) or as given
+    allowed = tuple(dict.fromkeys((applied_basis(quantity), "as-given")))
     if quantity in QUANTITIES and word not in allowed:
         return [Problem(where, f"basis '{word}' does not apply to {quantity}; expected "
                                f"{' or '.join(allowed)}")]
