@@ -319,7 +319,8 @@ def smoke_factor_key(kind: str | None) -> str:
 #: proven bound is wider is integrated exactly (project choice, well inside the 1 s the
 #: engine promises).
 EXACT_TOLERANCE_S = 0.5
-#: Cap on float64 elements per array in one block of the exact per-draw integration.
+#: Cap on float64 elements per array in one block of the exact per-draw integration
+#: (project choice: 8 MB per array keeps the temporaries small; results do not depend on it).
 EXACT_BLOCK_ELEMENTS = 1_000_000
 
 

@@ -667,7 +667,8 @@ def _round_sig(value: float, digits: int = _SIG_DIGITS) -> float:
     return float(f"{value:.{digits}g}")
 
 
-#: Significance level of the fit checks: a p-value below it is reported as a failure.
+#: Significance level of the fit checks: a p-value below it is reported as a failure
+#: (5 %, common practice for goodness-of-fit and trend tests).
 CHECK_ALPHA: float = 0.05
 
 #: Fewest pairs for which the checks are computed (Shapiro-Wilk needs 3).
