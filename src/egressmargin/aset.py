@@ -682,7 +682,8 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
     single = True
     names = dose_names(prep, criterion)
     fac = {q: np.broadcast_to(np.asarray(factors.get(q, 1.0), float), (S,)) for q in names}
-    k = sum(1 for q in names if np.ptp(fac[q]) > 0)
+    varying = [q for q in names if np.ptp(fac[q]) > 0]
+    k = len(varying)
     per_loc = 8 * len(prep.t_s) * GRID_NODES.get(k, 4) ** k * (3 if k == 1 else 1)   # with temporaries
     chunk = max(1, int(GRID_BYTES // per_loc))
     if k >= 2:
@@ -700,7 +701,6 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
             out[rows] = np.where(np.isinf(out[rows]), np.nan, out[rows])
             continue
         single = False
-        varying = [q for q in names if np.ptp(fac[q]) > 0]
         mono, convex, linear = dose_shape(prep, criterion, varying, rows, {q: float(fac[q].max()) for q in varying})
         t_rep, err, t_stop = _one_factor_times(fld, criterion.limit, mono, convex, linear)
         need = err > EXACT_TOLERANCE_S
