@@ -156,11 +156,9 @@ def parse_criterion(cid: str, spec, where, problems: list[Problem], inherited: C
         if not math.isfinite(limit):
             problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a finite limit"))
             return None
-        if quantity is None and not limit > 0:
-            problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a dose limit above 0"))
-            return None
-        if cid in POSITIVE_LIMITS and not limit > 0:
-            problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a {cid} limit above 0"))
+        if (quantity is None or cid in POSITIVE_LIMITS) and not limit > 0:
+            kind = "dose" if quantity is None else cid
+            problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a {kind} limit above 0"))
             return None
     params = dict(inherited.params) if inherited else {}
     for key, pq in PARAMETERS[cid].items():
