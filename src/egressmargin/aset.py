@@ -432,13 +432,7 @@ def dose_names(prep: Prepared, criterion: Criterion) -> list[str]:
 
 
 def _has(prep: Prepared, q: str) -> bool:
-    if q == "temperature":
-        return prep.rise is not None
-    if q == "heat_flux":
-        return prep.flux is not None
-    if q == "o2":
-        return prep.o2_depletion is not None
-    return q in prep.gases
+    return _base_series(prep, q) is not None
 
 
 def node_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float) -> np.ndarray:
@@ -494,15 +488,15 @@ def dose_shape(prep: Prepared, criterion: Criterion, varying: list[str], rows: n
     return mono, convex & ~linear, linear
 
 
-def _base_series(prep: Prepared, q: str) -> np.ndarray:
-    """The (L, N) series a factor of ``q`` multiplies (its validated form)."""
+def _base_series(prep: Prepared, q: str) -> np.ndarray | None:
+    """The (L, N) series a factor of ``q`` multiplies (its validated form); None if absent."""
     if q == "temperature":
         return prep.rise
     if q == "heat_flux":
         return prep.flux
     if q == "o2":
         return prep.o2_depletion
-    return prep.gases[q]
+    return prep.gases.get(q)
 
 
 def _pair_crossings(t_s: np.ndarray, grid: np.ndarray, limit: float, loc: np.ndarray, nodes: np.ndarray,
