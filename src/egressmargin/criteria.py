@@ -157,7 +157,7 @@ def parse_criterion(cid: str, spec, where, problems: list[Problem], inherited: C
             problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a finite limit"))
             return None
         if (quantity is None or cid in POSITIVE_LIMITS) and not limit > 0:
-            kind = "dose" if quantity is None else cid
+            kind = cid if quantity is not None else ("concentration (FEC)" if cid == "fec_irritant" else "dose")
             problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a {kind} limit above 0"))
             return None
     params = dict(inherited.params) if inherited else {}
