@@ -19,25 +19,19 @@ NAMED = """elements:
 egress:
 """
 
-ROUTE = """  - id: north-stair
-    occupants: 120
-    detection: 30 s
-    alarm: 30 s
-    premovement: {lognormal: {median: 60 s, p95: 150 s}}
-    path:
-      - {corridor: {length: 20 m, width: 2.0 m}}
-      - {door: {width: 1.0 m}}
-      - {stair: {length: 12 m, width: 1.2 m, riser: 178 mm, tread: 279 mm}}
-    exposed_at: [hall-l1, stair-l1]
-"""
+
+def _split(kit) -> tuple[str, str]:
+    """The fixture study (tests/conftest.py) split at `egress:`: (what precedes, its route list)."""
+    head, routes = kit.study.split("egress:\n")
+    return head, routes
 
 
 def shared_study(kit, second_id="south-stair"):
     """The fixture with the stair named and used by two routes."""
-    first = ROUTE.replace("      - {stair: {length: 12 m, width: 1.2 m, riser: 178 mm, tread: 279 mm}}",
+    head, route = _split(kit)
+    first = route.replace("      - {stair: {length: 12 m, width: 1.2 m, riser: 178 mm, tread: 279 mm}}",
                           "      - {element: shared-stair}")
     second = first.replace("north-stair", second_id).replace("occupants: 120", "occupants: 80")
-    head = kit.study[: kit.study.index("egress:\n")]
     return head + NAMED + first + second
 
 
@@ -168,10 +162,10 @@ def test_validate_explain_prints_the_hand_calculation(kit, make_study, cli):
 
 
 def test_shared_elements_in_contradicting_orders_and_unused_elements(kit, make_study, cli):
-    head = kit.study[: kit.study.index("egress:\n")]
+    head, route = _split(kit)
     elements = ("elements:\n  - id: d1\n    door: {width: 1.0 m}\n  - id: d2\n    door: {width: 1.2 m}\n"
                 "  - id: spare\n    door: {width: 2.0 m}\n")
-    body = ROUTE.replace("      - {door: {width: 1.0 m}}\n", "      - {element: d1}\n      - {element: d2}\n")
+    body = route.replace("      - {door: {width: 1.0 m}}\n", "      - {element: d1}\n      - {element: d2}\n")
     other = body.replace("north-stair", "south-stair").replace(
         "      - {element: d1}\n      - {element: d2}\n", "      - {element: d2}\n      - {element: d1}\n")
     status, out, err = cli(["validate", make_study(head + elements + "egress:\n" + body + other)])

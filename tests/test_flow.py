@@ -97,6 +97,17 @@ def test_crowd_speed_on_a_long_stair():
     assert r.exit_s[0] == pytest.approx(433.8, abs=0.2)
 
 
+def test_density_for_flow_inverts_the_specific_flow_of_movement_py():
+    # Closed form: on the crowded branch 0.54 <= D <= 1/(2a) = 1.8797 persons/m^2,
+    # Fs = (1 - a D) k D is increasing, so D -> Fs -> D returns D (SFPE Handbook ch. 59,
+    # from memory). Above the peak k/(4a) the density is held at 1/(2a).
+    from egressmargin.egress.movement import specific_flow
+    for k in (1.40, 1.08):
+        d = np.array([0.54, 1.0, 1.5, 1.8])
+        np.testing.assert_allclose(flow.density_for_flow(k, specific_flow(k, d)), d, atol=1e-9)
+    assert flow.density_for_flow(1.23, 1.16) == pytest.approx(1 / (2 * 0.266))
+
+
 def test_two_floors_of_150_on_one_shared_stair():
     # Hand: each floor: 10 m corridor 2.0 m wide (We 1.6 m, 2.08 persons/s, unimpeded
     # 1.19 m/s, 8.40 s) to a shared 20 m stair of c = 0.909 persons/s.

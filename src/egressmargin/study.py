@@ -264,23 +264,29 @@ class _Checker:
             return None
         return v
 
+    def distribution_params(self, name, params, kp, parse) -> dict | None:
+        """The parameters of distribution `name`, each read by parse(value, key path); None on error."""
+        needed = DISTRIBUTIONS[name]
+        if not self.keys(params, kp + (name,), set(needed), f"a {name} distribution ({', '.join(needed)})"):
+            return None
+        out = {}
+        for p in needed:
+            if p not in params:
+                self.err(kp + (name,), f"missing '{p}' for the {name} distribution; expected "
+                         f"{', '.join(needed)} as times, e.g. '90 s'")
+                continue
+            v = parse(params[p], kp + (name, p))
+            if v is not None:
+                out[p] = v
+        return out if len(out) == len(needed) else None
+
     def distribution(self, value, kp, what):
         """A time: fixed ('60 s') or a distribution mapping, returned in seconds."""
         if isinstance(value, dict) and len(value) == 1 and next(iter(value)) in DISTRIBUTIONS:
             name, params = next(iter(value.items()))
-            needed = DISTRIBUTIONS[name]
-            if not self.keys(params, kp + (name,), set(needed), f"a {name} distribution ({', '.join(needed)})"):
-                return None
-            out = {}
-            for p in needed:
-                if p not in params:
-                    self.err(kp + (name,), f"missing '{p}' for the {name} distribution; expected "
-                             f"{', '.join(needed)} as times, e.g. '90 s'")
-                    continue
-                v = self.quantity(params[p], kp + (name, p), "duration")
-                if v is not None:
-                    out[p] = v
-            if len(out) != len(needed):
+            out = self.distribution_params(name, params, kp,
+                                           lambda v, kpp: self.quantity(v, kpp, "duration"))
+            if out is None:
                 return None
             spec = {name: out}
             from .egress.distributions import check_spec, truncation_note
@@ -897,27 +903,18 @@ def _duration(ck, value, kp, what) -> dict | None:
     if not nested:
         return ck.distribution(value, kp, what)
     name, params = next(iter(value.items()))
-    needed = DISTRIBUTIONS[name]
-    if not ck.keys(params, kp + (name,), set(needed), f"a {name} distribution ({', '.join(needed)})"):
-        return None
-    out = {}
-    for p in needed:
-        if p not in params:
-            ck.err(kp + (name,), f"missing '{p}' for the {name} distribution; expected {', '.join(needed)}")
-            continue
-        v = params[p]
-        if isinstance(v, dict):
-            if len(v) != 1 or next(iter(v)) not in BOUNDED_KINDS:
-                ck.err(kp + (name, p), f"found {_show(v)}; an uncertain parameter needs a bounded "
-                       "distribution: {uniform: {low, high}} or {triangular: {low, mode, high}} of times")
-                continue
-            sub = ck.distribution(v, kp + (name, p), f"the {p} of the {name} distribution")
-        else:
-            q = ck.quantity(v, kp + (name, p), "duration")
-            sub = None if q is None else q
-        if sub is not None:
-            out[p] = sub
-    if len(out) != len(needed):
+
+    def parse(v, kpp):
+        if not isinstance(v, dict):
+            return ck.quantity(v, kpp, "duration")
+        if len(v) != 1 or next(iter(v)) not in BOUNDED_KINDS:
+            ck.err(kpp, f"found {_show(v)}; an uncertain parameter needs a bounded "
+                   "distribution: {uniform: {low, high}} or {triangular: {low, mode, high}} of times")
+            return None
+        return ck.distribution(v, kpp, f"the {kpp[-1]} of the {name} distribution")
+
+    out = ck.distribution_params(name, params, kp, parse)
+    if out is None:
         return None
     spec = {name: out}
     problems = check_nested_spec(spec)

@@ -12,6 +12,8 @@ import re
 
 import numpy as np
 
+from .tenability.irritants import IRRITANT_GASES
+
 #: Internal unit of every series key and of the other quantities the study names.
 #: Gas concentrations are volume (mole) fractions; `ppm` and `percent` are read as
 #: volume fractions too (contract: "For gases, percent and mol/mol are volume fractions").
@@ -29,7 +31,7 @@ INTERNAL_UNITS: dict[str, str] = {
     "heat_flux": "kW/m^2",
     "layer_height": "m",
     "velocity": "m/s",
-    **{gas: "dimensionless" for gas in ("hcl", "hbr", "hf", "so2", "no2", "acrolein", "formaldehyde")},
+    **{gas: "dimensionless" for gas in IRRITANT_GASES},
     "length": "m",
     "duration": "s",
     "rti": "m^0.5*s^0.5",
@@ -52,7 +54,7 @@ EXAMPLES: dict[str, str] = {
     "heat_flux": "kW/m^2",
     "layer_height": "m",
     "velocity": "m/s",
-    **{gas: "ppm or mol/mol" for gas in ("hcl", "hbr", "hf", "so2", "no2", "acrolein", "formaldehyde")},
+    **{gas: "ppm or mol/mol" for gas in IRRITANT_GASES},
     "length": "m or mm",
     "duration": "s or min",
     "rti": "m^0.5*s^0.5",
@@ -89,7 +91,7 @@ UNIT_ALIASES: dict[str, str] = {
 
 #: Series keys that are gas concentrations: read only as volume (mole) fractions (contract,
 #: "Units"; the irritants are listed in "Added in turn 2").
-GAS_KEYS = ("co", "co2", "o2", "hcn", "hcl", "hbr", "hf", "so2", "no2", "acrolein", "formaldehyde")
+GAS_KEYS = ("co", "co2", "o2", "hcn", *IRRITANT_GASES)
 
 #: The units (after :data:`UNIT_ALIASES`) a gas series may be given in. pint would also
 #: take any other dimensionless unit (``kg/kg``, ``mg/kg``, ``turn``, ``radian``,
@@ -138,11 +140,6 @@ def _factor_offset(unit: str, target: str) -> tuple[float, float]:
     return float(a), float(b)
 
 
-def _target(quantity: str) -> str:
-    """Internal unit of ``quantity``; every gas key is a volume fraction, listed or not."""
-    return INTERNAL_UNITS.get(quantity) or ("dimensionless" if quantity in GAS_KEYS else INTERNAL_UNITS[quantity])
-
-
 def check_unit(unit: str, quantity: str) -> str | None:
     """Return None if ``unit`` converts to the internal unit of ``quantity``, else a message.
 
@@ -156,7 +153,7 @@ def check_unit(unit: str, quantity: str) -> str | None:
     "found 'mg/kg', which is not a volume fraction; expected ppm, ppmv, ppb, percent, %, vol%, mol/mol or '-'"
     """
     try:
-        _factor_offset(unit, _target(quantity))
+        _factor_offset(unit, INTERNAL_UNITS[quantity])
     except UnitProblem as exc:
         example = EXAMPLES.get(quantity, _VOLUME_FRACTION_TEXT)
         return f"{exc}; expected a unit of {quantity.replace('_', ' ')} such as {example}"
@@ -191,7 +188,7 @@ def same_unit(a: str, b: str, quantity: str) -> bool:
     >>> same_unit("C", "degC", "temperature"), same_unit("percent", "ppm", "co")
     (True, False)
     """
-    fa, fb = _factor_offset(a, _target(quantity)), _factor_offset(b, _target(quantity))
+    fa, fb = _factor_offset(a, INTERNAL_UNITS[quantity]), _factor_offset(b, INTERNAL_UNITS[quantity])
     return all(math.isclose(x, y, rel_tol=1e-9, abs_tol=1e-12) for x, y in zip(fa, fb))
 
 
@@ -214,7 +211,7 @@ def to_internal(values, unit: str, quantity: str) -> np.ndarray:
     >>> round(float(to_internal(68.0, "degF", "temperature")), 6)
     20.0
     """
-    a, b = _factor_offset(unit, _target(quantity))  # raises UnitProblem with a message for the user
+    a, b = _factor_offset(unit, INTERNAL_UNITS[quantity])  # raises UnitProblem with a message for the user
     out = np.asarray(values, dtype=float) * a
     return out + b if b else out
 
@@ -309,7 +306,7 @@ def display_unit(quantity: str) -> str:
     """The unit used to show a quantity to people (report and results)."""
     return {"co": "ppm", "co2": "percent", "o2": "percent", "hcn": "ppm", "soot": "mg/m^3",
             "fraction": "percent", "duration": "s", "length": "m",
-            **{gas: "ppm" for gas in ("hcl", "hbr", "hf", "so2", "no2", "acrolein", "formaldehyde")},
+            **{gas: "ppm" for gas in IRRITANT_GASES},
             }.get(quantity, INTERNAL_UNITS[quantity])
 
 

@@ -441,8 +441,6 @@ def ppf_varying(spec: Any, u: Any, parameter_u: dict[str, np.ndarray] | None = N
             values[name] = ppf(params[name], v).reshape((-1,) + (1,) * (u.ndim - 1))
         else:
             values[name] = float(value)
-    if kind == "fixed":
-        values = {"value": values.get("value", next(iter(values.values())))}
     safe = np.where(np.isnan(u), 0.5, u)
     return np.where(np.isnan(u), np.nan, _ppf_math(kind, values, safe))
 

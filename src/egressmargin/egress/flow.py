@@ -229,8 +229,9 @@ def density_for_flow(k, specific_flow_p_s_m) -> np.ndarray:
 
     Notes
     -----
-    Fs = (1 - a D) k D (SFPE Handbook ch. 59, from memory) solved for the smaller root,
-    the branch on which density rises with flow:
+    The inverse of :func:`egressmargin.egress.movement.specific_flow` on its crowded
+    branch: Fs = (1 - a D) k D (SFPE Handbook ch. 59, from memory) solved for the
+    smaller root, the branch on which density rises with flow:
 
         D = (1 - sqrt(1 - 4 a Fs / k)) / (2 a),   a = 0.266 m^2/person.
 
