@@ -20,6 +20,7 @@ from engine_helpers import results_for, write_study
 from egressmargin import assess
 from egressmargin.egress import distributions as dist
 from egressmargin.egress.movement import element_properties
+from egressmargin.stats import rounded
 from egressmargin.study import DetectorRule
 
 
@@ -75,7 +76,7 @@ def _one_at_a_time(route, routes, prep, sweep_factors, sweep_index, sweep_loc_as
     rows.append(assess._swing(f"effective width of element {ctrl + 1} ({route.path[ctrl]['type']})", "-10 %",
                               "+10 %", margin_with(width={node: 1 - frac}), margin_with(width={node: 1 + frac})))
     rows.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
-    return [dict(r, base_margin_s=assess._finite(base), lower_bound=bool(censored.any())) for r in rows]
+    return [dict(r, base_margin_s=rounded(base, 2), lower_bound=bool(censored.any())) for r in rows]
 
 
 def _reference(routes, prep, sweep_factors, sweep_index, sweep_loc_aset, labels, named=None, only=None):

@@ -18,7 +18,7 @@ from .egress.detection import rti_response
 from .egress.flow import NetElement, NetRoute, NodeFlow, RouteFlow, quantile_positions, simulate
 from .egress.movement import element_properties, movement_time
 from .egress.rset import compose_rset
-from .stats import share, summarise
+from .stats import rounded, share, summarise
 from .study import DetectorRule, RouteSpec
 from .tenability.crossing import crossing_times_for_levels
 
@@ -608,7 +608,7 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
         rows += [_swing(st.label, st.low_name, st.high_name, a0 - float(rset[r]), a0 - float(rset[r + 1]))
                  for st, r in zip(settings[k], first_row[k])]
         rows.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
-        out[route.id] = [dict(r, base_margin_s=_finite(margin[0]), lower_bound=bool(censored.any())) for r in rows]
+        out[route.id] = [dict(r, base_margin_s=rounded(margin[0], 2), lower_bound=bool(censored.any())) for r in rows]
     return out
 
 
@@ -619,12 +619,7 @@ def sensitivity(route: RouteSpec, routes: list[RouteSpec], prep, sweep_factors, 
                                 only=[route.id])[route.id]
 
 
-def _finite(x) -> float | None:
-    x = float(x)
-    return round(x, 2) if np.isfinite(x) else None
-
-
 def _swing(name, low, high, m_low, m_high) -> dict:
-    lo, hi = _finite(m_low), _finite(m_high)
+    lo, hi = rounded(m_low, 2), rounded(m_high, 2)
     swing = None if lo is None or hi is None else round(abs(hi - lo), 2)
     return {"input": name, "low": low, "high": high, "margin_low_s": lo, "margin_high_s": hi, "swing_s": swing}

@@ -20,7 +20,7 @@ from .egress import summary as egress_summary
 from .credibility import flag_change, grid_convergence
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
-from .stats import share, summarise
+from .stats import rounded as _t, share, summarise
 from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study, data_problems
 from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
@@ -217,11 +217,6 @@ def si_keys(sweep_index) -> list[str]:
 def _label(key: str) -> str:
     """Words for a table row swept in the sensitivity study."""
     return FACTOR_LABELS.get(key, f"model error: {key}")
-
-
-def _t(x) -> float | None:
-    x = float(x)
-    return round(x, 3) if np.isfinite(x) else None
 
 
 def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool = True):
