@@ -1,5 +1,5 @@
-"""ASET against RSET per escape route: margins, probability of failure, verdict,
-dose along the route, and one-at-a-time sensitivity.
+"""ASET against RSET per escape route: per-draw ASET, RSET and margin (the verdict is
+:mod:`egressmargin.verdict`'s), dose along the route, and one-at-a-time sensitivity.
 
 Pure computation on arrays prepared by :mod:`egressmargin.aset` and the egress
 package; the pipeline decides what to run and writes the results.
@@ -254,8 +254,6 @@ class RouteOutcome:
     governing_location: str | None
     governing_criterion: str | None
     margin: np.ndarray
-    p_fail: float
-    verdict: str
     extras: dict = field(default_factory=dict)
 
 
@@ -265,8 +263,7 @@ def route_aset(loc_aset: np.ndarray, ids: list[str], exposed: list[str]) -> np.n
     return loc_aset[rows].min(axis=0)
 
 
-def outcome(route: RouteSpec, prep, loc_aset, loc_aset_raw, governing_raw, egress: RouteEgress,
-            max_p_fail) -> RouteOutcome:
+def outcome(route: RouteSpec, prep, loc_aset, loc_aset_raw, governing_raw, egress: RouteEgress) -> RouteOutcome:
     rset, comps, mv = egress.rset, egress.components, egress.movement
     a = route_aset(loc_aset, prep.ids, route.exposed_at)
     rows = [prep.ids.index(x) for x in route.exposed_at]
@@ -275,14 +272,11 @@ def outcome(route: RouteSpec, prep, loc_aset, loc_aset_raw, governing_raw, egres
     aset_raw = float(raw_vals[j])
     with np.errstate(invalid="ignore"):
         margin = a - rset
-    fail = a < rset
-    p_fail = share(fail)
     # governing location: the exposed location with the earliest median ASET
     med = [np.median(np.where(np.isfinite(loc_aset[r]), loc_aset[r], np.inf)) for r in rows]
     g = int(np.argmin(med))
     return RouteOutcome(rset, comps, mv, a, aset_raw, route.exposed_at[g] if np.isfinite(med[g]) else None,
-                        governing_raw[rows[g]] if np.isfinite(med[g]) else None, margin, p_fail,
-                        "pass" if p_fail <= max_p_fail else "fail",
+                        governing_raw[rows[g]] if np.isfinite(med[g]) else None, margin,
                         {"location_aware": location_aware(route, egress, loc_aset, prep.ids)})
 
 

@@ -311,8 +311,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     sensitivities = None
     for ri, route in routes_here:
         eg, fac_r, s_used = egress, fac, S
-        out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, eg.routes[route.id],
-                             study.max_p_fail)
+        out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, eg.routes[route.id])
         # Settle the statistics by sampling more where the interval straddles the limit: the
         # scenario's ASET and its (shared) egress again with twice the draws, same seed streams.
         while s_used < s_max and needs_more_samples(out.aset, out.rset, end, study.max_p_fail):
@@ -321,8 +320,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             if s_used not in bigger:
                 bigger = {s_used: egress_at(s_used, fac_r)}        # keep one count: memory
             eg = bigger[s_used]
-            out = assess.outcome(route, prep, loc_big, raw_aset, governing_raw, eg.routes[route.id],
-                                 study.max_p_fail)
+            out = assess.outcome(route, prep, loc_big, raw_aset, governing_raw, eg.routes[route.id])
         margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
         route_locs = [locations[prep.ids.index(loc)] for loc in route.exposed_at]
         assessed_any = any(c.get("status") == "assessed" for loc in route_locs for c in loc["criteria"].values())
