@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from egressmargin.verdict import FAIL, PASS, UNKNOWN, decide, draw_outcomes, needs_more_samples, wilson_interval
+from egressmargin.verdict import FAIL, PASS, UNKNOWN, Z_95, decide, draw_outcomes, needs_more_samples, wilson_interval
 from engine_helpers import results_for, write_study
 
 
@@ -28,6 +28,11 @@ def test_draw_outcomes_follow_the_contract():
     aset = np.array([100.0, np.inf, np.inf, 100.0, 200.0, np.inf, 250.0])
     rset = np.array([150.0, 250.0, 400.0, np.inf, 200.0, np.inf, 350.0])
     assert draw_outcomes(aset, rset, end).tolist() == [FAIL, PASS, UNKNOWN, FAIL, PASS, UNKNOWN, FAIL]
+
+
+def test_z_95_is_the_two_sided_normal_quantile():
+    # Phi^-1(0.975), scipy.stats.norm.ppf: the z of a two-sided 95 % interval
+    assert Z_95 == pytest.approx(stats.norm.ppf(0.975), rel=1e-15)
 
 
 @pytest.mark.parametrize("k,n", [(0, 2000), (96, 2000), (100, 2000), (2000, 2000), (7, 50)])

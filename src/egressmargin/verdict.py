@@ -33,8 +33,9 @@ __all__ = ["FAIL", "PASS", "UNKNOWN", "Z_95", "Verdict", "draw_outcomes", "wilso
 
 FAIL, PASS, UNKNOWN = 0, 1, 2
 
-#: Two-sided 95 % standard normal quantile, Phi^-1(0.975) = 1.959964 (computed by the
-#: standard library, not typed in; scipy.stats.norm.ppf(0.975) gives the same in the tests).
+#: Two-sided 95 % standard normal quantile, Phi^-1(0.975) = 1.959964: the value of
+#: scipy.stats.norm.ppf(0.975), typed in (the tests check it against scipy). Not
+#: :data:`egressmargin.egress.distributions.Z_95`, which is the one-sided Phi^-1(0.95).
 Z_95: float = 1.959963984540054
 
 #: How the interval on p_fail is computed (printed in the report and results).
