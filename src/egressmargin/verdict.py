@@ -161,10 +161,13 @@ def _intervals(outcomes: np.ndarray, deterministic: bool):
 
 
 def _is_deterministic(aset_s, rset_s) -> bool:
-    """True when every draw has the same ASET and RSET (no uncertain input at all)."""
+    """True when every draw has the same ASET and RSET (no uncertain input at all).
+
+    Draws lie on the last axis: for (L, S) arrays, every place the same in every draw.
+    """
     a = np.where(np.isfinite(aset_s), aset_s, np.inf)
     r = np.where(np.isfinite(rset_s), rset_s, np.inf)
-    return bool(np.all(a == a[0]) and np.all(r == r[0])) if a.size else True
+    return bool(np.all(a == a[..., :1]) and np.all(r == r[..., :1]))
 
 
 def needs_more_samples(aset_s, rset_s, end_s: float, max_p_fail: float) -> bool:
@@ -219,11 +222,7 @@ def decide(aset_s, rset_s, end_s: float, max_p_fail: float, *, assessed: bool = 
     """
     a = np.asarray(aset_s, float)
     r = np.asarray(rset_s, float)
-    if a.ndim == 1:
-        det = _is_deterministic(a, r)
-    else:                               # (L, S): every place the same in every draw
-        a2, r2 = (np.where(np.isfinite(x), x, np.inf) for x in (a, r))
-        det = bool(np.all(a2 == a2[:, :1]) and np.all(r2 == r2[:, :1]))
+    det = _is_deterministic(a, r)
     out = draw_outcomes(a, r, end_s) if outcomes is None else np.asarray(outcomes)
     n, p_low, p_high, ci, ci_low, share_unknown = _intervals(out, det)
     lim = _pct(max_p_fail)
