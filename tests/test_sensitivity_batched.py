@@ -43,10 +43,15 @@ def _one_at_a_time(route, routes, prep, sweep_factors, sweep_index, sweep_loc_as
     a0 = float(a[0])
 
     def margin_with(quantiles=None, scale=None, width=None) -> float:
-        q = [None] * n
+        draws = [assess.EgressDraws.median(1) for _ in range(n)]
+        for key, u in (quantiles or {}).items():          # this route's input at uniform u
+            if key.startswith("premovement."):
+                draws[k].parameters[key.split(".", 1)[1]] = np.full(1, u)
+            else:
+                setattr(draws[k], key, np.full(1, u))
         sc = [None] * n
-        q[k], sc[k] = quantiles, scale
-        eg = assess.scenario_egress(routes, prep, base_f, [assess.EgressDraws.median(1)] * n, named, q, sc, width)
+        sc[k] = scale
+        eg = assess.scenario_egress(routes, prep, base_f, draws, named, sc, width)
         return a0 - float(eg.routes[route.id].rset[0])
 
     low, high, frac = assess.SWEEP_LOW, assess.SWEEP_HIGH, assess.SWEEP_FRACTION

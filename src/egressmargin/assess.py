@@ -121,18 +121,14 @@ class RouteInputs:
         return np.take_along_axis(self.premovement_s, (self.counts - 1)[:, None], axis=1)[:, 0]
 
 
-def _u(stream, S, q=None):
-    if q is not None:
-        return np.full(S, q)
+def _u(stream, S):
     return np.full(S, 0.5) if stream is None else stream
 
 
-def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, quantiles: dict | None = None,
-                 scale: dict | None = None) -> RouteInputs:
+def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, scale: dict | None = None) -> RouteInputs:
     """Detection, alarm, occupants, start times and movement factors of a route, per draw.
 
-    ``quantiles`` overrides the uniform of an input (detection, alarm, premovement,
-    occupants, flow_factor, speed_factor, or ``premovement.<parameter>``); ``scale``
+    An input set by the uniform of its stream in ``draws`` (None: the median); ``scale``
     multiplies ``occupants``, ``flow_factor`` or ``speed_factor`` (a +/-10 % sweep), by a
     number or by one per draw (shape (S,)).
 
@@ -143,17 +139,17 @@ def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, quantiles:
     F^-1((i - 1/2)/N) (:func:`egressmargin.egress.flow.quantile_positions`); with
     ``premovement: F`` everyone starts at detection + alarm + one draw of F.
     """
-    q, sc = quantiles or {}, scale or {}
+    sc = scale or {}
     S = len(draws.detection)
-    det = detection_times(route.detection, prep, factors, _u(draws.detection, S, q.get("detection")))
-    alarm = dist.ppf(route.alarm, _u(draws.alarm, S, q.get("alarm")))
+    det = detection_times(route.detection, prep, factors, _u(draws.detection, S))
+    alarm = dist.ppf(route.alarm, _u(draws.alarm, S))
     occ_spec = route.occupants_dist or {"fixed": float(route.occupants)}
-    occ = dist.ppf(occ_spec, _u(draws.occupants, S, q.get("occupants"))) * sc.get("occupants", 1.0)
+    occ = dist.ppf(occ_spec, _u(draws.occupants, S)) * sc.get("occupants", 1.0)
     counts = np.maximum(np.rint(occ), 1).astype(int)
-    flow_f = dist.ppf(route.flow_factor, _u(draws.flow_factor, S, q.get("flow_factor"))) * sc.get("flow_factor", 1.0)
-    speed_f = dist.ppf(route.speed_factor, _u(draws.speed_factor, S, q.get("speed_factor"))) \
+    flow_f = dist.ppf(route.flow_factor, _u(draws.flow_factor, S)) * sc.get("flow_factor", 1.0)
+    speed_f = dist.ppf(route.speed_factor, _u(draws.speed_factor, S)) \
         * sc.get("speed_factor", 1.0)
-    params = {name: _u(draws.parameters.get(name), S, q.get(f"premovement.{name}"))
+    params = {name: _u(draws.parameters.get(name), S)
               for name in dist.parameter_specs(route.premovement)}
     if route.premovement_across:
         pre = dist.ppf_varying(route.premovement, quantile_positions(counts), params)
@@ -161,7 +157,7 @@ def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, quantiles:
             starts = (det + alarm)[:, None] + pre
         starts = np.where(np.isnan(starts), np.inf, starts)
     else:
-        one = dist.ppf_varying(route.premovement, _u(draws.premovement, S, q.get("premovement")), params)
+        one = dist.ppf_varying(route.premovement, _u(draws.premovement, S), params)
         present = np.arange(counts.max())[None, :] < counts[:, None]
         pre = np.where(present, one[:, None], np.nan)
         with np.errstate(invalid="ignore"):
@@ -193,11 +189,11 @@ def _node(route: RouteSpec, i: int, element: dict) -> str:
 
 
 def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDraws], named: dict | None = None,
-                    quantiles: list[dict] | None = None, scale: list[dict] | None = None,
+                    scale: list[dict] | None = None,
                     width_scale: dict[str, float] | None = None) -> ScenarioEgress:
     """RSET of every route of a scenario, routes that share named elements merged.
 
-    ``quantiles``/``scale`` are per route (see :func:`route_inputs`); ``width_scale``
+    ``scale`` is per route (see :func:`route_inputs`); ``width_scale``
     multiplies the effective width (hence capacity) of the named nodes given, by a
     number or by one per draw (shape (S,)).
 
@@ -211,8 +207,7 @@ def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDr
     width_scale = width_scale or {}
     nets, inputs, props = [], [], []
     for k, route in enumerate(routes):
-        inp = route_inputs(route, prep, factors, draws[k], (quantiles or [None] * len(routes))[k],
-                           (scale or [None] * len(routes))[k])
+        inp = route_inputs(route, prep, factors, draws[k], (scale or [None] * len(routes))[k])
         pr = [element_properties(e) for e in route.path]
         elements = []
         for i, (e, p) in enumerate(zip(route.path, pr)):
