@@ -219,6 +219,12 @@ def _label(key: str) -> str:
     return FACTOR_LABELS.get(key, f"model error: {key}")
 
 
+def _repeat_draws(raw: dict, S: int) -> dict:
+    """The one-draw results ``raw`` as S identical draws (no model-error correction)."""
+    return {cid: aset.CriterionResult(np.repeat(r.times, S, axis=1), r.assessed, r.missing, None, r.partial)
+            for cid, r in raw.items()}
+
+
 def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool = True):
     """Everything about one scenario: location criteria, routes, credibility; plus plot data."""
     study, table = loaded.study, loaded.table
@@ -232,8 +238,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     if factors:
         corr = aset.evaluate(prep, crit, factors, S)
     else:
-        corr = {cid: aset.CriterionResult(np.repeat(r.times, S, axis=1), r.assessed, r.missing, None, r.partial)
-                for cid, r in raw.items()}
+        corr = _repeat_draws(raw, S)
     loc_aset = aset.location_aset(corr)
     end = data.end_s
     locations = []
@@ -290,8 +295,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         ppfs = factor_ppfs(table, prep)
         sweep_factors, sweep_index = assess.factor_sweep_rows(ppfs)
         R = 1 + 2 * len(sweep_index)
-        sweep_res = aset.evaluate(prep, crit, sweep_factors, R, with_bound=False) if ppfs else \
-            {cid: aset.CriterionResult(np.repeat(r.times, R, axis=1), r.assessed, r.missing) for cid, r in raw.items()}
+        sweep_res = aset.evaluate(prep, crit, sweep_factors, R, with_bound=False) if ppfs else _repeat_draws(raw, R)
         sweep = (sweep_factors, sweep_index, aset.location_aset(sweep_res))
     routes, route_plots = [], {}
     fac = factors if factors else {}
@@ -305,7 +309,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     # raw deterministic margin: raw ASET against RSET at median inputs
     egress_med = assess.scenario_egress(specs_here, prep, {}, [assess.EgressDraws.median()] * len(specs_here),
                                         study.elements) if routes_here else None
-    more = _MoreSamples(table, prep, crit, seed, index)
+    more = _MoreSamples(table, prep, crit, seed, index, raw)
     s_max = max(study.max_samples, S)
     bigger: dict[int, object] = {}
     sensitivities = None
@@ -368,19 +372,15 @@ def _limit_value(c):
 class _MoreSamples:
     """The scenario's ASET draws at a larger sample count, computed once per count."""
 
-    def __init__(self, table, prep, crit, seed, index):
-        self.table, self.prep, self.crit, self.seed, self.index = table, prep, crit, seed, index
+    def __init__(self, table, prep, crit, seed, index, raw):
+        self.table, self.prep, self.crit, self.seed, self.index, self.raw = table, prep, crit, seed, index, raw
         self.cache: dict[int, tuple[dict, np.ndarray]] = {}
 
     def at(self, S: int):
         if S not in self.cache:
             factors = draw_scenario_factors(self.table, self.prep, S, self.seed, self.index) if self.table else {}
-            if factors:
-                res = aset.evaluate(self.prep, self.crit, factors, S, with_bound=False)
-            else:
-                raw = aset.evaluate(self.prep, self.crit, {}, 1, with_bound=False)
-                res = {cid: aset.CriterionResult(np.repeat(r.times, S, axis=1), r.assessed, r.missing, None)
-                       for cid, r in raw.items()}
+            res = (aset.evaluate(self.prep, self.crit, factors, S, with_bound=False) if factors
+                   else _repeat_draws(self.raw, S))
             self.cache = {S: (factors, aset.location_aset(res))}    # keep one count: memory
         return self.cache[S]
 
