@@ -158,8 +158,12 @@ def test_pipeline_draws_more_samples_where_the_interval_straddles(tmp_path):
     path.write_text(yaml.safe_dump(doc))
     r = results_for(path)[0]["scenarios"][0]["routes"][0]
     assert r["samples_used"] > 500
-    lo, hi = r["p_fail_ci95"]
-    assert lo <= r["p_fail"] <= hi
+    n = r["samples_used"]
+    # uniform premovement above 200 - 10 - 5 - 10/0.91 s (closed form), within 4 binomial sd
+    p = (177.9 - (200.0 - 10.0 - 5.0 - 10 / 0.91)) / 77.9
+    assert r["p_fail"] == pytest.approx(p, abs=4 * np.sqrt(p * (1 - p) / n))
+    ref = stats.binomtest(round(r["p_fail"] * n), n).proportion_ci(confidence_level=0.95, method="wilson")
+    assert r["p_fail_ci95"] == pytest.approx([ref.low, ref.high], abs=1e-4)   # scipy's Wilson interval
 
 
 def test_fixed_inputs_give_a_point_interval(tmp_path):
