@@ -14,7 +14,6 @@ from __future__ import annotations
 import json
 
 import numpy as np
-import pytest
 
 from engine_helpers import results_for, write_study
 from egressmargin import assess
@@ -169,22 +168,3 @@ def test_per_draw_width_moves_the_controlling_element():
                       (NetElement("a", 20.0, 1.4, 0.6, 0.78), NetElement("b", 15.0, 1.4, 0.65, 0.845)),
                       np.ones(1), np.ones(1))
     assert scalar.controlling == 0
-
-
-def test_one_route_alone_gives_its_row_of_the_scenario_sweep(tmp_path, monkeypatch):
-    """``sensitivity`` (one route swept) equals that route's entry of the scenario sweep."""
-    seen = []
-    batched_fn = assess.scenario_sensitivity
-
-    def recording(*args, **kw):
-        seen.append((args, kw))
-        return batched_fn(*args, **kw)
-
-    monkeypatch.setattr(assess, "scenario_sensitivity", recording)
-    results_for(_study(tmp_path))
-    ((args, kw),) = seen
-    routes = args[0]
-    whole = batched_fn(*args, **kw)
-    for route in routes:
-        assert batched_fn(*args, **kw, only=[route.id]) == {route.id: whole[route.id]}
-        assert assess.sensitivity(route, *args, **kw) == whole[route.id]

@@ -529,7 +529,7 @@ _STREAMS = ("detection", "alarm", "premovement", "occupants", "flow_factor", "sp
 
 
 def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_index, sweep_loc_aset, labels: dict,
-                         named: dict | None = None, only: list[str] | None = None) -> dict[str, list[dict]]:
+                         named: dict | None = None) -> dict[str, list[dict]]:
     """One-at-a-time swing of each route's margin (at median inputs) for each uncertain input.
 
     Parameters
@@ -544,8 +544,6 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
         Table words for the factor rows.
     named : dict, optional
         The study's named (shared) elements.
-    only : list of str, optional
-        Ids of the routes to sweep (default: all).
 
     Returns
     -------
@@ -556,15 +554,14 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
     -----
     Every setting is a row (a draw) of one flow run of the whole scenario: the factor
     rows with all egress inputs at their medians, then two rows per
-    :func:`sweep_settings` entry of each swept route, in which only that route's input
+    :func:`sweep_settings` entry of each route, in which only that route's input
     moves (everything else at the median factors and medians). The flow model treats
     draws independently, so this equals running the settings one at a time. Where no
     limit is reached before the histories end, the margin is at least the time left:
     the end time stands for the ASET, and the margins are flagged as lower bounds.
     """
     R0 = len(next(iter(sweep_factors.values()))) if sweep_factors else 1
-    swept = [k for k, r in enumerate(routes) if only is None or r.id in only]
-    settings = {k: sweep_settings(routes[k]) for k in swept}
+    settings = {k: sweep_settings(route) for k, route in enumerate(routes)}
     R = R0 + 2 * sum(len(v) for v in settings.values())
     factors = {key: np.concatenate([v, np.full(R - R0, v[0])]) for key, v in sweep_factors.items()}
     streams = [{name: np.full(R, 0.5) for name in (*_STREAMS, *(f"premovement.{p}" for p in _PARAMETER_NAMES))}
@@ -585,7 +582,7 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
                          parameters={p: st[f"premovement.{p}"] for p in _PARAMETER_NAMES}) for st in streams]
     eg = scenario_egress(routes, prep, factors, draws, named, scale=scales, width_scale=widths)
     out = {}
-    for k in swept:
+    for k in settings:
         route = routes[k]
         rset = eg.routes[route.id].rset
         a = route_aset(sweep_loc_aset, prep.ids, route.exposed_at)
@@ -599,13 +596,6 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
         rows.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
         out[route.id] = [dict(r, base_margin_s=rounded(margin[0], 2), lower_bound=bool(censored.any())) for r in rows]
     return out
-
-
-def sensitivity(route: RouteSpec, routes: list[RouteSpec], prep, sweep_factors, sweep_index, sweep_loc_aset,
-                labels: dict, named: dict | None = None) -> list[dict]:
-    """The sensitivity table of one route (:func:`scenario_sensitivity` sweeping only it)."""
-    return scenario_sensitivity(routes, prep, sweep_factors, sweep_index, sweep_loc_aset, labels, named,
-                                only=[route.id])[route.id]
 
 
 def _swing(name, low, high, m_low, m_high) -> dict:
