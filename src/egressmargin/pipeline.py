@@ -298,14 +298,13 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         sweep_res = aset.evaluate(prep, crit, sweep_factors, R, with_bound=False) if ppfs else _repeat_draws(raw, R)
         sweep = (sweep_factors, sweep_index, aset.location_aset(sweep_res))
     routes, route_plots = [], {}
-    fac = factors if factors else {}
     specs_here = [r for _, r in routes_here]
 
     def egress_at(n: int, fac_n: dict):
         return assess.scenario_egress(specs_here, prep, fac_n, [assess.egress_uniforms(seed, ri, n)
                                                                 for ri, _ in routes_here], study.elements)
 
-    egress = egress_at(S, fac) if routes_here else None
+    egress = egress_at(S, factors) if routes_here else None
     # raw deterministic margin: raw ASET against RSET at median inputs
     egress_med = assess.scenario_egress(specs_here, prep, {}, [assess.EgressDraws.median()] * len(specs_here),
                                         study.elements) if routes_here else None
@@ -314,7 +313,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     bigger: dict[int, object] = {}
     sensitivities = None
     for ri, route in routes_here:
-        eg, fac_r, s_used = egress, fac, S
+        eg, fac_r, s_used = egress, factors, S
         out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, eg.routes[route.id])
         # Settle the statistics by sampling more where the interval straddles the limit: the
         # scenario's ASET and its (shared) egress again with twice the draws, same seed streams.
