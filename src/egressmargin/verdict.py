@@ -67,7 +67,7 @@ def draw_outcomes(aset_s, rset_s, end_s: float) -> np.ndarray:
     r = np.asarray(rset_s, float)
     a = np.where(np.isnan(a), np.inf, a)
     r = np.where(np.isnan(r), np.inf, r)
-    eps = 1e-9 * max(1.0, abs(end_s))
+    eps = 1e-9 * max(1.0, abs(end_s))       # float round-off at the end time (project choice)
     a_in = a <= end_s + eps
     r_in = r <= end_s + eps
     out = np.full(a.shape, UNKNOWN, np.int8)
