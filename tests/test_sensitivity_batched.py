@@ -14,12 +14,12 @@ from __future__ import annotations
 import json
 
 import numpy as np
-import pytest
 
 from engine_helpers import results_for, write_study
 from egressmargin import assess
 from egressmargin.egress import distributions as dist
 from egressmargin.egress.movement import element_properties
+from egressmargin.stats import rounded
 from egressmargin.study import DetectorRule
 
 
@@ -42,10 +42,15 @@ def _one_at_a_time(route, routes, prep, sweep_factors, sweep_index, sweep_loc_as
     a0 = float(a[0])
 
     def margin_with(quantiles=None, scale=None, width=None) -> float:
-        q = [None] * n
+        draws = [assess.EgressDraws.median(1) for _ in range(n)]
+        for key, u in (quantiles or {}).items():          # this route's input at uniform u
+            if key.startswith("premovement."):
+                draws[k].parameters[key.split(".", 1)[1]] = np.full(1, u)
+            else:
+                setattr(draws[k], key, np.full(1, u))
         sc = [None] * n
-        q[k], sc[k] = quantiles, scale
-        eg = assess.scenario_egress(routes, prep, base_f, [assess.EgressDraws.median(1)] * n, named, q, sc, width)
+        sc[k] = scale
+        eg = assess.scenario_egress(routes, prep, base_f, draws, named, sc, width)
         return a0 - float(eg.routes[route.id].rset[0])
 
     low, high, frac = assess.SWEEP_LOW, assess.SWEEP_HIGH, assess.SWEEP_FRACTION
@@ -75,7 +80,7 @@ def _one_at_a_time(route, routes, prep, sweep_factors, sweep_index, sweep_loc_as
     rows.append(assess._swing(f"effective width of element {ctrl + 1} ({route.path[ctrl]['type']})", "-10 %",
                               "+10 %", margin_with(width={node: 1 - frac}), margin_with(width={node: 1 + frac})))
     rows.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
-    return [dict(r, base_margin_s=assess._finite(base), lower_bound=bool(censored.any())) for r in rows]
+    return [dict(r, base_margin_s=rounded(base, 2), lower_bound=bool(censored.any())) for r in rows]
 
 
 def _reference(routes, prep, sweep_factors, sweep_index, sweep_loc_aset, labels, named=None, only=None):
@@ -163,22 +168,3 @@ def test_per_draw_width_moves_the_controlling_element():
                       (NetElement("a", 20.0, 1.4, 0.6, 0.78), NetElement("b", 15.0, 1.4, 0.65, 0.845)),
                       np.ones(1), np.ones(1))
     assert scalar.controlling == 0
-
-
-def test_one_route_alone_gives_its_row_of_the_scenario_sweep(tmp_path, monkeypatch):
-    """``sensitivity`` (one route swept) equals that route's entry of the scenario sweep."""
-    seen = []
-    batched_fn = assess.scenario_sensitivity
-
-    def recording(*args, **kw):
-        seen.append((args, kw))
-        return batched_fn(*args, **kw)
-
-    monkeypatch.setattr(assess, "scenario_sensitivity", recording)
-    results_for(_study(tmp_path))
-    ((args, kw),) = seen
-    routes = args[0]
-    whole = batched_fn(*args, **kw)
-    for route in routes:
-        assert batched_fn(*args, **kw, only=[route.id]) == {route.id: whole[route.id]}
-        assert assess.sensitivity(route, *args, **kw) == whole[route.id]

@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from egressmargin.verdict import FAIL, PASS, UNKNOWN, decide, draw_outcomes, needs_more_samples, wilson_interval
+from egressmargin.verdict import FAIL, PASS, UNKNOWN, Z_95, decide, draw_outcomes, needs_more_samples, wilson_interval
 from engine_helpers import results_for, write_study
 
 
@@ -28,6 +28,11 @@ def test_draw_outcomes_follow_the_contract():
     aset = np.array([100.0, np.inf, np.inf, 100.0, 200.0, np.inf, 250.0])
     rset = np.array([150.0, 250.0, 400.0, np.inf, 200.0, np.inf, 350.0])
     assert draw_outcomes(aset, rset, end).tolist() == [FAIL, PASS, UNKNOWN, FAIL, PASS, UNKNOWN, FAIL]
+
+
+def test_z_95_is_the_two_sided_normal_quantile():
+    # Phi^-1(0.975), scipy.stats.norm.ppf: the z of a two-sided 95 % interval
+    assert Z_95 == pytest.approx(stats.norm.ppf(0.975), rel=1e-15)
 
 
 @pytest.mark.parametrize("k,n", [(0, 2000), (96, 2000), (100, 2000), (2000, 2000), (7, 50)])
@@ -153,8 +158,12 @@ def test_pipeline_draws_more_samples_where_the_interval_straddles(tmp_path):
     path.write_text(yaml.safe_dump(doc))
     r = results_for(path)[0]["scenarios"][0]["routes"][0]
     assert r["samples_used"] > 500
-    lo, hi = r["p_fail_ci95"]
-    assert lo <= r["p_fail"] <= hi
+    n = r["samples_used"]
+    # uniform premovement above 200 - 10 - 5 - 10/0.91 s (closed form), within 4 binomial sd
+    p = (177.9 - (200.0 - 10.0 - 5.0 - 10 / 0.91)) / 77.9
+    assert r["p_fail"] == pytest.approx(p, abs=4 * np.sqrt(p * (1 - p) / n))
+    ref = stats.binomtest(round(r["p_fail"] * n), n).proportion_ci(confidence_level=0.95, method="wilson")
+    assert r["p_fail_ci95"] == pytest.approx([ref.low, ref.high], abs=1e-4)   # scipy's Wilson interval
 
 
 def test_fixed_inputs_give_a_point_interval(tmp_path):

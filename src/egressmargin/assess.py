@@ -1,5 +1,5 @@
-"""ASET against RSET per escape route: margins, probability of failure, verdict,
-dose along the route, and one-at-a-time sensitivity.
+"""ASET against RSET per escape route: per-draw ASET, RSET and margin (the verdict is
+:mod:`egressmargin.verdict`'s), dose along the route, and one-at-a-time sensitivity.
 
 Pure computation on arrays prepared by :mod:`egressmargin.aset` and the egress
 package; the pipeline decides what to run and writes the results.
@@ -18,7 +18,7 @@ from .egress.detection import rti_response
 from .egress.flow import NetElement, NetRoute, NodeFlow, RouteFlow, quantile_positions, simulate
 from .egress.movement import element_properties, movement_time
 from .egress.rset import compose_rset
-from .stats import share, summarise
+from .stats import rounded, share, summarise
 from .study import DetectorRule, RouteSpec
 from .tenability.crossing import crossing_times_for_levels
 
@@ -121,18 +121,14 @@ class RouteInputs:
         return np.take_along_axis(self.premovement_s, (self.counts - 1)[:, None], axis=1)[:, 0]
 
 
-def _u(stream, S, q=None):
-    if q is not None:
-        return np.full(S, q)
+def _u(stream, S):
     return np.full(S, 0.5) if stream is None else stream
 
 
-def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, quantiles: dict | None = None,
-                 scale: dict | None = None) -> RouteInputs:
+def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, scale: dict | None = None) -> RouteInputs:
     """Detection, alarm, occupants, start times and movement factors of a route, per draw.
 
-    ``quantiles`` overrides the uniform of an input (detection, alarm, premovement,
-    occupants, flow_factor, speed_factor, or ``premovement.<parameter>``); ``scale``
+    An input set by the uniform of its stream in ``draws`` (None: the median); ``scale``
     multiplies ``occupants``, ``flow_factor`` or ``speed_factor`` (a +/-10 % sweep), by a
     number or by one per draw (shape (S,)).
 
@@ -143,17 +139,17 @@ def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, quantiles:
     F^-1((i - 1/2)/N) (:func:`egressmargin.egress.flow.quantile_positions`); with
     ``premovement: F`` everyone starts at detection + alarm + one draw of F.
     """
-    q, sc = quantiles or {}, scale or {}
+    sc = scale or {}
     S = len(draws.detection)
-    det = detection_times(route.detection, prep, factors, _u(draws.detection, S, q.get("detection")))
-    alarm = dist.ppf(route.alarm, _u(draws.alarm, S, q.get("alarm")))
+    det = detection_times(route.detection, prep, factors, _u(draws.detection, S))
+    alarm = dist.ppf(route.alarm, _u(draws.alarm, S))
     occ_spec = route.occupants_dist or {"fixed": float(route.occupants)}
-    occ = dist.ppf(occ_spec, _u(draws.occupants, S, q.get("occupants"))) * sc.get("occupants", 1.0)
+    occ = dist.ppf(occ_spec, _u(draws.occupants, S)) * sc.get("occupants", 1.0)
     counts = np.maximum(np.rint(occ), 1).astype(int)
-    flow_f = dist.ppf(route.flow_factor, _u(draws.flow_factor, S, q.get("flow_factor"))) * sc.get("flow_factor", 1.0)
-    speed_f = dist.ppf(route.speed_factor, _u(draws.speed_factor, S, q.get("speed_factor"))) \
+    flow_f = dist.ppf(route.flow_factor, _u(draws.flow_factor, S)) * sc.get("flow_factor", 1.0)
+    speed_f = dist.ppf(route.speed_factor, _u(draws.speed_factor, S)) \
         * sc.get("speed_factor", 1.0)
-    params = {name: _u(draws.parameters.get(name), S, q.get(f"premovement.{name}"))
+    params = {name: _u(draws.parameters.get(name), S)
               for name in dist.parameter_specs(route.premovement)}
     if route.premovement_across:
         pre = dist.ppf_varying(route.premovement, quantile_positions(counts), params)
@@ -161,7 +157,7 @@ def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, quantiles:
             starts = (det + alarm)[:, None] + pre
         starts = np.where(np.isnan(starts), np.inf, starts)
     else:
-        one = dist.ppf_varying(route.premovement, _u(draws.premovement, S, q.get("premovement")), params)
+        one = dist.ppf_varying(route.premovement, _u(draws.premovement, S), params)
         present = np.arange(counts.max())[None, :] < counts[:, None]
         pre = np.where(present, one[:, None], np.nan)
         with np.errstate(invalid="ignore"):
@@ -193,11 +189,11 @@ def _node(route: RouteSpec, i: int, element: dict) -> str:
 
 
 def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDraws], named: dict | None = None,
-                    quantiles: list[dict] | None = None, scale: list[dict] | None = None,
+                    scale: list[dict] | None = None,
                     width_scale: dict[str, float] | None = None) -> ScenarioEgress:
     """RSET of every route of a scenario, routes that share named elements merged.
 
-    ``quantiles``/``scale`` are per route (see :func:`route_inputs`); ``width_scale``
+    ``scale`` is per route (see :func:`route_inputs`); ``width_scale``
     multiplies the effective width (hence capacity) of the named nodes given, by a
     number or by one per draw (shape (S,)).
 
@@ -211,8 +207,7 @@ def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDr
     width_scale = width_scale or {}
     nets, inputs, props = [], [], []
     for k, route in enumerate(routes):
-        inp = route_inputs(route, prep, factors, draws[k], (quantiles or [None] * len(routes))[k],
-                           (scale or [None] * len(routes))[k])
+        inp = route_inputs(route, prep, factors, draws[k], (scale or [None] * len(routes))[k])
         pr = [element_properties(e) for e in route.path]
         elements = []
         for i, (e, p) in enumerate(zip(route.path, pr)):
@@ -254,8 +249,6 @@ class RouteOutcome:
     governing_location: str | None
     governing_criterion: str | None
     margin: np.ndarray
-    p_fail: float
-    verdict: str
     extras: dict = field(default_factory=dict)
 
 
@@ -265,8 +258,7 @@ def route_aset(loc_aset: np.ndarray, ids: list[str], exposed: list[str]) -> np.n
     return loc_aset[rows].min(axis=0)
 
 
-def outcome(route: RouteSpec, prep, loc_aset, loc_aset_raw, governing_raw, egress: RouteEgress,
-            max_p_fail) -> RouteOutcome:
+def outcome(route: RouteSpec, prep, loc_aset, loc_aset_raw, governing_raw, egress: RouteEgress) -> RouteOutcome:
     rset, comps, mv = egress.rset, egress.components, egress.movement
     a = route_aset(loc_aset, prep.ids, route.exposed_at)
     rows = [prep.ids.index(x) for x in route.exposed_at]
@@ -275,14 +267,11 @@ def outcome(route: RouteSpec, prep, loc_aset, loc_aset_raw, governing_raw, egres
     aset_raw = float(raw_vals[j])
     with np.errstate(invalid="ignore"):
         margin = a - rset
-    fail = a < rset
-    p_fail = share(fail)
     # governing location: the exposed location with the earliest median ASET
     med = [np.median(np.where(np.isfinite(loc_aset[r]), loc_aset[r], np.inf)) for r in rows]
     g = int(np.argmin(med))
     return RouteOutcome(rset, comps, mv, a, aset_raw, route.exposed_at[g] if np.isfinite(med[g]) else None,
-                        governing_raw[rows[g]] if np.isfinite(med[g]) else None, margin, p_fail,
-                        "pass" if p_fail <= max_p_fail else "fail",
+                        governing_raw[rows[g]] if np.isfinite(med[g]) else None, margin,
                         {"location_aware": location_aware(route, egress, loc_aset, prep.ids)})
 
 
@@ -540,7 +529,7 @@ _STREAMS = ("detection", "alarm", "premovement", "occupants", "flow_factor", "sp
 
 
 def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_index, sweep_loc_aset, labels: dict,
-                         named: dict | None = None, only: list[str] | None = None) -> dict[str, list[dict]]:
+                         named: dict | None = None) -> dict[str, list[dict]]:
     """One-at-a-time swing of each route's margin (at median inputs) for each uncertain input.
 
     Parameters
@@ -555,8 +544,6 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
         Table words for the factor rows.
     named : dict, optional
         The study's named (shared) elements.
-    only : list of str, optional
-        Ids of the routes to sweep (default: all).
 
     Returns
     -------
@@ -567,15 +554,14 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
     -----
     Every setting is a row (a draw) of one flow run of the whole scenario: the factor
     rows with all egress inputs at their medians, then two rows per
-    :func:`sweep_settings` entry of each swept route, in which only that route's input
+    :func:`sweep_settings` entry of each route, in which only that route's input
     moves (everything else at the median factors and medians). The flow model treats
     draws independently, so this equals running the settings one at a time. Where no
     limit is reached before the histories end, the margin is at least the time left:
     the end time stands for the ASET, and the margins are flagged as lower bounds.
     """
     R0 = len(next(iter(sweep_factors.values()))) if sweep_factors else 1
-    swept = [k for k, r in enumerate(routes) if only is None or r.id in only]
-    settings = {k: sweep_settings(routes[k]) for k in swept}
+    settings = {k: sweep_settings(route) for k, route in enumerate(routes)}
     R = R0 + 2 * sum(len(v) for v in settings.values())
     factors = {key: np.concatenate([v, np.full(R - R0, v[0])]) for key, v in sweep_factors.items()}
     streams = [{name: np.full(R, 0.5) for name in (*_STREAMS, *(f"premovement.{p}" for p in _PARAMETER_NAMES))}
@@ -596,7 +582,7 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
                          parameters={p: st[f"premovement.{p}"] for p in _PARAMETER_NAMES}) for st in streams]
     eg = scenario_egress(routes, prep, factors, draws, named, scale=scales, width_scale=widths)
     out = {}
-    for k in swept:
+    for k in settings:
         route = routes[k]
         rset = eg.routes[route.id].rset
         a = route_aset(sweep_loc_aset, prep.ids, route.exposed_at)
@@ -608,23 +594,11 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
         rows += [_swing(st.label, st.low_name, st.high_name, a0 - float(rset[r]), a0 - float(rset[r + 1]))
                  for st, r in zip(settings[k], first_row[k])]
         rows.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
-        out[route.id] = [dict(r, base_margin_s=_finite(margin[0]), lower_bound=bool(censored.any())) for r in rows]
+        out[route.id] = [dict(r, base_margin_s=rounded(margin[0], 2), lower_bound=bool(censored.any())) for r in rows]
     return out
 
 
-def sensitivity(route: RouteSpec, routes: list[RouteSpec], prep, sweep_factors, sweep_index, sweep_loc_aset,
-                labels: dict, named: dict | None = None) -> list[dict]:
-    """The sensitivity table of one route (:func:`scenario_sensitivity` sweeping only it)."""
-    return scenario_sensitivity(routes, prep, sweep_factors, sweep_index, sweep_loc_aset, labels, named,
-                                only=[route.id])[route.id]
-
-
-def _finite(x) -> float | None:
-    x = float(x)
-    return round(x, 2) if np.isfinite(x) else None
-
-
 def _swing(name, low, high, m_low, m_high) -> dict:
-    lo, hi = _finite(m_low), _finite(m_high)
+    lo, hi = rounded(m_low, 2), rounded(m_high, 2)
     swing = None if lo is None or hi is None else round(abs(hi - lo), 2)
     return {"input": name, "low": low, "high": high, "margin_low_s": lo, "margin_high_s": hi, "swing_s": swing}

@@ -20,7 +20,7 @@ from .egress import summary as egress_summary
 from .credibility import flag_change, grid_convergence
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
-from .stats import share, summarise
+from .stats import rounded as _t, share, summarise
 from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study, data_problems
 from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
@@ -219,9 +219,10 @@ def _label(key: str) -> str:
     return FACTOR_LABELS.get(key, f"model error: {key}")
 
 
-def _t(x) -> float | None:
-    x = float(x)
-    return round(x, 3) if np.isfinite(x) else None
+def _repeat_draws(raw: dict, S: int) -> dict:
+    """The one-draw results ``raw`` as S identical draws (no model-error correction)."""
+    return {cid: aset.CriterionResult(np.repeat(r.times, S, axis=1), r.assessed, r.missing, None, r.partial)
+            for cid, r in raw.items()}
 
 
 def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool = True):
@@ -237,8 +238,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     if factors:
         corr = aset.evaluate(prep, crit, factors, S)
     else:
-        corr = {cid: aset.CriterionResult(np.repeat(r.times, S, axis=1), r.assessed, r.missing, None, r.partial)
-                for cid, r in raw.items()}
+        corr = _repeat_draws(raw, S)
     loc_aset = aset.location_aset(corr)
     end = data.end_s
     locations = []
@@ -295,29 +295,26 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         ppfs = factor_ppfs(table, prep)
         sweep_factors, sweep_index = assess.factor_sweep_rows(ppfs)
         R = 1 + 2 * len(sweep_index)
-        sweep_res = aset.evaluate(prep, crit, sweep_factors, R, with_bound=False) if ppfs else \
-            {cid: aset.CriterionResult(np.repeat(r.times, R, axis=1), r.assessed, r.missing) for cid, r in raw.items()}
+        sweep_res = aset.evaluate(prep, crit, sweep_factors, R, with_bound=False) if ppfs else _repeat_draws(raw, R)
         sweep = (sweep_factors, sweep_index, aset.location_aset(sweep_res))
     routes, route_plots = [], {}
-    fac = factors if factors else {}
     specs_here = [r for _, r in routes_here]
 
     def egress_at(n: int, fac_n: dict):
         return assess.scenario_egress(specs_here, prep, fac_n, [assess.egress_uniforms(seed, ri, n)
                                                                 for ri, _ in routes_here], study.elements)
 
-    egress = egress_at(S, fac) if routes_here else None
+    egress = egress_at(S, factors) if routes_here else None
     # raw deterministic margin: raw ASET against RSET at median inputs
     egress_med = assess.scenario_egress(specs_here, prep, {}, [assess.EgressDraws.median()] * len(specs_here),
                                         study.elements) if routes_here else None
-    more = _MoreSamples(table, prep, crit, seed, index)
+    more = _MoreSamples(table, prep, crit, seed, index, raw)
     s_max = max(study.max_samples, S)
     bigger: dict[int, object] = {}
     sensitivities = None
     for ri, route in routes_here:
-        eg, fac_r, s_used = egress, fac, S
-        out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, eg.routes[route.id],
-                             study.max_p_fail)
+        eg, fac_r, s_used = egress, factors, S
+        out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, eg.routes[route.id])
         # Settle the statistics by sampling more where the interval straddles the limit: the
         # scenario's ASET and its (shared) egress again with twice the draws, same seed streams.
         while s_used < s_max and needs_more_samples(out.aset, out.rset, end, study.max_p_fail):
@@ -326,8 +323,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             if s_used not in bigger:
                 bigger = {s_used: egress_at(s_used, fac_r)}        # keep one count: memory
             eg = bigger[s_used]
-            out = assess.outcome(route, prep, loc_big, raw_aset, governing_raw, eg.routes[route.id],
-                                 study.max_p_fail)
+            out = assess.outcome(route, prep, loc_big, raw_aset, governing_raw, eg.routes[route.id])
         margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
         route_locs = [locations[prep.ids.index(loc)] for loc in route.exposed_at]
         assessed_any = any(c.get("status") == "assessed" for loc in route_locs for c in loc["criteria"].values())
@@ -375,19 +371,15 @@ def _limit_value(c):
 class _MoreSamples:
     """The scenario's ASET draws at a larger sample count, computed once per count."""
 
-    def __init__(self, table, prep, crit, seed, index):
-        self.table, self.prep, self.crit, self.seed, self.index = table, prep, crit, seed, index
+    def __init__(self, table, prep, crit, seed, index, raw):
+        self.table, self.prep, self.crit, self.seed, self.index, self.raw = table, prep, crit, seed, index, raw
         self.cache: dict[int, tuple[dict, np.ndarray]] = {}
 
     def at(self, S: int):
         if S not in self.cache:
             factors = draw_scenario_factors(self.table, self.prep, S, self.seed, self.index) if self.table else {}
-            if factors:
-                res = aset.evaluate(self.prep, self.crit, factors, S, with_bound=False)
-            else:
-                raw = aset.evaluate(self.prep, self.crit, {}, 1, with_bound=False)
-                res = {cid: aset.CriterionResult(np.repeat(r.times, S, axis=1), r.assessed, r.missing, None)
-                       for cid, r in raw.items()}
+            res = (aset.evaluate(self.prep, self.crit, factors, S, with_bound=False) if factors
+                   else _repeat_draws(self.raw, S))
             self.cache = {S: (factors, aset.location_aset(res))}    # keep one count: memory
         return self.cache[S]
 

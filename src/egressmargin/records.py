@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 
 from .egress import summary as egress_summary
-from .stats import share, summarise
+from .stats import rounded as _t, share, summarise
 from .verdict import CI_METHOD, Verdict
 
 __all__ = ["RouteResult", "route_json", "VERDICT_BASIS"]
@@ -22,11 +22,6 @@ __all__ = ["RouteResult", "route_json", "VERDICT_BASIS"]
 #: Which comparison governs a route's verdict (stated in results.json and the report).
 VERDICT_BASIS = ("route ASET: the earliest ASET of the locations the route passes, against RSET; "
                  "the location-aware comparison is reported beside it")
-
-
-def _t(x) -> float | None:
-    x = float(x)
-    return round(x, 3) if np.isfinite(x) else None
 
 
 @dataclass

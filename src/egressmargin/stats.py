@@ -39,6 +39,16 @@ def percentile_or_none(samples, q: float) -> float | None:
     return _percentile_sorted(_sorted(samples), q)
 
 
+def rounded(x, ndigits: int = 3) -> float | None:
+    """``x`` as a float rounded to ``ndigits``, None where it is not finite ("not reached").
+
+    >>> rounded(12.34567), rounded(float("inf")) is None
+    (12.346, True)
+    """
+    x = float(x)
+    return round(x, ndigits) if np.isfinite(x) else None
+
+
 def summarise(samples, ndigits: int = 3) -> dict:
     """``{p05, p50, p95}`` of the samples, None where not reached."""
     x = _sorted(samples)

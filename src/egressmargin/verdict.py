@@ -33,8 +33,9 @@ __all__ = ["FAIL", "PASS", "UNKNOWN", "Z_95", "Verdict", "draw_outcomes", "wilso
 
 FAIL, PASS, UNKNOWN = 0, 1, 2
 
-#: Two-sided 95 % standard normal quantile, Phi^-1(0.975) = 1.959964 (computed by the
-#: standard library, not typed in; scipy.stats.norm.ppf(0.975) gives the same in the tests).
+#: Two-sided 95 % standard normal quantile, Phi^-1(0.975) = 1.959964: the value of
+#: scipy.stats.norm.ppf(0.975), typed in (the tests check it against scipy). Not
+#: :data:`egressmargin.egress.distributions.Z_95`, which is the one-sided Phi^-1(0.95).
 Z_95: float = 1.959963984540054
 
 #: How the interval on p_fail is computed (printed in the report and results).
@@ -66,7 +67,7 @@ def draw_outcomes(aset_s, rset_s, end_s: float) -> np.ndarray:
     r = np.asarray(rset_s, float)
     a = np.where(np.isnan(a), np.inf, a)
     r = np.where(np.isnan(r), np.inf, r)
-    eps = 1e-9 * max(1.0, abs(end_s))
+    eps = 1e-9 * max(1.0, abs(end_s))       # float round-off at the end time (project choice)
     a_in = a <= end_s + eps
     r_in = r <= end_s + eps
     out = np.full(a.shape, UNKNOWN, np.int8)
@@ -160,10 +161,13 @@ def _intervals(outcomes: np.ndarray, deterministic: bool):
 
 
 def _is_deterministic(aset_s, rset_s) -> bool:
-    """True when every draw has the same ASET and RSET (no uncertain input at all)."""
+    """True when every draw has the same ASET and RSET (no uncertain input at all).
+
+    Draws lie on the last axis: for (L, S) arrays, every place the same in every draw.
+    """
     a = np.where(np.isfinite(aset_s), aset_s, np.inf)
     r = np.where(np.isfinite(rset_s), rset_s, np.inf)
-    return bool(np.all(a == a[0]) and np.all(r == r[0])) if a.size else True
+    return bool(np.all(a == a[..., :1]) and np.all(r == r[..., :1]))
 
 
 def needs_more_samples(aset_s, rset_s, end_s: float, max_p_fail: float) -> bool:
@@ -218,11 +222,7 @@ def decide(aset_s, rset_s, end_s: float, max_p_fail: float, *, assessed: bool = 
     """
     a = np.asarray(aset_s, float)
     r = np.asarray(rset_s, float)
-    if a.ndim == 1:
-        det = _is_deterministic(a, r)
-    else:                               # (L, S): every place the same in every draw
-        a2, r2 = (np.where(np.isfinite(x), x, np.inf) for x in (a, r))
-        det = bool(np.all(a2 == a2[:, :1]) and np.all(r2 == r2[:, :1]))
+    det = _is_deterministic(a, r)
     out = draw_outcomes(a, r, end_s) if outcomes is None else np.asarray(outcomes)
     n, p_low, p_high, ci, ci_low, share_unknown = _intervals(out, det)
     lim = _pct(max_p_fail)
