@@ -56,12 +56,18 @@ class EgressDraws:
         return cls(half, half, half)
 
 
+#: Entropy word that keeps the egress streams apart from the model-error streams, which
+#: are seeded with (seed, scenario index) (project choice: any fixed number not used as a
+#: scenario index; changing it changes every egress draw).
+EGRESS_STREAM_TAG = 7919
+
+
 def egress_uniforms(seed: int, route_index: int, S: int) -> EgressDraws:
     """Per-route uniform streams, independent of the scenario so every scenario sees the same people."""
-    rng = np.random.default_rng([seed, 7919, route_index])
+    rng = np.random.default_rng([seed, EGRESS_STREAM_TAG, route_index])
     base = (rng.random(S), rng.random(S), rng.random(S))
-    more = [np.random.default_rng([seed, 7919, route_index, k]).random(S) for k in (1, 2, 3)]
-    params = {name: np.random.default_rng([seed, 7919, route_index, 10 + j]).random(S)
+    more = [np.random.default_rng([seed, EGRESS_STREAM_TAG, route_index, k]).random(S) for k in (1, 2, 3)]
+    params = {name: np.random.default_rng([seed, EGRESS_STREAM_TAG, route_index, 10 + j]).random(S)
               for j, name in enumerate(_PARAMETER_NAMES)}
     return EgressDraws(*base, *more, parameters=params)
 
