@@ -305,7 +305,8 @@ def _compare(args) -> int:
     from .report.compare_render import write_comparison
     runs = read_comparable(args.results, allow_different_titles=args.allow_different_titles)
     comparison = build_comparison(runs, allow_different_titles=args.allow_different_titles)
-    paths = write_comparison(comparison, args.out, pdf=not args.no_pdf, generated=date.today().isoformat())
+    paths = write_comparison(comparison, args.out, pdf=not args.no_pdf, generated=date.today().isoformat(),
+                             command=args.command_line)
     for r in comparison["runs"]:
         print(f"{r['label']}: {r['path']}")
     diffs = comparison["differences"]["summary"]
