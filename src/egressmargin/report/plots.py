@@ -37,7 +37,6 @@ ASET_FILL = "#e9f0de"
 PASS = "#2e6b4f"
 FAIL = "#a3392a"
 PASS_FILL = "#cfe2d7"
-FAIL_FILL = "#f0d3cd"
 SEGMENTS = {  # RSET components: colour (adjacent ones differ in grey value), label
     "detection": ("#29536b", "Detection"),
     "alarm": ("#c4d8e2", "Alarm"),
