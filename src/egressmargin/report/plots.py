@@ -52,13 +52,14 @@ SERIES_STYLES = [  # (colour, line style, marker) for several lines on one axis
     ("#6b5b95", (0, (1, 1)), "P"),
 ]
 
-FIG_WIDTH_IN = 6.7  # fits the A4 and Letter text width of the report CSS
+FIG_WIDTH_IN = 6.7  # fits the A4 and Letter text width of the report CSS (project choice)
 #: Left edge of the route figure's panels (fraction of its width): room for the tick
-#: labels of the sensitivity panel, wrapped to two lines of TICK_LABEL_CHARS characters.
+#: labels of the sensitivity panel, wrapped to two lines of TICK_LABEL_CHARS characters
+#: (both project choices, fitted to the 7 pt tick labels).
 AXES_LEFT = 0.27
 TICK_LABEL_CHARS = 26
 FIG_DPI = 130  # PNG resolution: sharp at the printed size, small files (project choice)
-MAX_POINTS = 240  # points kept per plotted curve (min/max per bucket)
+MAX_POINTS = 240  # points kept per plotted curve (min/max per bucket; project choice)
 
 _RC = {
     "font.family": "DejaVu Sans",
