@@ -298,3 +298,16 @@ def test_shift_of_a_visibility_limit_in_closed_form(tmp_path, cli, monkeypatch):
                                                   "direction": "earlier"}
     assert comp["scenarios"][0]["routes"] == [] and comp["changes"] == []
     assert comp["differences"]["criteria"]["differences"][0]["values"] == {"A": "10 m", "B": "20 m"}
+
+
+def test_changed_cells_note_the_signed_change():
+    """A changed time notes its shift in whole seconds, a changed p_fail its signed shift."""
+    from egressmargin.report.compare_render import _cell
+    from egressmargin.report.format import MINUS, NBSP
+
+    t = _cell("aset_p50_s", 287.4, 1200.0, {"changed": True, "delta": -12.6, "direction": "earlier"}, {})
+    assert t["note"] == f"{MINUS}13{NBSP}s" and t["worse"] and t["changed"]
+    p = _cell("p_fail", 0.0623, 1200.0, {"changed": True, "delta": 0.0123, "direction": "higher"}, {})
+    assert p["note"] == "+0.0123" and p["worse"]
+    m = _cell("margin_p05_s", 40.0, 1200.0, {"changed": True, "delta": 7.0, "direction": "larger"}, {})
+    assert m["note"] == f"+7{NBSP}s" and not m["worse"]

@@ -17,7 +17,7 @@ from typing import Any, Mapping
 
 from .. import outputs
 from ..errors import InputError, Problem
-from .format import NBSP, fmt_num, fmt_prob, fmt_time, fmt_verdict
+from .format import MINUS, NBSP, fmt_num, fmt_prob, fmt_time, fmt_verdict
 from .render import CRITERION_LABELS, _environment, page_size, templates_dir, write_pdf
 
 #: Column heads of the route table, in the order of ``compare.ROUTE_VALUES``.
@@ -38,10 +38,9 @@ COMPARE_CAUTION = ("The comparison shows how the results of the listed runs diff
                    "engineer; local codes and the approving authority govern.")
 
 
-def _signed(delta: float, unit: str) -> str:
-    text = fmt_num(abs(delta), 3) if unit != "s" else f"{abs(round(delta))}"
-    sign = "+" if delta > 0 else "\u2212"
-    return f"{sign}{text}{NBSP + unit if unit else ''}"
+def _signed(delta: float) -> str:
+    """A change of a probability, signed (a time's change is :func:`fmt_time` with ``signed``)."""
+    return f"{'+' if delta > 0 else MINUS}{fmt_num(abs(delta), 3)}"
 
 
 def _show(key: str, value: Any, end_s: Any, extras: Mapping[str, Any]) -> str:
@@ -69,7 +68,7 @@ def _cell(key: str, value: Any, end_s: Any, change: Mapping[str, Any] | None, ex
         if key == "verdict":
             cell["note"] = f"was {fmt_verdict(baseline_value)}"
         elif d is not None:
-            cell["note"] = _signed(d, "" if key == "p_fail" else "s")
+            cell["note"] = _signed(d) if key == "p_fail" else fmt_time(d, signed=True)
         else:
             cell["note"] = direction
     return cell
