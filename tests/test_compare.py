@@ -115,8 +115,8 @@ def test_html_and_pdf_are_written_and_short(compared):
     pdf = compared / "comparison.pdf"
     assert pdf.read_bytes()[:5] == b"%PDF-"
     assert len(PdfReader(str(pdf)).pages) <= 3
-    manifest = _load(compared / "manifest.json")
-    assert sorted(manifest["files"]) == ["comparison.html", "comparison.json", "comparison.pdf"]
+    manifest = _load(compared / "egressmargin-output.json")
+    assert sorted(manifest["written"]) == ["comparison.html", "comparison.json", "comparison.pdf"]
 
 
 def test_rerun_replaces_an_earlier_comparison_byte_for_byte(two_runs, tmp_path):
@@ -126,7 +126,8 @@ def test_rerun_replaces_an_earlier_comparison_byte_for_byte(two_runs, tmp_path):
     first = (out / "comparison.json").read_bytes()
     assert main(args) == 0
     assert (out / "comparison.json").read_bytes() == first
-    assert sorted(p.name for p in out.iterdir()) == ["comparison.html", "comparison.json", "manifest.json"]
+    assert sorted(p.name for p in out.iterdir()) == ["comparison.html", "comparison.json",
+                                                     "egressmargin-output.json"]
 
 
 def _refused(cli, argv, *words):
@@ -151,6 +152,13 @@ def test_output_folder_that_is_not_a_comparison_is_left_alone(two_runs, tmp_path
     assert (out2 / "extra.txt").read_text(encoding="utf-8") == "mine"
     # a run's output folder is not a comparison either
     _refused(cli, ["compare", two_runs[0], two_runs[1], "--out", two_runs[0].parent, "--no-pdf"], "results.json")
+    # nor is a run's output that holds no input of this comparison: it is not replaced
+    copy = tmp_path / "run-copy"
+    shutil.copytree(two_runs[0].parent, copy)
+    before = sorted(p.name for p in copy.iterdir())
+    _refused(cli, ["compare", two_runs[0], two_runs[1], "--out", copy, "--no-pdf"], "egressmargin run",
+             "results.json")
+    assert sorted(p.name for p in copy.iterdir()) == before
 
 
 def _variant(src: Path, folder: Path, edit) -> Path:
@@ -290,3 +298,16 @@ def test_shift_of_a_visibility_limit_in_closed_form(tmp_path, cli, monkeypatch):
                                                   "direction": "earlier"}
     assert comp["scenarios"][0]["routes"] == [] and comp["changes"] == []
     assert comp["differences"]["criteria"]["differences"][0]["values"] == {"A": "10 m", "B": "20 m"}
+
+
+def test_changed_cells_note_the_signed_change():
+    """A changed time notes its shift in whole seconds, a changed p_fail its signed shift."""
+    from egressmargin.report.compare_render import _cell
+    from egressmargin.report.format import MINUS, NBSP
+
+    t = _cell("aset_p50_s", 287.4, 1200.0, {"changed": True, "delta": -12.6, "direction": "earlier"}, {})
+    assert t["note"] == f"{MINUS}13{NBSP}s" and t["worse"] and t["changed"]
+    p = _cell("p_fail", 0.0623, 1200.0, {"changed": True, "delta": 0.0123, "direction": "higher"}, {})
+    assert p["note"] == "+0.0123" and p["worse"]
+    m = _cell("margin_p05_s", 40.0, 1200.0, {"changed": True, "delta": 7.0, "direction": "larger"}, {})
+    assert m["note"] == f"+7{NBSP}s" and not m["worse"]

@@ -479,19 +479,6 @@ def test_minimal_results_still_render():
     assert "&#10003;&nbsp;PASS" in html
 
 
-def test_svg_from_figure_strips_prolog_and_prefixes_ids():
-    import matplotlib.pyplot as plt
-
-    fig, ax = plt.subplots()
-    ax.fill_between([0, 1], [0, 1], [1, 2], hatch="//")
-    svg = plots.svg_from_figure(fig, uid="abc")
-    assert svg.startswith("<svg ") and svg.endswith("</svg>")
-    assert "<?xml" not in svg and "<metadata>" not in svg
-    ids = re.findall(r'\bid="([^"]+)"', svg)
-    assert ids and all(i.startswith("abc-") for i in ids)
-    assert not plt.get_fignums()  # the figure was closed
-
-
 def test_decimate_keeps_peaks_and_ends():
     t = np.arange(10_000.0)
     y = np.zeros_like(t)
@@ -503,15 +490,19 @@ def test_decimate_keeps_peaks_and_ends():
     assert np.all(np.diff(idx) > 0)
 
 
-def test_location_figure_has_axis_labels_with_units(fixture_data):
+def test_location_figure_has_axis_labels_with_units(fixture_data, monkeypatch):
+    import matplotlib.text
+
     _, plotdata = fixture_data
     pd = plotdata["fire-a"]
-    svg = plots.location_figure(pd["t_s"], pd["locations"]["atrium-l1"], {}, 1200.0, uid="t",
-                                fmt="svg")
-    texts = re.findall(r"<text[^>]*>([^<]*)</text>", svg)
+    monkeypatch.setattr(plots, "finish", lambda fig: fig)     # keep the figure to read its texts
+    fig = plots.location_figure(pd["t_s"], pd["locations"]["atrium-l1"], {}, 1200.0, uid="t")
+    texts = [t.get_text() for t in fig.findobj(matplotlib.text.Text)]
     assert "Time [s]" in texts and "[°C]" in texts and "[m]" in texts
     assert any("untenable ≥ 60 °C" == t for t in texts)
-    assert "<pattern" not in svg   # no hatch patterns
+    assert not any(a.get_hatch() for a in fig.findobj(lambda o: hasattr(o, "get_hatch")))  # no hatch patterns
+    import matplotlib.pyplot as plt
+    plt.close(fig)
 
 
 def test_location_figures_show_only_reached_limits(fixture_data):
@@ -554,26 +545,44 @@ def test_report_paths_returned(tmp_path, fixture_data):
     assert not (tmp_path / "new" / "dir" / "report.pdf").exists()
 
 
+def _drawn_text(draw, *args, **kwargs) -> str:
+    """Every text a figure function draws (titles, labels, legends), one a line."""
+    import matplotlib.pyplot as plt
+    import matplotlib.text
+
+    kept = []
+    real = plots.finish
+    plots.finish = lambda fig: kept.append(fig) or b""
+    try:
+        draw(*args, **kwargs)
+    finally:
+        plots.finish = real
+    fig = kept[0]
+    try:
+        return "\n".join(t.get_text() for t in fig.findobj(matplotlib.text.Text))
+    finally:
+        plt.close(fig)
+
+
 def test_plots_cope_with_degenerate_inputs():
     """Deterministic runs (no uncertainty, fixed egress inputs: p05 = p50 = p95 by the
     contract), ASET never reached, and user text with '$' must all still draw."""
-    same = plots.route_figure({"detection": {"p50": 60.0}}, {"p05": 60, "p50": 60, "p95": 60},
-                              {"p05": None, "p50": None, "p95": None}, None, 600.0,
-                              margin_samples_s=np.full(100, 42.0), p_fail=0.0, max_p_fail=0.05,
-                              uid="a", fmt="svg")
+    same = _drawn_text(plots.route_figure, {"detection": {"p50": 60.0}}, {"p05": 60, "p50": 60, "p95": 60},
+                       {"p05": None, "p50": None, "p95": None}, None, 600.0,
+                       margin_samples_s=np.full(100, 42.0), p_fail=0.0, max_p_fail=0.05, uid="a")
     text = same.replace("\u00a0", " ")
-    assert "ASET p50 &gt; 600 s" in text
+    assert "ASET p50 > 600 s" in text
     assert "P(ASET" not in text          # one margin value: no histogram
-    tor = plots.route_figure({}, {"p05": 60, "p50": 60, "p95": 60},
-                             {"p05": 100, "p50": 100, "p95": 100},
-                             sensitivity=[{"input": "cost $5 $x$", "low": 1, "high": 2,
-                                           "margin_low_s": 10.0, "margin_high_s": -5.0,
-                                           "swing_s": 15.0}], uid="d", fmt="svg")
-    assert "cost $5 $x$" in tor  # shown literally, not parsed as mathtext
-    cred = plots.credibility_figure({"l": {"temperature": {"cells": [0.2, 0.1],
-                                                           "values_s": [None, 300.0],
-                                                           "extrapolated_s": None}}},
-                                    uid="e", fmt="svg")
+    tor = _drawn_text(plots.route_figure, {}, {"p05": 60, "p50": 60, "p95": 60},
+                      {"p05": 100, "p50": 100, "p95": 100},
+                      sensitivity=[{"input": "cost $5 $x$", "low": 1, "high": 2,
+                                    "margin_low_s": 10.0, "margin_high_s": -5.0,
+                                    "swing_s": 15.0}], uid="d")
+    assert r"cost \$5 \$x\$" in tor  # '$' escaped: shown literally, not parsed as mathtext
+    cred = _drawn_text(plots.credibility_figure, {"l": {"temperature": {"cells": [0.2, 0.1],
+                                                                        "values_s": [None, 300.0],
+                                                                        "extrapolated_s": None}}},
+                       uid="e")
     assert "Cell size [m]" in cred
     png = plots.credibility_figure({"l": {"temperature": {"cells": [0.2, 0.1],
                                                           "values_s": [None, None]}}}, uid="f")
@@ -587,13 +596,13 @@ def test_route_figure_panels_draw_one_at_a_time(rendered):
               rset_s={"p05": 60, "p50": 70, "p95": 80}, aset_s={"p05": 100, "p50": 120, "p95": 140},
               margin_samples_s=np.linspace(-10.0, 80.0, 200), p_fail=0.1, max_p_fail=0.05,
               sensitivity=[{"input": "walking speed", "margin_low_s": 10.0,
-                            "margin_high_s": 40.0, "swing_s": 30.0}], fmt="svg")
+                            "margin_high_s": 40.0, "swing_s": 30.0}])
     assert plots.route_panels(kw["margin_samples_s"], kw["sensitivity"]) == \
         ["timeline", "histogram", "tornado"]
     assert plots.route_panels(np.full(5, 3.0), []) == ["timeline"]
-    timeline = plots.route_figure(**kw, panels=["timeline"], uid="t")
-    hist = plots.route_figure(**kw, panels=["histogram"], uid="h")
-    tornado = plots.route_figure(**kw, panels=["tornado"], uid="s")
+    timeline = _drawn_text(plots.route_figure, **kw, panels=["timeline"], uid="t")
+    hist = _drawn_text(plots.route_figure, **kw, panels=["histogram"], uid="h")
+    tornado = _drawn_text(plots.route_figure, **kw, panels=["tornado"], uid="s")
     assert "RSET components" in timeline and "P(ASET" not in timeline
     assert "P(ASET" in hist and "RSET components" not in hist and "walking speed" not in hist
     assert "walking speed" in tornado and "P(ASET" not in tornado

@@ -190,8 +190,7 @@ def _run(args) -> int:
     from .pipeline import run
     out = run(args.study, _options(args, uncertainty=args.uncertainty, raw_only=args.raw_only,
                                    criteria=args.criteria))
-    _warnings(out)
-    _summary(out)
+    _report_run(out)
     return 0
 
 
@@ -201,22 +200,20 @@ def _demo(args) -> int:
     study = resource_dir("demo") / "study.yaml"
     args.out = args.out or Path("egressmargin-demo")
     out = run(study, _options(args))
-    _warnings(out)
-    _summary(out)
+    _report_run(out)
     return 0
 
 
-def _warnings(out: Path) -> None:
-    """The warnings ``validate`` prints, on stderr (they are also in results.json)."""
+def _report_run(out: Path) -> None:
+    """Read results.json once: its warnings (those ``validate`` prints) on stderr, the summary on stdout."""
     import json
     res = json.loads((out / "results.json").read_text(encoding="utf-8"))
     for w in res.get("warnings") or []:
         print(w, file=sys.stderr)
+    _summary(out, res)
 
 
-def _summary(out: Path) -> None:
-    import json
-    res = json.loads((out / "results.json").read_text(encoding="utf-8"))
+def _summary(out: Path, res: dict) -> None:
 
     def t(x):
         return "> end" if x is None else f"{x:.0f}"
@@ -308,7 +305,8 @@ def _compare(args) -> int:
     from .report.compare_render import write_comparison
     runs = read_comparable(args.results, allow_different_titles=args.allow_different_titles)
     comparison = build_comparison(runs, allow_different_titles=args.allow_different_titles)
-    paths = write_comparison(comparison, args.out, pdf=not args.no_pdf, generated=date.today().isoformat())
+    paths = write_comparison(comparison, args.out, pdf=not args.no_pdf, generated=date.today().isoformat(),
+                             command=args.command_line)
     for r in comparison["runs"]:
         print(f"{r['label']}: {r['path']}")
     diffs = comparison["differences"]["summary"]

@@ -20,7 +20,7 @@ from __future__ import annotations
 import sys
 from typing import TextIO
 
-#: Width of the bar drawn for a stage with a known total [characters].
+#: Width of the bar drawn for a stage with a known total [characters] (project choice).
 BAR_WIDTH = 24
 
 

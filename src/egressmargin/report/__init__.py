@@ -1,4 +1,4 @@
-"""The submittal report: plots (SVG), HTML via jinja2 and PDF via WeasyPrint.
+"""The submittal report: plots (PNG), HTML via jinja2 and PDF via WeasyPrint.
 
 Public entry point: :func:`render_report`. Heavy libraries (matplotlib, jinja2,
 WeasyPrint) are imported only when a report is rendered.

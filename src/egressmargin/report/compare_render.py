@@ -2,26 +2,23 @@
 
 Renders the record built by :func:`egressmargin.compare.build_comparison` with the
 ``compare.html.j2`` template and the report's stylesheet, and writes the three files
-into an output folder the way the run does: assembled in a temporary folder beside it
-and moved into place only when everything is written. The folder must be new, empty or
-an earlier comparison (marked by :data:`MANIFEST`); anything else is refused untouched.
+into an output folder with :mod:`egressmargin.outputs`, as the run does: locked,
+assembled in a staging folder beside it, and swapped into place only when everything is
+written. The folder must be new, empty or an earlier egressmargin output other than a
+run's (recognised by :data:`egressmargin.outputs.MANIFEST_NAME`); anything else is
+refused untouched.
 """
 
 from __future__ import annotations
 
 import json
-import shutil
-import tempfile
 from pathlib import Path
 from typing import Any, Mapping
 
+from .. import outputs
 from ..errors import InputError, Problem
-from .format import NBSP, fmt_num, fmt_prob, fmt_time, fmt_verdict
+from .format import MINUS, NBSP, fmt_num, fmt_prob, fmt_time, fmt_verdict
 from .render import CRITERION_LABELS, _environment, page_size, templates_dir, write_pdf
-
-#: The small file that marks a folder as written by ``egressmargin compare``.
-MANIFEST = "manifest.json"
-MANIFEST_KIND = "egressmargin compare output"
 
 #: Column heads of the route table, in the order of ``compare.ROUTE_VALUES``.
 ROUTE_HEADS = {"aset_raw_s": "ASET raw", "aset_p50_s": "ASET p50", "rset_p50_s": "RSET p50",
@@ -41,10 +38,9 @@ COMPARE_CAUTION = ("The comparison shows how the results of the listed runs diff
                    "engineer; local codes and the approving authority govern.")
 
 
-def _signed(delta: float, unit: str) -> str:
-    text = fmt_num(abs(delta), 3) if unit != "s" else f"{abs(round(delta))}"
-    sign = "+" if delta > 0 else "\u2212"
-    return f"{sign}{text}{NBSP + unit if unit else ''}"
+def _signed(delta: float) -> str:
+    """A change of a probability, signed (a time's change is :func:`fmt_time` with ``signed``)."""
+    return f"{'+' if delta > 0 else MINUS}{fmt_num(abs(delta), 3)}"
 
 
 def _show(key: str, value: Any, end_s: Any, extras: Mapping[str, Any]) -> str:
@@ -72,7 +68,7 @@ def _cell(key: str, value: Any, end_s: Any, change: Mapping[str, Any] | None, ex
         if key == "verdict":
             cell["note"] = f"was {fmt_verdict(baseline_value)}"
         elif d is not None:
-            cell["note"] = _signed(d, "" if key == "p_fail" else "s")
+            cell["note"] = _signed(d) if key == "p_fail" else fmt_time(d, signed=True)
         else:
             cell["note"] = direction
     return cell
@@ -179,37 +175,17 @@ def render_compare_html(comparison: Mapping[str, Any], generated: str | None = N
     return _environment().get_template("compare.html.j2").render(**ctx)
 
 
-def out_dir_problems(out: Path) -> list[Problem]:
-    """Why ``out`` may not receive a comparison (empty: new, empty, or an earlier comparison)."""
-    out = Path(out)
-    if not out.exists():
-        return []
-    if not out.is_dir():
-        return [Problem(str(out), "exists and is not a folder; expected a new or empty folder, or an earlier "
-                        "'egressmargin compare' output (choose another --out)")]
-    names = sorted(p.name for p in out.iterdir())
-    if not names:
-        return []
-    ours = None
-    try:
-        manifest = json.loads((out / MANIFEST).read_text(encoding="utf-8"))
-        if isinstance(manifest, dict) and manifest.get("kind") == MANIFEST_KIND:
-            ours = set(manifest.get("files") or []) | {MANIFEST}
-    except (OSError, ValueError):
-        pass
-    shown = ", ".join(names[:5]) + (" ..." if len(names) > 5 else "")
-    if ours is None:
-        return [Problem(str(out), f"is not empty and is not an earlier 'egressmargin compare' output (it holds "
-                        f"{shown}); nothing was written: choose a new or empty folder with --out")]
-    extra = [n for n in names if n not in ours]
-    if extra:
-        return [Problem(str(out), f"is an earlier comparison but also holds files it did not write ("
-                        f"{', '.join(extra[:5])}); nothing was written: move them or choose another --out")]
-    return []
+def _refuse_run_output(out: Path) -> None:
+    """A run's output (its manifest lists results.json) is not replaced by a comparison."""
+    manifest, _ = outputs.read_manifest(out) if Path(out).is_dir() else (None, None)
+    if manifest is not None and "results.json" in manifest["written"]:
+        raise InputError([Problem(str(out), "is the output of an 'egressmargin run' (it holds results.json); "
+                                  "nothing was written: choose a new or empty folder, or an earlier comparison, "
+                                  "with --out")])
 
 
 def write_comparison(comparison: Mapping[str, Any], out_dir: Path, pdf: bool = True,
-                     generated: str | None = None) -> dict[str, Path]:
+                     generated: str | None = None, command: str | None = None) -> dict[str, Path]:
     """Write ``comparison.json``, ``comparison.html`` (and ``comparison.pdf``) into ``out_dir``.
 
     Parameters
@@ -217,11 +193,14 @@ def write_comparison(comparison: Mapping[str, Any], out_dir: Path, pdf: bool = T
     comparison : mapping
         The record of :func:`egressmargin.compare.build_comparison`.
     out_dir : pathlib.Path
-        Output folder: new, empty, or an earlier comparison (replaced as a whole).
+        Output folder: new, empty, or an earlier comparison (replaced as a whole, the way
+        :mod:`egressmargin.outputs` replaces a run's output: locked, staged, swapped).
     pdf : bool
         Also render ``comparison.pdf`` with WeasyPrint.
     generated : str, optional
         Date printed on the page (the JSON carries none, so reruns are byte-identical).
+    command : str, optional
+        The command line recorded in the output's manifest (default: this process's).
 
     Returns
     -------
@@ -231,45 +210,26 @@ def write_comparison(comparison: Mapping[str, Any], out_dir: Path, pdf: bool = T
     Raises
     ------
     egressmargin.errors.InputError
-        When ``out_dir`` may not be written (see :func:`out_dir_problems`); nothing is touched.
+        When ``out_dir`` may not be written (see :func:`egressmargin.outputs.inspect_target`; a
+        run's output is refused too); nothing is touched.
     """
     out = Path(out_dir)
-    problems = out_dir_problems(out)
-    if problems:
-        raise InputError(problems)
+    _refuse_run_output(out)
     html = render_compare_html(comparison, generated)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}-", dir=out.parent))
-    from ..outputs import _usual_permissions
-    _usual_permissions(tmp)
+    inputs = [Path(r["path"]) for r in comparison["runs"]]
+    files = {"json": "comparison.json", "html": "comparison.html"} | ({"pdf": "comparison.pdf"} if pdf else {})
     try:
-        files = {"json": "comparison.json", "html": "comparison.html"}
-        (tmp / files["json"]).write_text(json.dumps(comparison, indent=2, allow_nan=False) + "\n", encoding="utf-8")
-        (tmp / files["html"]).write_text(html, encoding="utf-8")
-        if pdf:
-            files["pdf"] = "comparison.pdf"
-            write_pdf(html, tmp / files["pdf"])
-        (tmp / MANIFEST).write_text(json.dumps({"kind": MANIFEST_KIND, "version": comparison["version"],
-                                                "files": sorted(files.values())}, indent=2) + "\n",
-                                    encoding="utf-8")
-        _move_into_place(tmp, out)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
+        with outputs.claim(out, inputs) as target:
+            tmp = target.staging
+            (tmp / files["json"]).write_text(json.dumps(comparison, indent=2, allow_nan=False) + "\n",
+                                             encoding="utf-8")
+            (tmp / files["html"]).write_text(html, encoding="utf-8")
+            if pdf:
+                write_pdf(html, tmp / files["pdf"])
+            target.commit(comparison["version"], command)
+    except OSError as exc:
+        problem = outputs.user_os_error(exc, out)
+        if problem is None:
+            raise
+        raise problem from None
     return {k: out / v for k, v in files.items()}
-
-
-def _move_into_place(tmp: Path, out: Path) -> None:
-    """Replace ``out`` (missing, empty, or checked to hold only an earlier comparison) by ``tmp``."""
-    if not out.exists():
-        tmp.rename(out)
-        return
-    if not any(out.iterdir()):
-        out.rmdir()
-        tmp.rename(out)
-        return
-    backup = Path(tempfile.mkdtemp(prefix=f".{out.name}-old-", dir=out.parent))
-    backup.rmdir()
-    out.rename(backup)
-    tmp.rename(out)
-    shutil.rmtree(backup)

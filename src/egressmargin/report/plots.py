@@ -1,11 +1,9 @@
-"""Report figures: matplotlib drawings returned as PNG bytes (or inline SVG text).
+"""Report figures: matplotlib drawings returned as PNG bytes.
 
 Each public function draws one figure from plain numbers. By default it returns PNG
 bytes at :data:`FIG_DPI`, which the report inlines as a data URI: the PDF engine draws a
 raster image in a fraction of the time an SVG with hundreds of elements takes
-(measured: shared/report-performance.md). With ``fmt="svg"`` it returns the SVG markup
-without its XML prolog; the SVG's element ids are then prefixed with a caller-given
-``uid`` so that many figures can share one HTML page.
+(measured: shared/report-performance.md).
 
 matplotlib is imported inside the functions (Agg backend) so that importing
 :mod:`egressmargin` stays quick.
@@ -20,7 +18,6 @@ from __future__ import annotations
 
 import io
 import math
-import re
 import textwrap
 from typing import Any, Mapping, Sequence
 
@@ -40,7 +37,6 @@ ASET_FILL = "#e9f0de"
 PASS = "#2e6b4f"
 FAIL = "#a3392a"
 PASS_FILL = "#cfe2d7"
-FAIL_FILL = "#f0d3cd"
 SEGMENTS = {  # RSET components: colour (adjacent ones differ in grey value), label
     "detection": ("#29536b", "Detection"),
     "alarm": ("#c4d8e2", "Alarm"),
@@ -56,13 +52,14 @@ SERIES_STYLES = [  # (colour, line style, marker) for several lines on one axis
     ("#6b5b95", (0, (1, 1)), "P"),
 ]
 
-FIG_WIDTH_IN = 6.7  # fits the A4 and Letter text width of the report CSS
+FIG_WIDTH_IN = 6.7  # fits the A4 and Letter text width of the report CSS (project choice)
 #: Left edge of the route figure's panels (fraction of its width): room for the tick
-#: labels of the sensitivity panel, wrapped to two lines of TICK_LABEL_CHARS characters.
+#: labels of the sensitivity panel, wrapped to two lines of TICK_LABEL_CHARS characters
+#: (both project choices, fitted to the 7 pt tick labels).
 AXES_LEFT = 0.27
 TICK_LABEL_CHARS = 26
 FIG_DPI = 130  # PNG resolution: sharp at the printed size, small files (project choice)
-MAX_POINTS = 240  # points kept per plotted curve (min/max per bucket)
+MAX_POINTS = 240  # points kept per plotted curve (min/max per bucket; project choice)
 
 _RC = {
     "font.family": "DejaVu Sans",
@@ -81,8 +78,6 @@ _RC = {
     "ytick.labelsize": 7,
     "legend.fontsize": 7,
     "legend.frameon": False,
-    "svg.fonttype": "none",
-    "svg.hashsalt": "egressmargin",
 }
 
 
@@ -100,10 +95,8 @@ def _plt():
     return matplotlib, plt
 
 
-def finish(fig: Any, uid: str = "f", fmt: str = "png") -> bytes | str:
-    """The figure as PNG bytes (``fmt="png"``) or inline SVG text (``"svg"``); closes it."""
-    if fmt == "svg":
-        return svg_from_figure(fig, uid)
+def finish(fig: Any) -> bytes:
+    """The figure as PNG bytes; closes it."""
     _, plt = _plt()
     buf = io.BytesIO()
     try:
@@ -112,54 +105,6 @@ def finish(fig: Any, uid: str = "f", fmt: str = "png") -> bytes | str:
     finally:
         plt.close(fig)
     return buf.getvalue()
-
-
-def svg_from_figure(fig: Any, uid: str = "f") -> str:
-    """Serialise a matplotlib figure to inline SVG and close it.
-
-    Parameters
-    ----------
-    fig : matplotlib.figure.Figure
-        The figure; it is closed before returning.
-    uid : str
-        Prefix added to every element id (and every reference to one) so that
-        several SVGs can be inlined in one HTML document.
-
-    Returns
-    -------
-    str
-        ``<svg ...>...</svg>`` with no XML prolog, DOCTYPE or metadata block.
-    """
-    _, plt = _plt()
-    buf = io.StringIO()
-    try:
-        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": None,
-                                                 "Format": None, "Type": None})
-    finally:
-        plt.close(fig)
-    return _clean_svg(buf.getvalue(), uid)
-
-
-def _clean_svg(svg: str, uid: str) -> str:
-    svg = re.sub(r"<\?xml[^>]*\?>\s*", "", svg)
-    svg = re.sub(r"<!DOCTYPE[^>]*>\s*", "", svg, flags=re.S)
-    svg = re.sub(r"<metadata>.*?</metadata>\s*", "", svg, flags=re.S)
-    prefix = re.sub(r"[^A-Za-z0-9_-]", "-", uid) + "-"
-    ids = set(re.findall(r'\bid="([^"]+)"', svg))
-    svg = re.sub(r'\bid="([^"]+)"', lambda m: f'id="{prefix}{m.group(1)}"', svg)
-    svg = re.sub(r"url\(#([^)]+)\)",
-                 lambda m: f"url(#{prefix}{m.group(1)})" if m.group(1) in ids else m.group(0),
-                 svg)
-    svg = re.sub(r'href="#([^"]+)"',
-                 lambda m: f'href="#{prefix}{m.group(1)}"' if m.group(1) in ids else m.group(0),
-                 svg)
-    # Path coordinates are in points: 0.01 pt is far below what print or screen shows.
-    svg = re.sub(r'\sd="([^"]*)"',
-                 lambda m: ' d="' + re.sub(r"(\d+\.\d{2})\d+", r"\1", m.group(1)) + '"', svg)
-    # Let CSS scale the drawing to the column width; the viewBox keeps the ratio.
-    svg = re.sub(r'(<svg\b[^>]*?)\swidth="[^"]*"\sheight="[^"]*"', r'\1', svg, count=1)
-    svg = svg.replace("<svg ", '<svg class="plot" role="img" ', 1)
-    return svg.strip()
 
 
 def _decimate(t: np.ndarray, ys: Sequence[np.ndarray], max_points: int = MAX_POINTS):
@@ -195,7 +140,7 @@ def _grid_shape(n_panels: int, max_cols: int = 3) -> tuple[int, int]:
 
 def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
                     raw_times_s: Mapping[str, Any] | None = None,
-                    end_s: float | None = None, uid: str = "loc", fmt: str = "png"):
+                    end_s: float | None = None, uid: str = "loc"):
     """Small multiples: each given quantity at one location against time.
 
     Parameters
@@ -213,9 +158,7 @@ def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
     end_s : float, optional
         Last time of the histories [s]; the time axis ends there.
     uid : str
-        Id prefix for the SVG.
-    fmt : str
-        ``"png"`` (bytes) or ``"svg"`` (text).
+        The figure's name in the report (identifies the job; not drawn).
     """
     matplotlib, plt = _plt()
     t = np.asarray(t_s, dtype=float)
@@ -277,7 +220,7 @@ def location_figure(t_s: np.ndarray, specs: Mapping[str, Mapping[str, Any]],
         # the plotting time; sizes fit the 7.5 pt labels used here.
         fig.subplots_adjust(left=0.085, right=0.985, bottom=0.40 / height, top=1 - 0.62 / height,
                             wspace=0.42, hspace=0.70)
-        return finish(fig, uid, fmt)
+        return finish(fig)
 
 
 def _val(d, k):
@@ -455,7 +398,7 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
                  margin_samples_s: np.ndarray | None = None, p_fail: Any = None,
                  max_p_fail: Any = None, margin_p05_s: Any = None,
                  sensitivity: Sequence[Mapping[str, Any]] = (), base_margin_s: Any = None,
-                 uid: str = "rt", fmt: str = "png", verdict: Any = None,
+                 uid: str = "rt", verdict: Any = None,
                  panels: Sequence[str] | None = None):
     """One route in one scenario: timeline, margin histogram and sensitivity, stacked.
 
@@ -482,7 +425,7 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
         widest swing on top, when any swing is non-zero.
     base_margin_s : float, optional
         The margin with every input at its median [s] (the centre of the sweep).
-    uid, fmt
+    uid : str
         As for :func:`location_figure`.
     verdict : str, optional
         The route's verdict, printed as its word on the histogram.
@@ -518,13 +461,13 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
                 fig.legend([e[0] for e in entries], [e[1] for e in entries], loc="upper center",
                            bbox_to_anchor=(0.55, bottom - 0.30 / total), ncol=4, fontsize=6.5)
             top = bottom - (0.32 + leg) / total
-        return finish(fig, uid, fmt)
+        return finish(fig)
 
 
 def credibility_figure(cred: Mapping[str, Mapping[str, Mapping[str, Any]]],
                        labels: Mapping[str, str] | None = None,
                        location_titles: Mapping[str, str] | None = None,
-                       uid: str = "cred", fmt: str = "png"):
+                       uid: str = "cred"):
     """Time to limit against cell size, one panel per location (at most 3 x 3).
 
     Parameters
@@ -539,7 +482,7 @@ def credibility_figure(cred: Mapping[str, Mapping[str, Mapping[str, Any]]],
         criterion id -> printed name.
     location_titles : mapping, optional
         location id -> printed title.
-    uid, fmt
+    uid : str
         As for :func:`location_figure`.
 
     Notes
@@ -600,12 +543,11 @@ def credibility_figure(cred: Mapping[str, Mapping[str, Mapping[str, Any]]],
                        bbox_to_anchor=(0.5, 1.0))
         fig.subplots_adjust(left=0.09, right=0.985, bottom=0.42 / height, top=1 - 0.62 / height,
                             wspace=0.30, hspace=0.62)
-        return finish(fig, uid, fmt)
+        return finish(fig)
 
 
 __all__ = [
     "finish",
-    "svg_from_figure",
     "location_figure",
     "route_figure",
     "route_panels",

@@ -213,15 +213,6 @@ def is_detector(loc: Mapping[str, Any]) -> bool:
     return str(loc.get("role") or "").lower() == "detector"
 
 
-class _Counter:
-    def __init__(self) -> None:
-        self.n = 0
-
-    def next(self) -> int:
-        self.n += 1
-        return self.n
-
-
 class _Figures:
     """Numbers figures in reading order and records what to draw for each.
 
