@@ -311,3 +311,106 @@ def test_changed_cells_note_the_signed_change():
     assert p["note"] == "+0.0123" and p["worse"]
     m = _cell("margin_p05_s", 40.0, 1200.0, {"changed": True, "delta": 7.0, "direction": "larger"}, {})
     assert m["note"] == f"+7{NBSP}s" and not m["worse"]
+
+
+# ---- damaged results.json: every field compare reads is checked (issue: hand-edited files) ----
+
+def _damage(key_path, value):
+    """An edit that sets one field of the first route (or a top-level / scenario key) to ``value``."""
+    def edit(d):
+        target = d
+        for k in key_path[:-1]:
+            target = target[k]
+        if value is _DELETE:
+            del target[key_path[-1]]
+        else:
+            target[key_path[-1]] = value
+    return edit
+
+
+_DELETE = object()
+
+
+@pytest.mark.parametrize("key_path, value, words", [
+    (("scenarios", 0, "routes", 0, "p_fail"), float("nan"), ("routes[0].p_fail", "NaN", "probability")),
+    (("scenarios", 0, "routes", 0, "p_fail"), "abc", ("routes[0].p_fail", '"abc"', "probability")),
+    (("scenarios", 0, "routes", 0, "margin_s", "p05"), "x", ("routes[0].margin_s.p05", '"x"', "time in seconds")),
+    (("scenarios", 0, "routes", 0, "verdict"), 42, ("routes[0].verdict", "42", "pass, fail, indeterminate")),
+    (("scenarios", 0, "routes", 0, "aset_s"), None, ("routes[0].aset_s", "null", "mapping")),
+    (("uncertainty",), "abc", ("uncertainty", '"abc"', "mapping")),
+    (("scenarios", 0, "locations"), _DELETE, ("scenarios[0]", "no 'locations'")),
+    (("scenarios", 0, "end_s"), "later", ("scenarios[0].end_s", '"later"', "seconds")),
+    (("scenarios", 0, "routes", 0, "p_fail_ci95"), [0.2, 0.1], ("p_fail_ci95", "low <= high")),
+])
+def test_damaged_results_file_exit_2_naming_file_and_field(two_runs, tmp_path, cli, key_path, value, words):
+    bad = _variant(two_runs[1], tmp_path / "damaged", _damage(key_path, value))
+    err = _refused(cli, ["compare", two_runs[0], bad, "--out", tmp_path / "o", "--no-pdf"],
+                   str(bad), *words)
+    assert "Traceback" not in err
+    assert not (tmp_path / "o").exists()
+
+
+def test_every_damaged_field_is_reported_at_once(two_runs, tmp_path, cli):
+    def edit(d):
+        d["scenarios"][0]["routes"][0]["p_fail"] = "abc"
+        d["scenarios"][1]["routes"][0]["verdict"] = 42
+    bad = _variant(two_runs[1], tmp_path / "damaged", edit)
+    _refused(cli, ["compare", two_runs[0], bad, "--out", tmp_path / "o", "--no-pdf"],
+             "scenarios[0].routes[0].p_fail", "scenarios[1].routes[0].verdict")
+
+
+# ---- the comparison tables: one row model, every row spans the header's columns ----
+
+class _Tables:
+    """Column count of every row of every table of an HTML page (colspan and rowspan honoured)."""
+
+    def __init__(self, html: str):
+        from html.parser import HTMLParser
+
+        tables = []
+
+        class P(HTMLParser):
+            def handle_starttag(self, tag, attrs):
+                a = dict(attrs)
+                if tag == "table":
+                    tables.append({"head": None, "rows": [], "pending": []})
+                elif tag == "tr" and tables:
+                    tables[-1]["rows"].append([])
+                elif tag in ("td", "th") and tables and tables[-1]["rows"]:
+                    tables[-1]["rows"][-1].append((int(a.get("colspan", 1)), int(a.get("rowspan", 1))))
+
+        P().feed(html)
+        self.tables = tables
+
+    def widths(self, table) -> list[int]:
+        """Columns each row covers, counting cells spanning down from rows above."""
+        carried: list[int] = []            # remaining rows of each spanning cell, by width
+        out = []
+        for row in table["rows"]:
+            from_above = sum(w for w, left in carried if left > 0)
+            out.append(from_above + sum(c for c, _ in row))
+            carried = [(w, left - 1) for w, left in carried if left - 1 > 0]
+            carried += [(c, r - 1) for c, r in row if r > 1]
+        return out
+
+
+def test_every_comparison_table_row_spans_the_header(two_runs, tmp_path):
+    """A raw-versus-corrected what-if (the demo with and without its model-uncertainty table):
+    run B's raw ASET must sit under "ASET raw", never under "Run" (the old rowspan bug)."""
+    raw = _run(tmp_path / "raw", "--raw-only")
+    out = tmp_path / "o"
+    assert main(["compare", str(two_runs[0]), str(raw), str(two_runs[1]), "--out", str(out), "--no-pdf"]) == 0
+    html = (out / "comparison.html").read_text(encoding="utf-8")
+    tables = _Tables(html)
+    assert len(tables.tables) >= 3
+    checked = 0
+    for t in tables.tables:
+        widths = tables.widths(t)
+        assert len(set(widths)) == 1, widths
+        checked += len(widths)
+    assert checked > 20
+    # the cells of run B's row: label, then the values in the header's order
+    comp = _load(out / "comparison.json")
+    sc = comp["scenarios"][0]
+    rt = next(r for r in sc["routes"] if r["changed"])
+    assert rt["values"]["B"]["aset_raw_s"] == rt["values"]["A"]["aset_raw_s"]     # raw ASET does not move

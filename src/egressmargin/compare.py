@@ -181,6 +181,143 @@ def _shape_problems(run: Run) -> list[str]:
         out.append("not a results.json: 'inputs' is not a list")
     if not isinstance(d["criteria"], dict):
         out.append("not a results.json: 'criteria' is not a mapping")
+    if out:
+        return out
+    return field_problems(d)
+
+
+#: The verdict words of results.json (contract).
+VERDICTS = ("pass", "fail", "indeterminate")
+
+
+def _is_num(x: Any) -> bool:
+    return isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x)
+
+
+def _found(x: Any) -> str:
+    """A value as the message quotes it (JSON spelling, shortened)."""
+    try:
+        text = json.dumps(x, allow_nan=True)
+    except (TypeError, ValueError):
+        text = repr(x)
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
+def _check(out: list[str], where: str, value: Any, ok: bool, expected: str) -> None:
+    if not ok:
+        out.append(f"{where}: found {_found(value)}; expected {expected}")
+
+
+def _time_or_null(out, where, x) -> None:
+    _check(out, where, x, x is None or _is_num(x), "a time in seconds (a number) or null (not reached)")
+
+
+def _percentiles(out, where, x, keys=("p05", "p50", "p95"), required=True) -> None:
+    if x is None and not required:
+        return
+    if not isinstance(x, dict):
+        _check(out, where, x, False, "a mapping {" + ", ".join(keys) + "} of times in seconds or null")
+        return
+    for k in keys:
+        _time_or_null(out, f"{where}.{k}", x.get(k))
+
+
+def _probability(out, where, x, nullable=False) -> None:
+    _check(out, where, x, (nullable and x is None) or (_is_num(x) and 0.0 <= x <= 1.0),
+           "a probability (a number from 0 to 1)" + (" or null" if nullable else ""))
+
+
+def _route_field_problems(out: list[str], where: str, rt: dict) -> None:
+    """The route values compare reads (:data:`ROUTE_VALUES`, :data:`ROUTE_EXTRAS`)."""
+    _time_or_null(out, f"{where}.aset_raw_s", rt.get("aset_raw_s"))
+    for key in ("aset_s", "rset_s", "margin_s"):
+        _percentiles(out, f"{where}.{key}", rt.get(key))
+    _probability(out, f"{where}.p_fail", rt.get("p_fail"))
+    _check(out, f"{where}.verdict", rt.get("verdict"), rt.get("verdict") in VERDICTS,
+           "one of " + ", ".join(VERDICTS))
+    if "p_fail_bounds" in rt:
+        b = rt["p_fail_bounds"]
+        if not isinstance(b, dict):
+            _check(out, f"{where}.p_fail_bounds", b, False, "a mapping {low, high} of probabilities")
+        else:
+            for k in ("low", "high"):
+                _probability(out, f"{where}.p_fail_bounds.{k}", b.get(k))
+    if "p_fail_ci95" in rt:
+        ci = rt["p_fail_ci95"]
+        ok = isinstance(ci, list) and len(ci) == 2 and all(_is_num(v) and 0 <= v <= 1 for v in ci) and ci[0] <= ci[1]
+        _check(out, f"{where}.p_fail_ci95", ci, ok, "[low, high], two probabilities with low <= high")
+    if "samples_used" in rt:
+        n = rt["samples_used"]
+        _check(out, f"{where}.samples_used", n, isinstance(n, int) and not isinstance(n, bool) and n > 0,
+               "a whole number of samples above 0")
+    if "verdict_reason" in rt:
+        _check(out, f"{where}.verdict_reason", rt["verdict_reason"], isinstance(rt["verdict_reason"], str), "text")
+    if "margin_at_least_s" in rt:
+        _percentiles(out, f"{where}.margin_at_least_s", rt["margin_at_least_s"])
+    for key in ("governing_location", "governing_criterion"):
+        if key in rt:
+            _check(out, f"{where}.{key}", rt[key], rt[key] is None or isinstance(rt[key], str), "text or null")
+    if "criteria_assessed" in rt:
+        _check(out, f"{where}.criteria_assessed", rt["criteria_assessed"], isinstance(rt["criteria_assessed"], bool),
+               "true or false")
+
+
+def _location_field_problems(out: list[str], where: str, loc: dict) -> None:
+    """The location values compare reads (:data:`LOCATION_VALUES`); detector points have none."""
+    if loc.get("role") == "detector":
+        return
+    _time_or_null(out, f"{where}.aset_raw_s", loc.get("aset_raw_s"))
+    _percentiles(out, f"{where}.aset_s", loc.get("aset_s"), keys=("p50",))
+    g = loc.get("governing")
+    _check(out, f"{where}.governing", g, g is None or isinstance(g, str), "a criterion id or null")
+
+
+def field_problems(d: dict) -> list[str]:
+    """Every field compare reads, checked against the results.json schema (contract).
+
+    A hand-edited or damaged file is refused with the field's path and what was found,
+    instead of being shown as if it were a result.
+
+    Examples
+    --------
+    >>> for msg in field_problems({"inputs": [], "criteria": {}, "uncertainty": "abc", "scenarios": [
+    ...         {"id": "a", "end_s": 600, "locations": [], "routes": [{"id": "r", "p_fail": "abc",
+    ...          "aset_s": {"p05": 1, "p50": 2, "p95": 3}, "rset_s": {"p05": 1, "p50": 2, "p95": 3},
+    ...          "margin_s": {"p05": 1, "p50": 2, "p95": "x"}, "verdict": 42}]}]}):
+    ...     print(msg)
+    uncertainty: found "abc"; expected a mapping (the table as applied) or null
+    scenarios[0].routes[0].margin_s.p95: found "x"; expected a time in seconds (a number) or null (not reached)
+    scenarios[0].routes[0].p_fail: found "abc"; expected a probability (a number from 0 to 1)
+    scenarios[0].routes[0].verdict: found 42; expected one of pass, fail, indeterminate
+    """
+    out: list[str] = []
+    unc = d.get("uncertainty")
+    _check(out, "uncertainty", unc, unc is None or isinstance(unc, dict), "a mapping (the table as applied) or null")
+    study = d.get("study")
+    if study is not None:
+        _check(out, "study", study, isinstance(study, dict), "a mapping with the study's title")
+        if isinstance(study, dict) and "title" in study:
+            _check(out, "study.title", study["title"], study["title"] is None or isinstance(study["title"], str),
+                   "text")
+    for i, entry in enumerate(d.get("inputs") or []):
+        ok = isinstance(entry, dict) and isinstance(entry.get("path"), str) and isinstance(entry.get("sha256"), str)
+        _check(out, f"inputs[{i}]", entry, ok, "a mapping {path, sha256} of text")
+    if "applied" in d["criteria"]:
+        _check(out, "criteria.applied", d["criteria"]["applied"], isinstance(d["criteria"]["applied"], dict),
+               "a mapping of criteria")
+    acc = d.get("acceptance")
+    if isinstance(acc, dict) and "max_p_fail" in acc:
+        _probability(out, "acceptance.max_p_fail", acc["max_p_fail"])
+    for i, sc in enumerate(d["scenarios"]):
+        where = f"scenarios[{i}]"
+        if "locations" not in sc:
+            out.append(f"{where} ({sc['id']}): has no 'locations'; expected the list of its locations")
+        end = sc.get("end_s")
+        _check(out, f"{where}.end_s", end, _is_num(end), "the end of the histories in seconds (a number)")
+        for j, loc in enumerate(sc.get("locations") or []):
+            _location_field_problems(out, f"{where}.locations[{j}]", loc)
+        for j, rt in enumerate(sc.get("routes") or []):
+            _route_field_problems(out, f"{where}.routes[{j}]", rt)
     return out
 
 

@@ -74,6 +74,37 @@ def _cell(key: str, value: Any, end_s: Any, change: Mapping[str, Any] | None, ex
     return cell
 
 
+def _row(kind: str, first: bool, head: dict, label_cell: dict | None, cells: list[dict] | None = None,
+         note: str | None = None, width: int = 0) -> dict:
+    """One table row of the route or location table: every row spans every column.
+
+    The row model is the only place the table's shape is decided: a row is the item's
+    cell (its id on the item's first row, empty on the others), then either the run's
+    label and one cell per value column, or a note spanning those columns. No cell spans
+    rows, so a row can never lose a cell to a span from above.
+    """
+    row_cells = [{"kind": "item", "colspan": 1, **(head if first else {"text": "", "tag": None, "continued": True})}]
+    if note is not None:
+        row_cells.append({"kind": "note", "colspan": width, "text": note})
+    else:
+        row_cells.append({"kind": "label", "colspan": 1, "nothing_assessed": False, **(label_cell or {})})
+        row_cells.extend({"kind": "value", "colspan": 1, **c} for c in cells or [])
+    return {"kind": kind, "first": first, "cells": row_cells}
+
+
+def _run_note(r: Mapping[str, Any]) -> str | None:
+    """The words under a run's row: p_fail bounds, interval, samples and the verdict reason."""
+    parts = []
+    if r.get("bounds"):
+        parts.append(f"p_fail bounds {fmt_prob(r['bounds'].get('low'))}\u2013{fmt_prob(r['bounds'].get('high'))}.")
+    if r.get("ci95"):
+        used = f" ({r['samples_used']} samples)" if r.get("samples_used") else ""
+        parts.append(f"95 % interval {fmt_prob(r['ci95'][0])}\u2013{fmt_prob(r['ci95'][1])}{used}.")
+    if r.get("reason"):
+        parts.append(str(r["reason"]))
+    return f"{r['label']}: " + " ".join(parts) if parts else None
+
+
 def _route_rows(comparison: Mapping[str, Any], sc: Mapping[str, Any]) -> list[dict]:
     base = comparison["baseline"]
     order = sorted(sc["routes"], key=lambda r: (not r["verdict_changed"], not r["changed"]))
@@ -90,9 +121,22 @@ def _route_rows(comparison: Mapping[str, Any], sc: Mapping[str, Any]) -> list[di
                          "samples_used": extras.get("samples_used"), "reason": extras.get("verdict_reason")})
         if not rt["changed"]:            # one row for all runs keeps the page short
             runs = [{**runs[0], "label": "all"}]
+        tag = "verdict" if rt["verdict_changed"] else "changed" if rt["changed"] else None
+        head = {"text": rt["id"], "tag": tag}
+        rows = []
+        for r in runs:
+            nothing = r["extras"].get("criteria_assessed") is False
+            rows.append(_row("run", not rows, head, {"text": r["label"], "nothing_assessed": nothing}, r["cells"]))
+            note = _run_note(r)
+            if note:
+                rows.append(_row("note", False, head, None, note=note, width=1 + len(ROUTE_HEADS)))
         out.append({"id": rt["id"], "title": rt.get("title"), "changed": bool(rt["changed"]),
-                    "verdict_changed": rt["verdict_changed"], "runs": runs})
+                    "verdict_changed": rt["verdict_changed"], "runs": runs, "rows": rows})
     return out
+
+
+#: Column heads of the location table.
+LOCATION_HEADS = {"aset_raw_s": "ASET raw", "aset_p50_s": "ASET p50", "governing": "Governing"}
 
 
 def _location_rows(comparison: Mapping[str, Any], sc: Mapping[str, Any]) -> tuple[list[dict], int]:
@@ -103,13 +147,13 @@ def _location_rows(comparison: Mapping[str, Any], sc: Mapping[str, Any]) -> tupl
         if not loc["changed"]:
             same += 1
             continue
-        cells = []
+        table_rows = []
         for label, values in loc["values"].items():
             change = loc["changes"].get(label, {})
-            cells.append({"label": label, "cells": [
-                _cell(k, values[k], sc["end_s"].get(label), change.get(k), {}, loc["values"][base][k])
-                for k in ("aset_raw_s", "aset_p50_s", "governing")]})
-        rows.append({"id": loc["id"], "title": loc.get("title"), "runs": cells})
+            cells = [_cell(k, values[k], sc["end_s"].get(label), change.get(k), {}, loc["values"][base][k])
+                     for k in LOCATION_HEADS]
+            table_rows.append(_row("run", not table_rows, {"text": loc["id"], "tag": None}, {"text": label}, cells))
+        rows.append({"id": loc["id"], "title": loc.get("title"), "rows": table_rows})
     return rows, same
 
 
@@ -161,6 +205,7 @@ def build_compare_context(comparison: Mapping[str, Any], generated: str | None =
         "scenarios": scenarios,
         "not_compared": comparison["not_compared"],
         "heads": ROUTE_HEADS,
+        "location_heads": LOCATION_HEADS,
         "rule": comparison["rules"]["text"],
         "caution": COMPARE_CAUTION,
     }
