@@ -72,3 +72,15 @@ def test_cli_run_records_the_beer_lambert_time(kit, make_study, cli, tmp_path):
     assert status == 0, err
     res = json.loads((out / "results.json").read_text(encoding="utf-8"))
     assert res["scenarios"][0]["locations"][0]["criteria"]["visibility"]["raw_s"] == pytest.approx(400.0, abs=1e-3)
+
+
+def test_smoke_detector_on_an_obscuration_series(kit, make_study):
+    """A smoke rule of 3 %/ft on a location whose smoke is given in %/ft: both sides by Beer-Lambert,
+    so the detector responds where 0.002 t = -ln(0.97)/0.3048 1/m, t = 49.97 s (closed form)."""
+    text = kit.study.replace("extinction: K_hall", "extinction: S_hall").replace(
+        "    detection: 30 s\n", "    detection: {smoke: {location: hall-l1, obscuration: 3 percent/ft}}\n")
+    study = make_study(text, _obscuration_csv(kit, FOOT_M, "%/ft"))
+    opts = RunOptions(pdf=False, html=False, samples=20)
+    res, _ = build_results(load(study, opts), opts)
+    detection = res["scenarios"][0]["routes"][0]["rset_components_s"]["detection"]
+    assert detection["p50"] == pytest.approx(-math.log(0.97) / FOOT_M / 0.002, abs=0.05)
