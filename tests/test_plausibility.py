@@ -238,3 +238,18 @@ def test_end_time_rules():
     assert pl.end_checks("a", 300.0, "s", "Time", 1200.0, True) == []
     assert [f.code for f in pl.end_checks("a", 100.0, "s", "Time", 1200.0, True)] == ["time-minutes-as-seconds"]
     assert pl.end_checks("a", 15.0, "min", "Time", None, False) == []     # a time unit that is not seconds
+
+
+def test_stair_plan_length_far_beyond_its_treads_warns(kit, make_study, cli):
+    """3.6 m / 178 mm = 20.2 risers x 279 mm = 5.6 m; 30 m of plan is more than STAIR_PLAN_EXCESS (3) times it."""
+    text = kit.study.replace("{stair: {length: 12 m, width: 1.2 m, riser: 178 mm, tread: 279 mm}}",
+                             "{stair: {plan_length: 30 m, rise: 3.6 m, width: 1.2 m, riser: 178 mm, tread: 279 mm}}")
+    status, _, err = cli(["validate", make_study(text)])
+    assert status == 0 and "warning: plan length 30 m is more than 3 times" in err, err
+
+
+def test_stair_just_outside_the_table_within_one_inch_is_accepted(kit, make_study, cli):
+    """A 150/300 mm stair is 15 mm below the table's lowest riser (165 mm): within STAIR_RANGE_TOLERANCE_M."""
+    status, _, err = cli(["validate", make_study(kit.study.replace("riser: 178 mm, tread: 279 mm",
+                                                                   "riser: 150 mm, tread: 300 mm"))])
+    assert status == 0, err
