@@ -131,7 +131,10 @@ def test_celsius_column_that_looks_like_kelvin_is_a_warning(kit, make_study, cli
 
 def test_celsius_column_that_looks_like_kelvin_still_runs(kit, make_study):
     loaded = load(make_study(csv=_kelvin_csv(kit)))
-    assert [w.where.endswith("column 'T_stair [degC]' row 1") for w in without_sign_default(loaded.warnings)] == [True]
+    warnings = without_sign_default(loaded.warnings)
+    assert [w.where.endswith("column 'T_stair [degC]' row 1") for w in warnings] == [True, False]
+    # and the plausibility screen says the 60 degC limit is already exceeded at ignition there
+    assert "location 'stair-l1'" in warnings[1].message and "[limit-at-ignition;" in warnings[1].message
     results, _ = build_results(loaded, RunOptions(samples=50, pdf=False, html=False))
     assert any("looks like kelvin" in w for w in results["warnings"])
     # the run is done on the numbers as labelled: 293.15 degC is over the 60 degC limit at t = 0

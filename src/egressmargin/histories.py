@@ -19,7 +19,7 @@ import numpy as np
 from .errors import InputError, Problem
 from .tenability.irritants import IRRITANT_GASES
 from .study import SERIES_KEYS, ScenarioSpec, SeriesRef, did_you_mean
-from .units import check_unit, is_unit, same_unit, to_internal
+from .units import OBSCURATION_KEYS, check_unit, is_unit, obscuration_length, same_unit, to_internal
 
 _HEADER_UNIT = re.compile(r"^\s*(.*?)\s*\[\s*([^\]]*?)\s*\]\s*$")
 
@@ -349,6 +349,17 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
                                         f"found {'a blank' if found_cell == '' else repr(found_cell)}"
                                         f"{f' (and {int(bad.sum()) - 1} more)' if bad.sum() > 1 else ''}; "
                                         "expected a number"))
+                return None, None
+        if quantity in OBSCURATION_KEYS and obscuration_length(unit) is not None:
+            full = values >= 100.0
+            if full.any():
+                j = int(np.argmax(full))
+                problems.append(Problem(f"{fname}:{line0 + j} column '{_short(header)}' row {j + 1}",
+                                        f"{what}: obscuration {values[j]:g} {unit}"
+                                        f"{f' (and {int(full.sum()) - 1} more)' if full.sum() > 1 else ''} is 100 "
+                                        "percent or more, which has no finite extinction coefficient (K = "
+                                        "-ln(1 - p/100)/L); expected an obscuration below 100 percent per length "
+                                        "(check the unit)"))
                 return None, None
         return to_internal(values, unit, quantity), (header, unit, i)
 

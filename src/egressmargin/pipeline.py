@@ -14,7 +14,8 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__, aset, assess, outputs
+from . import __version__, aset, assess, outputs, plausibility
+from .plausibility import Finding
 from .clock import shift_to_ignition
 from .egress import summary as egress_summary
 from .credibility import flag_change, grid_convergence
@@ -54,6 +55,8 @@ class Loaded:
     data: dict[str, ScenarioData]
     resolutions: dict[str, list[tuple[float, ScenarioData]]]
     warnings: list[Problem] = field(default_factory=list)
+    #: Plausibility findings and whether a location acknowledged each (accept_warnings).
+    findings: list[tuple[Finding, bool]] = field(default_factory=list)
 
 
 def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
@@ -113,7 +116,76 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
     problems.extend(data_problems(study, data, options.samples))   # what only the data can tell (memory, detectors)
     if any(not p.warning for p in problems):
         raise InputError(problems + [w for w in warnings if w.warning])
-    return Loaded(study, table, data, res, warnings)
+    findings = screen(study, data)
+    warnings.extend(p for p, (_, acknowledged) in zip(_finding_problems(study, data, findings), findings)
+                    if not acknowledged)
+    return Loaded(study, table, data, res, warnings, findings)
+
+
+def _rough_rset_s(study: Study, sid: str) -> float | None:
+    """The smallest, over the scenario's routes, of median detection + alarm + pre-movement [s]
+    (no movement; a detector rule counts 0): a low estimate of the median RSET."""
+    from .egress import distributions as dist
+    out = []
+    for r in study.routes:
+        if r.scenarios is not None and sid not in r.scenarios:
+            continue
+        try:
+            det = dist.median(r.detection) if isinstance(r.detection, dict) else 0.0
+            out.append(det + dist.median(r.alarm) + dist.median(r.premovement))
+        except Exception:   # a spec the screen cannot read is judged by the egress model, not here
+            continue
+    return min(out) if out else None
+
+
+def screen(study: Study, data: dict[str, ScenarioData]) -> list[tuple[Finding, bool]]:
+    """The plausibility screen (:mod:`egressmargin.plausibility`) of every scenario, with whether a
+    location acknowledged each finding (``accept_warnings``)."""
+    from .units import same_unit
+    out = []
+    for spec in study.scenarios:
+        d = data.get(spec.id)
+        if d is None:
+            continue
+        columns = {(c.location, c.series): (c.column, c.unit_as_read) for c in d.columns
+                   if c.series not in ("time", "temperature_profile")}
+        time_col = next(((c.column, c.unit_as_read) for c in d.columns if c.series == "time"), None)
+        prep = aset.prepare(d, study.criteria, spec.ambient_temperature_c, spec.ambient_o2)
+        raw = aset.evaluate(prep, study.criteria, {}, 1, with_bound=False)
+        first = {lid: {cid: float(r.times[li, 0]) for cid, r in raw.items() if r.assessed[li]}
+                 for li, lid in enumerate(d.location_ids) if spec.locations[li].role != "detector"}
+        smoke = {k: prep.extinction for k in ("optical_density", "soot") if prep.extinction is not None}
+        found = plausibility.screen_scenario(
+            spec.id, d.location_ids, d.series, d.present, columns, t_end_s=d.end_s, time_column=time_col,
+            time_in_seconds=time_col is not None and same_unit(time_col[1], "s", "time"),
+            ambient_c=spec.ambient_temperature_c, ambient_o2=spec.ambient_o2,
+            ceilings_m={loc.id: loc.profile.ceiling_m for loc in spec.locations if loc.profile is not None},
+            rough_rset_s=_rough_rset_s(study, spec.id), first_reached_s=first, smoke_extinction=smoke)
+        accepted = {loc.id: set(loc.accept_warnings) for loc in spec.locations}
+        for f in found:
+            ack = (f.code in accepted.get(f.location, set()) if f.location is not None
+                   else any(f.code in a for a in accepted.values()))
+            out.append((f, ack))
+    return out
+
+
+def _finding_problems(study: Study, data: dict, findings) -> list[Problem]:
+    """Each finding as a located warning (the CSV column, else the location or scenario in the study)."""
+    specs = {spec.id: spec for spec in study.scenarios}
+    out = []
+    for f, _ in findings:
+        spec = specs[f.scenario]
+        loc = next((loc for loc in spec.locations if loc.id == f.location), None)
+        if f.column is not None:
+            where = f"{data[f.scenario].path} column '{f.column}'"
+        else:
+            where = loc.where if loc is not None else spec.where
+        place = f"scenario '{f.scenario}'" + (f", location '{f.location}'" if f.location else "")
+        series = f.series + (f" (column '{f.column}')" if f.column else "")
+        hint = (f"acknowledge with accept_warnings: [{f.code}] on the location" if f.location
+                else f"acknowledge with accept_warnings: [{f.code}] on a location of the scenario")
+        out.append(Problem(where, f"{place}, {series}: {f.message} [{f.code}; {hint}]", warning=True))
+    return out
 
 
 def _on_ignition_clock(spec, data: ScenarioData, problems: list[Problem]) -> ScenarioData:
@@ -649,6 +721,10 @@ def build_results(loaded: Loaded, options: RunOptions):
         "warnings": [str(w) for w in loaded.warnings] + [w for sc in scenarios for w in sc["warnings"]],
         "scenarios": scenarios,
     }
+    found = getattr(loaded, "findings", [])
+    results["plausibility"] = [f.as_json(ack) for f, ack in found]
+    results["acknowledged_warnings"] = [{"scenario": f.scenario, "location": f.location, "code": f.code,
+                                         "message": f.message} for f, ack in found if ack]
     return results, plots
 
 

@@ -41,6 +41,8 @@ TOP_KEYS = {"title", "criteria", "uncertainty", "samples", "seed", "acceptance",
 SCENARIO_KEYS = {"id", "title", "histories", "time", "units_row", "locations", "ambient", "resolutions",
                  "ignition", "design_fire"}
 LOCATION_KEYS = {"id", "title", "temperature_profile", "role", *SERIES_KEYS}
+#: A location may acknowledge plausibility findings by code (plausibility.CODES).
+LOCATION_KEYS = LOCATION_KEYS | {"accept_warnings"}
 #: A location's role: an occupied point assessed for tenability, or a detection point only.
 LOCATION_ROLES = ("occupied", "detector")
 #: Optional description of a scenario's design fire, printed in the report as given.
@@ -89,6 +91,7 @@ class LocationSpec:
     profile: ProfileRef | None
     where: str
     role: str = "occupied"          # "detector": detection only, not assessed for tenability
+    accept_warnings: tuple[str, ...] = ()   # plausibility codes acknowledged here (plausibility.CODES)
 
 
 @dataclass
@@ -652,8 +655,27 @@ def _locations(ck, value, kp) -> list[LocationSpec]:
                    f"(detector: a detection point, not assessed for tenability){did_you_mean(str(role), LOCATION_ROLES)}")
             role = "occupied"
         out.append(LocationSpec(lid, ck.text(loc.get("title"), lkp + ("title",), default=lid), series, profile,
-                                ck.doc.where(lkp), role))
+                                ck.doc.where(lkp), role, _accept_warnings(ck, loc.get("accept_warnings"),
+                                                                          lkp + ("accept_warnings",))))
     return out
+
+
+def _accept_warnings(ck, value, kp) -> tuple[str, ...]:
+    """A location's ``accept_warnings``: a list of plausibility codes (plausibility.CODES)."""
+    from .plausibility import CODES
+    if value is None:
+        return ()
+    if not isinstance(value, list):
+        ck.err(kp, f"found {_show(value)}; expected a list of warning codes such as [start-co-nonzero]")
+        return ()
+    out = []
+    for j, code in enumerate(value):
+        if not isinstance(code, str) or code not in CODES:
+            ck.err(kp + (j,), f"unknown warning code {_show(code)}; expected one of {', '.join(CODES)}"
+                   f"{did_you_mean(str(code), CODES)}")
+            continue
+        out.append(code)
+    return tuple(out)
 
 
 def _design_fire(ck, value, kp) -> dict | None:
@@ -1145,6 +1167,8 @@ def _element(ck, el, ekp) -> dict | None:
                    f"stair table (rows {rows}; steepest {steepest:.3f}, SFPE Handbook ch. 59); expected a "
                    "riser and tread within the table")
             return None
+        if not _stair_geometry(ck, vals, ekp + (kind,), STAIR_ROWS):
+            return None
     element = {"type": kind, "length_m": length, "width_m": vals["width"],
                "riser_m": vals.get("riser"), "tread_m": vals.get("tread"), "boundary_m": vals.get("boundary"),
                "length_basis": basis}
@@ -1171,6 +1195,51 @@ def _element(ck, el, ekp) -> dict | None:
             element["at"] = str(element["at"])
     element["where"] = ck.doc.where(ekp)
     return element
+
+
+#: A riser or tread more than this beyond the stair table's own span [m] is outside what the
+#: table covers (project choice: one inch, the table's step between tread rows; beyond it the
+#: hydraulic method's stair rows are extrapolated, and a millimetre or centimetre slip lies far beyond).
+STAIR_RANGE_TOLERANCE_M = 0.0254
+#: A stair's plan length may be this much shorter than its treads need ((risers - 1) x tread,
+#: risers = rise / riser) before riser, tread, rise and plan length are called inconsistent
+#: (project choice: rounding of the riser count and nosing overlap).
+STAIR_PLAN_SHORTFALL = 0.10
+#: A plan length above this multiple of risers x tread is flagged as a likely slip in rise or
+#: plan length (project choice: landings of a multi-flight stair rarely double the flights' length).
+STAIR_PLAN_EXCESS = 3.0
+
+
+def _stair_geometry(ck, vals, kp, rows) -> bool:
+    """Riser and tread within the stair table's span, and consistent with the stair's own rise and
+    plan length when both are given; False (an error recorded) when not."""
+    ok = True
+    for name, key in (("riser", "riser_m"), ("tread", "tread_m")):
+        lo = min(r[key] for r in rows) - STAIR_RANGE_TOLERANCE_M
+        hi = max(r[key] for r in rows) + STAIR_RANGE_TOLERANCE_M
+        v = vals[name]
+        if not lo <= v <= hi:
+            span = f"{min(r[key] for r in rows) * 1000:.0f} to {max(r[key] for r in rows) * 1000:.0f} mm"
+            ck.err(kp + (name,), f"stair {name} {v * 1000:.4g} mm is outside the hydraulic method's stair table "
+                   f"({name}s {span}, SFPE Handbook ch. 59) by more than {STAIR_RANGE_TOLERANCE_M * 1000:.1f} mm; "
+                   f"expected a {name} within {lo * 1000:.0f} to {hi * 1000:.0f} mm (check the unit)")
+            ok = False
+    if not ok or "rise" not in vals or "plan_length" not in vals:
+        return ok
+    risers = vals["rise"] / vals["riser"]
+    need = max(risers - 1.0, 0.0) * vals["tread"]
+    if vals["plan_length"] < need * (1 - STAIR_PLAN_SHORTFALL):
+        ck.err(kp, f"rise {vals['rise']:g} m / riser {vals['riser'] * 1000:.4g} mm is {risers:.1f} risers, whose "
+               f"{max(risers - 1, 0):.1f} treads of {vals['tread'] * 1000:.4g} mm need a plan length of at least "
+               f"{need:.2f} m; the plan length is {vals['plan_length']:g} m; expected riser, tread, rise and "
+               "plan_length that agree (check their units)")
+        return False
+    if vals["plan_length"] > STAIR_PLAN_EXCESS * max(risers, 1.0) * vals["tread"]:
+        ck.warn(kp, f"plan length {vals['plan_length']:g} m is more than {STAIR_PLAN_EXCESS:g} times the "
+                f"{risers:.1f} treads of {vals['tread'] * 1000:.4g} mm that rise {vals['rise']:g} m / riser "
+                f"{vals['riser'] * 1000:.4g} mm gives ({risers * vals['tread']:.2f} m); check the rise and the "
+                "plan length (landings included?)")
+    return True
 
 
 def _stair_length(ck, spec, vals, kp) -> tuple[float | None, str]:

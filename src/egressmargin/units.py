@@ -140,6 +140,56 @@ def _factor_offset(unit: str, target: str) -> tuple[float, float]:
     return float(a), float(b)
 
 
+#: Series keys a percent obscuration per length (``%/m``, ``%/ft``) may be given for: it is
+#: converted to an extinction coefficient by Beer-Lambert (:func:`obscuration_to_extinction`).
+OBSCURATION_KEYS = ("extinction",)
+
+
+def obscuration_length(unit: str) -> float | None:
+    """The path length [m] of a percent-obscuration-per-length unit (``%/m``: 1.0, ``%/ft``: 0.3048),
+    or None when ``unit`` is not one.
+
+    Examples
+    --------
+    >>> obscuration_length("%/ft"), obscuration_length("percent/m"), obscuration_length("1/m")
+    (0.3048, 1.0, None)
+    """
+    per = _PER_LENGTH.match(_clean(unit))
+    if not per:
+        return None
+    try:
+        a, b = _factor_offset(per.group(1).strip(), "m")
+    except UnitProblem:
+        return None
+    return float(f"{a:.12g}") if a > 0 and b == 0 else None   # round-off of 1 ft (0.30479999999999996)
+
+
+def obscuration_to_extinction(percent, length_m: float) -> np.ndarray:
+    """Extinction coefficient [1/m] of a percent obscuration ``percent`` over a path ``length_m`` [m].
+
+    Notes
+    -----
+    Beer-Lambert: the transmitted fraction over a path L is I/I0 = exp(-K L), and the
+    obscuration is p = 100 (1 - I/I0) percent, so
+
+        K = -ln(1 - p/100) / L.
+
+    An obscuration of 100 percent or more has no finite K (the caller refuses it).
+    Reference: SFPE Handbook of Fire Protection Engineering, 5th ed., chapter on smoke
+    measurement (Beer-Lambert law, percent obscuration); from memory.
+
+    Examples
+    --------
+    >>> round(float(obscuration_to_extinction(10.0, 1.0)), 6)   # -ln(0.9)
+    0.105361
+    >>> round(float(obscuration_to_extinction(3.0, 0.3048)), 6)  # -ln(0.97)/0.3048
+    0.099933
+    """
+    p = np.asarray(percent, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return -np.log1p(-p / 100.0) / float(length_m)
+
+
 def check_unit(unit: str, quantity: str) -> str | None:
     """Return None if ``unit`` converts to the internal unit of ``quantity``, else a message.
 
@@ -152,6 +202,11 @@ def check_unit(unit: str, quantity: str) -> str | None:
     >>> check_unit("mg/kg", "co")
     "found 'mg/kg', which is not a volume fraction; expected ppm, ppmv, ppb, percent, %, vol%, mol/mol or '-'"
     """
+    if obscuration_length(unit) is not None and quantity in INTERNAL_UNITS \
+            and INTERNAL_UNITS[quantity] == "1/m" and quantity not in OBSCURATION_KEYS:
+        return (f"found '{unit}', a percent obscuration per length, for '{quantity}'; a percent obscuration is "
+                f"converted to an extinction coefficient by Beer-Lambert (K = -ln(1 - p/100)/L): map the "
+                f"column as 'extinction' instead")
     try:
         _factor_offset(unit, INTERNAL_UNITS[quantity])
     except UnitProblem as exc:
@@ -210,7 +265,12 @@ def to_internal(values, unit: str, quantity: str) -> np.ndarray:
     0.001
     >>> round(float(to_internal(68.0, "degF", "temperature")), 6)
     20.0
+    >>> round(float(to_internal(10.0, "%/m", "extinction")), 6)   # Beer-Lambert, not 0.1
+    0.105361
     """
+    length_m = obscuration_length(unit) if quantity in OBSCURATION_KEYS else None
+    if length_m is not None:
+        return obscuration_to_extinction(values, length_m)
     a, b = _factor_offset(unit, INTERNAL_UNITS[quantity])  # raises UnitProblem with a message for the user
     out = np.asarray(values, dtype=float) * a
     return out + b if b else out
