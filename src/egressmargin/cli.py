@@ -257,6 +257,8 @@ def _validate(args) -> int:
     print(f"{args.study}: OK — {len(loaded.study.scenarios)} scenario(s), {n_loc} location(s), "
           f"{len(loaded.study.routes)} route(s), criteria '{loaded.study.criteria.name}', "
           f"{'model uncertainty from ' + str(loaded.table.path) if loaded.table else 'no model-uncertainty table'}")
+    for cid, why in loaded.study.criteria.not_applicable.items():
+        print(f"  criterion '{cid}' not applicable: {why}")
     if getattr(args, "explain", False):
         from .egress.summary import explain_text
         print()
