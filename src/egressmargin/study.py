@@ -1198,7 +1198,7 @@ def data_problems(study: Study, data: dict, samples: int | None = None) -> list[
 
     ``data`` maps scenario id to its :class:`~egressmargin.histories.ScenarioData`.
     """
-    from .sizing import estimate_bytes, memory_problems
+    from .sizing import estimate_bytes, memory_problems, occupant_count_bound
 
     problems: list[Problem] = []
     by_id = {s.id: s for s in study.scenarios}
@@ -1225,18 +1225,83 @@ def data_problems(study: Study, data: dict, samples: int | None = None) -> list[
                                         "respond at time zero; expected an activation temperature above ambient"))
     drawn = int(samples or study.samples)
     most = int(getattr(study, "max_samples", 0) or 0)
-    shapes = [(len(d.location_ids), sum(1 for r in study.routes if r.scenarios is None or sid in r.scenarios),
-               len(d.t_s)) for sid, d in data.items()]
+
+    def shapes_at(n_samples):
+        return [(len(d.location_ids), sum(1 for r in study.routes if r.scenarios is None or sid in r.scenarios),
+                 len(d.t_s), sum(occupant_count_bound(r.occupants_dist or {"fixed": float(r.occupants)}, n_samples)
+                                 for r in study.routes if r.scenarios is None or sid in r.scenarios))
+                for sid, d in data.items()]
+    shapes = shapes_at(drawn)
     # Every scenario keeps its `samples` draws to the end; the extra draws that settle a
     # straddling verdict (up to max_samples) are made for one scenario at a time and dropped.
     memory = memory_problems(drawn, shapes, "")
-    key = "samples"
+    key, used, used_shapes = "samples", drawn, shapes
     if not memory and most > drawn and shapes:
-        largest = max(shapes, key=lambda sh: estimate_bytes(most, [sh]))
+        largest = max(shapes_at(most), key=lambda sh: estimate_bytes(most, [sh]))
         memory = memory_problems(most, [largest], "")
-        key = "max_samples"
+        key, used, used_shapes = "max_samples", most, [largest]
     if memory:   # locate the key only when there is something to say (reads the study again)
-        where = "--samples (command line)" if samples and key == "samples" else \
-            load_located(study.path).where((key,))
-        problems += [Problem(where, p.message) for p in memory]
+        occupant_problem = _occupant_memory_problem(study, used, used_shapes, key, samples)
+        if occupant_problem is not None:
+            problems.append(occupant_problem)
+        else:
+            where = "--samples (command line)" if samples and key == "samples" else \
+                load_located(study.path).where((key,))
+            problems += [Problem(where, p.message) for p in memory]
     return problems
+
+
+def _occupant_memory_problem(study: Study, n_samples: int, shapes, key: str, cli_samples) -> Problem | None:
+    """The memory problem located at the occupant count of the largest route, when the flow
+    model's (samples x occupants) arrays are at least half of what the run needs; else None.
+
+    Says the count as drawn (for a distribution its quantile ``1 - 1/(10 samples)``, see
+    :func:`~egressmargin.sizing.occupant_count_bound`), the memory needed and available, the
+    largest count of that route that fits with everything else unchanged, and the most
+    samples that fit with the counts unchanged.
+    """
+    from .sizing import (BYTES_PER_SAMPLE_OCCUPANT, OCCUPANT_SWEEP, available_memory, estimate_bytes,
+                         format_bytes, occupant_count_bound)
+
+    available, total = available_memory()
+    need = estimate_bytes(n_samples, shapes)
+    occupant_bytes = sum(n_samples * sh[3] * BYTES_PER_SAMPLE_OCCUPANT for sh in shapes)
+    if available is None or not study.routes or occupant_bytes * 2 < need \
+            or need - occupant_bytes > available:       # too many samples whatever the counts: say so at samples
+        return None
+    bounds = {r.id: occupant_count_bound(r.occupants_dist or {"fixed": float(r.occupants)}, n_samples)
+              for r in study.routes}
+    route = max(study.routes, key=lambda r: bounds[r.id])
+    # bytes per occupant of this route: it counts once in every scenario it is assessed on (of those sized)
+    n_scen = min(len(shapes), max(1, sum(1 for sc in study.scenarios
+                                         if route.scenarios is None or sc.id in route.scenarios)))
+    per_occupant = n_scen * n_samples * BYTES_PER_SAMPLE_OCCUPANT * OCCUPANT_SWEEP
+    rest = need - n_scen * n_samples * bounds[route.id] * BYTES_PER_SAMPLE_OCCUPANT
+    fits = max(int((available - rest) // per_occupant), 0)
+    while fits > 0 and rest + n_scen * n_samples * BYTES_PER_SAMPLE_OCCUPANT * occupant_count_bound(
+            {"fixed": float(fits)}, n_samples) > available:       # the bound rounds up: step down to what fits
+        fits -= 1
+    fixed = estimate_bytes(0, shapes)
+    most_samples = max(int((available - fixed) // max(estimate_bytes(1, shapes) - fixed, 1)), 0)
+    doc = load_located(study.path)
+    index = next((i for i, r in enumerate(doc.data.get("egress") or [])
+                  if isinstance(r, dict) and str(r.get("id")) == route.id), None)
+    where = doc.where(("egress", index, "occupants")) if index is not None else route.where
+    dist = route.occupants_dist or {"fixed": float(route.occupants)}
+    if "fixed" in dist:
+        count, limit = f"{route.occupants} occupants", f"at most about {fits} occupants on this route"
+    else:
+        drawn = f"about {round(bounds[route.id] / OCCUPANT_SWEEP):.4g}" if bounds[route.id] < 10 ** 18 \
+            else "beyond 1e18"
+        count = (f"an occupant count reaching {drawn} (its quantile 1 - 1/(10 x {n_samples}), "
+                 f"about the largest of {n_samples} draws)")
+        limit = f"a count whose largest draws stay below about {fits} on this route"
+    whole = f" ({format_bytes(total)} in all)" if total else ""
+    samples_words = "--samples" if cli_samples and key == "samples" else key
+    paren = "" if samples_words == "samples" else f" ({samples_words})"
+    return Problem(where, f"{count} on route '{route.id}' with {n_samples} samples{paren} need about "
+                          f"{format_bytes(need)} of memory: the flow model follows every occupant in every draw "
+                          f"(counted 10 % high for the sensitivity sweep); this machine has "
+                          f"{format_bytes(available)} available{whole}; expected {limit}"
+                          + (f", or {samples_words} at most about {most_samples} with these counts" if most_samples
+                             else " (no number of samples fits these counts)"))
