@@ -62,3 +62,41 @@ def test_blank_lines_do_not_shift_the_line_numbers(kit, make_study, cli, expect_
     after = lines[:13] + [blank] + lines[13:]          # a blank line after the bad row changes nothing
     status, _, err = cli(["validate", make_study(csv="\n".join(after))])
     assert status == 2 and "fire-a.csv:12 column 'Time' row 11: error: found 'xx'" in err
+
+
+# --------------------------------------------------------------------------- uncertainty tables: sigma as a percentage
+
+UNC = ("source: illustrative table for a test\ndistribution: lognormal\nquantities:\n"
+       "  extinction:\n    bias: 1.2\n    sigma_model: {sm}\n    sigma_exp: {se}\n")
+
+
+def _with_table(kit, make_study, sm, se="0.1"):
+    text = kit.study.replace("criteria: general-2m", "criteria: general-2m\nuncertainty: unc.yaml")
+    return make_study(text, extra={"unc.yaml": UNC.format(sm=sm, se=se)})
+
+
+@pytest.mark.parametrize("sm, se, key", [("50", "0.1", "sigma_model"), ("1.5", "0.1", "sigma_model"),
+                                         ("0.3", "15", "sigma_exp")])
+def test_sigma_above_one_is_refused_as_a_likely_percentage(kit, make_study, cli, expect_input_error, sm, se, key):
+    """sigma_model: 50 made the visibility limit unreachable in most draws, silently.
+
+    The threshold is fit-uncertainty's for sigma_exp (uncertainty.SIGMA_PERCENT_SUSPECT = 1,
+    project choice): a lognormal factor with sigma 1 spans exp(+/-1.96) = x/7 at 95 %.
+    """
+    line = 6 if key == "sigma_model" else 7
+    for msg in _both(cli, expect_input_error, _with_table(kit, make_study, sm, se)):
+        assert f"unc.yaml:{line} quantities.extinction.{key}: error: found " in msg
+        assert "is it a percentage?" in msg
+
+
+def test_wide_sigma_is_a_warning_and_an_ordinary_one_is_quiet(kit, make_study, cli):
+    from egressmargin.uncertainty import SIGMA_PERCENT_SUSPECT, SIGMA_WIDE
+    from egressmargin import uncertainty_fit
+
+    assert uncertainty_fit.SIGMA_PERCENT_SUSPECT is SIGMA_PERCENT_SUSPECT    # one threshold for both tools
+    status, _, err = cli(["validate", _with_table(kit, make_study, "0.8")])
+    assert status == 0, err
+    assert "unc.yaml:6 quantities.extinction.sigma_model: warning: found 0.8" in err
+    assert SIGMA_WIDE < 0.8 < SIGMA_PERCENT_SUSPECT
+    status, _, err = cli(["validate", _with_table(kit, make_study, "0.3")])
+    assert status == 0 and "sigma_model: warning" not in err
