@@ -100,3 +100,31 @@ def test_wide_sigma_is_a_warning_and_an_ordinary_one_is_quiet(kit, make_study, c
     assert SIGMA_WIDE < 0.8 < SIGMA_PERCENT_SUSPECT
     status, _, err = cli(["validate", _with_table(kit, make_study, "0.3")])
     assert status == 0 and "sigma_model: warning" not in err
+
+
+# --------------------------------------------------------------------------- every problem at once
+
+
+def test_study_table_and_coarse_csv_problems_are_reported_together(kit, make_study, cli, expect_input_error):
+    """A study error hid the table's error and a bad cell in a coarser resolution's CSV."""
+    text = (kit.study.replace("samples: 200", "samples: -1")
+            .replace("criteria: general-2m", "criteria: general-2m\nuncertainty: unc.yaml")
+            .replace("    histories: fire-a.csv\n",
+                     "    resolutions: [{cell: 0.1 m, histories: fire-a.csv}, {cell: 0.2 m, histories: coarse.csv}]\n"))
+    coarse = kit.with_cell(kit.csv, 7, "T_hall [degC]", "hot")
+    study = make_study(text, extra={"unc.yaml": UNC.format(sm="50", se="0.1"), "coarse.csv": coarse})
+    for msg in _both(cli, expect_input_error, study):
+        assert f"study.yaml:{kit.line_of(text, 'samples:')} samples: error" in msg
+        assert "unc.yaml:6 quantities.extinction.sigma_model: error" in msg
+        assert f"coarse.csv:{kit.csv_line(7)} column 'T_hall [degC]' row 8: error: found 'hot'" in msg
+
+
+def test_a_bad_fine_csv_does_not_hide_the_coarse_one(kit, make_study, cli):
+    text = kit.study.replace("    histories: fire-a.csv\n",
+                             "    resolutions: [{cell: 0.1 m, histories: fire-a.csv}, {cell: 0.2 m, histories: coarse.csv}]\n")
+    fine = kit.with_cell(kit.csv, 3, "CO_hall [ppm]", "n/a")
+    coarse = kit.with_cell(kit.csv, 7, "T_hall [degC]", "hot")
+    status, _, err = cli(["validate", make_study(text, csv=fine, extra={"coarse.csv": coarse})])
+    assert status == 2
+    assert f"fire-a.csv:{kit.csv_line(3)} column 'CO_hall [ppm]'" in err
+    assert f"coarse.csv:{kit.csv_line(7)} column 'T_hall [degC]'" in err

@@ -24,6 +24,7 @@ from .stats import rounded as _t, share, summarise
 from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study, data_problems
 from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
+from .yamlfile import load_located
 from .records import RouteResult, route_json
 from .verdict import CI_METHOD, decide, draw_outcomes, needs_more_samples, worst_outcome
 
@@ -61,13 +62,25 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
     options = options or RunOptions()
     study, specs, problems = check_study(study_path, criteria_override=options.criteria)
     if study is None:
-        # Report the CSV problems of every scenario that could be read, too.
+        # Report the problems of every file that could be read, too: each scenario's CSV,
+        # its resolutions' CSVs and the model-uncertainty table ("every problem at once").
         for spec in specs:
-            if spec.histories is not None and spec.histories.is_file() and spec.time is not None:
+            if spec.time is None:
+                continue
+            paths = [spec.histories] + [r.histories for r in getattr(spec, "resolutions", None) or []]
+            for k, path in enumerate(paths):
+                if path is None or not path.is_file() or (k and path.resolve() == paths[0].resolve()):
+                    continue
                 try:
-                    read_scenario(spec)
+                    read_scenario(spec, None if k == 0 else path)
                 except InputError as exc:
                     problems.extend(exc.problems)
+        unc_path = options.uncertainty or _named_table(Path(study_path))
+        if unc_path is not None and not options.raw_only and Path(unc_path).is_file():
+            try:
+                load_table(Path(unc_path))
+            except InputError as exc:
+                problems.extend(exc.problems)
         raise InputError(problems)
     problems = []
     warnings = list(study.warnings)
@@ -96,11 +109,11 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
             warnings.extend(w)
         except InputError as exc:
             problems.extend(exc.problems)
-            continue
         runs = []
         for r in spec.resolutions:
             if r.histories.resolve() == spec.histories.resolve():
-                runs.append((r.cell_m, data[spec.id]))
+                if spec.id in data:
+                    runs.append((r.cell_m, data[spec.id]))
                 continue
             try:
                 d2, w2 = read_scenario(spec, r.histories)
@@ -114,6 +127,16 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
     if any(not p.warning for p in problems):
         raise InputError(problems + [w for w in warnings if w.warning])
     return Loaded(study, table, data, res, warnings)
+
+
+def _named_table(study_path: Path) -> Path | None:
+    """The model-uncertainty table a study names (``uncertainty:``), read again from the file
+    when the study has errors, so that the table's own problems are reported with them."""
+    try:
+        value = load_located(study_path).data.get("uncertainty")
+    except (InputError, AttributeError):
+        return None
+    return study_path.parent / value if isinstance(value, str) and value.strip() else None
 
 
 def _on_ignition_clock(spec, data: ScenarioData, problems: list[Problem]) -> ScenarioData:
