@@ -128,3 +128,29 @@ def test_a_bad_fine_csv_does_not_hide_the_coarse_one(kit, make_study, cli):
     assert status == 2
     assert f"fire-a.csv:{kit.csv_line(3)} column 'CO_hall [ppm]'" in err
     assert f"coarse.csv:{kit.csv_line(7)} column 'T_hall [degC]'" in err
+
+
+# --------------------------------------------------------------------------- integer ids
+
+
+def test_integer_ids_are_text_everywhere(kit, make_study, cli, tmp_path):
+    """`id: 1` then `scenarios: [1]` said "no scenario '1'; expected one of 1"; ids are now compared as text."""
+    import json
+
+    text = (kit.study.replace("  - id: fire-a", "  - id: 1").replace("      - id: hall-l1", "      - id: 10")
+            .replace("      - id: stair-l1", "      - id: 20").replace("  - id: north-stair", "  - id: 7")
+            .replace("    occupants: 120", "    scenarios: [1]\n    start_at: 10\n    occupants: 120")
+            .replace("      - {door: {width: 1.0 m}}", "      - {door: {width: 1.0 m, at: 20}}")
+            .replace("exposed_at: [hall-l1, stair-l1]", "exposed_at: [10, 20]"))
+    status, _, err = cli(["run", make_study(text), "--no-pdf", "--out", tmp_path / "out"])
+    assert status == 0, err
+    res = json.loads((tmp_path / "out" / "results.json").read_text())
+    sc = res["scenarios"][0]
+    assert sc["id"] == "1" and [loc["id"] for loc in sc["locations"]] == ["10", "20"]
+    assert sc["routes"][0]["id"] == "7" and sc["routes"][0]["exposed_at"] == ["10", "20"]
+
+
+def test_an_integer_reference_to_a_missing_id_still_says_so(kit, make_study, cli):
+    text = kit.study.replace("    occupants: 120", "    scenarios: [2]\n    occupants: 120")
+    status, _, err = cli(["validate", make_study(text)])
+    assert status == 2 and "no scenario '2'; expected one of fire-a" in err

@@ -744,7 +744,7 @@ def _routes(ck, value, loc_ids: dict[str, dict], named: dict | None = None,
                     if not isinstance(s, (str, int)) or isinstance(s, bool):
                         ck.err(kp + ("scenarios", j), f"found {_show(s)}; expected a scenario id")
                         continue
-                    if s not in loc_ids:
+                    if str(s) not in loc_ids:        # ids are text: an integer id is compared as written
                         ck.err(kp + ("scenarios", j), f"no scenario '{s}'; expected one of "
                                f"{', '.join(all_scen)}{did_you_mean(s, all_scen)}")
                 scen = [str(s) for s in scen]
@@ -808,6 +808,7 @@ def _location_ref(ck, lid, kp, covered, loc_ids) -> str | None:
     if not isinstance(lid, (str, int)) or isinstance(lid, bool):
         ck.err(kp, f"found {_show(lid)}; expected a location id")
         return None
+    lid = str(lid)                          # ids are text: an integer id is compared as written
     missing = [s for s in covered if s in loc_ids and lid not in loc_ids[s]]
     if missing:
         known = sorted({x for s in covered if s in loc_ids for x in loc_ids[s]})
@@ -1162,8 +1163,8 @@ def _element(ck, el, ekp) -> dict | None:
                 f"escape {kind} is likely to be ({MIN_PLAUSIBLE_WIDTH_M} m); check the unit (it controls the "
                 f"route's flow at {we:.2f} m effective width)")
     if "at" in spec:
-        element["at"] = spec["at"] if isinstance(spec["at"], (str, int)) and not isinstance(spec["at"], bool) \
-            else None
+        element["at"] = str(spec["at"]) if isinstance(spec["at"], (str, int)) \
+            and not isinstance(spec["at"], bool) else None
         element["at_kp"] = ekp + (kind, "at")
         if element["at"] is None:
             ck.err(ekp + (kind, "at"), f"found {_show(spec['at'])}; expected a location id")
