@@ -154,3 +154,20 @@ def test_an_integer_reference_to_a_missing_id_still_says_so(kit, make_study, cli
     text = kit.study.replace("    occupants: 120", "    scenarios: [2]\n    occupants: 120")
     status, _, err = cli(["validate", make_study(text)])
     assert status == 2 and "no scenario '2'; expected one of fire-a" in err
+
+
+# --------------------------------------------------------------------------- upstream naming every user
+
+
+def test_upstream_naming_every_route_is_refused(kit, make_study, cli, expect_input_error):
+    """It behaved as first come, first served while the report said the routes "keep their flow"."""
+    from test_egress_study import shared_study
+
+    text = shared_study(kit).replace("  - id: shared-stair\n",
+                                     "  - id: shared-stair\n    upstream: [north-stair, south-stair]\n")
+    for msg in _both(cli, expect_input_error, make_study(text)):
+        assert f"study.yaml:{kit.line_of(text, 'upstream:')} elements[0].upstream: error: upstream names every " \
+               "route that uses element 'shared-stair' (north-stair, south-stair)" in msg
+    one = shared_study(kit).replace("  - id: shared-stair\n", "  - id: shared-stair\n    upstream: [north-stair]\n")
+    status, _, err = cli(["validate", make_study(one)])
+    assert status == 0, err                      # one route left behind: the rule is defined

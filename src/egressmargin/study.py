@@ -982,6 +982,12 @@ def _check_upstream(ck, named: dict[str, NamedElement], routes: list[RouteSpec])
             if rid not in users:
                 ck.err(kp + (j,), f"route '{rid}' does not use element '{eid}'; expected one of "
                        f"{', '.join(users) or '(no route uses it)'}{did_you_mean(rid, users or ids)}")
+        if el.upstream and users and set(users) <= set(el.upstream):
+            # with every user upstream nobody receives "the capacity left over": the merge
+            # would fall back to first come, first served while the report says they keep their flow
+            ck.err(kp, f"upstream names every route that uses element '{eid}' ({', '.join(users)}); expected "
+                   "at least one route left behind, which receives the capacity the upstream routes leave "
+                   "(or no upstream: first come, first served)")
     for a_i, a in enumerate(routes):
         for b in routes[a_i + 1:]:
             if a.scenarios and b.scenarios and not set(a.scenarios) & set(b.scenarios):
