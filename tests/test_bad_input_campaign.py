@@ -171,3 +171,45 @@ def test_upstream_naming_every_route_is_refused(kit, make_study, cli, expect_inp
     one = shared_study(kit).replace("  - id: shared-stair\n", "  - id: shared-stair\n    upstream: [north-stair]\n")
     status, _, err = cli(["validate", make_study(one)])
     assert status == 0, err                      # one route left behind: the rule is defined
+
+
+# --------------------------------------------------------------------------- implausible limits and ambient
+
+
+@pytest.mark.parametrize("limit", ["-300 degC", "20 degC", "290 K", "-40 degF"])
+def test_temperature_limit_not_above_room_temperature_is_refused(kit, make_study, cli, expect_input_error, limit):
+    """A limit at or below 20 degC (criteria.TEMPERATURE_LIMIT_FLOOR_C, common practice) is reached before any fire;
+    290 K = 16.85 degC and -40 degF = -40 degC (pint's conversions)."""
+    text = kit.study.replace("criteria: general-2m", f"criteria: {{base: general-2m, temperature: {{limit: {limit}}}}}")
+    for msg in _both(cli, expect_input_error, make_study(text)):
+        assert f"study.yaml:{kit.line_of(text, 'criteria:')} criteria.temperature.limit: error: found '{limit}'" in msg
+        assert "expected a gas temperature limit above room temperature (20 degC)" in msg
+
+
+def test_a_temperature_limit_just_above_room_temperature_is_accepted(kit, make_study, cli):
+    text = kit.study.replace("criteria: general-2m", "criteria: {base: general-2m, temperature: {limit: 45 degC}}")
+    status, _, err = cli(["validate", make_study(text)])
+    assert status == 0, err
+
+
+def _ambient(kit, o2):
+    return kit.study.replace("    time: {column", f"    ambient: {{o2: {o2}}}\n    time: {{column")
+
+
+@pytest.mark.parametrize("o2", ["30 percent", "0.1 percent", "14 percent", "0.3 mol/mol"])
+def test_implausible_ambient_oxygen_is_refused(kit, make_study, cli, expect_input_error, o2):
+    """Accepted range 15 to 23.5 percent: above 23.5 % is oxygen-enriched (US OSHA 29 CFR 1910.146(b));
+    15 % is about what oxygen-reduction systems hold (from memory)."""
+    text = _ambient(kit, o2)
+    for msg in _both(cli, expect_input_error, make_study(text)):
+        assert f"study.yaml:{kit.line_of(text, 'ambient:')} scenarios[0].ambient.o2: error: found" in msg
+        assert "expected an ambient oxygen fraction from 15 to 23.5 percent" in msg
+
+
+def test_oxygen_deficient_ambient_is_a_warning_and_dry_air_is_quiet(kit, make_study, cli):
+    """Below 19.5 % is oxygen-deficient (US OSHA 29 CFR 1910.146(b)): accepted with a warning."""
+    status, _, err = cli(["validate", make_study(_ambient(kit, "17 percent"))])
+    assert status == 0, err
+    assert "scenarios[0].ambient.o2: warning: ambient oxygen 17 percent is below 19.5 percent" in err
+    status, _, err = cli(["validate", make_study(_ambient(kit, "20.9 percent"))])
+    assert status == 0 and "ambient.o2" not in err

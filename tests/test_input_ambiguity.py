@@ -603,8 +603,12 @@ def test_scan_agrees_across_chunk_sizes(kit, tmp_path, chunk, monkeypatch):
     monkeypatch.setattr(histories, "SCAN_CHUNK", chunk)
     good = tmp_path / "good.csv"
     good.write_text(kit.csv.replace("\n", "\r\n"), encoding="utf-8")
-    digest, filled = histories._scan(good, "good.csv")
-    assert digest == hashlib.sha256(good.read_bytes()).hexdigest() and filled == 61
+    digest, filled, blanks = histories._scan(good, "good.csv")
+    assert digest == hashlib.sha256(good.read_bytes()).hexdigest() and filled == 61 and blanks == []
+    gappy = tmp_path / "gappy.csv"          # blank lines 4 and 31 (1-based), one of them with a CR and spaces
+    lines = kit.csv.split("\n")
+    gappy.write_text("\n".join(lines[:3] + [""] + lines[3:29] + ["  \r"] + lines[29:]), encoding="utf-8")
+    assert histories._scan(gappy, "gappy.csv")[2] == [4, 31]
     bad = tmp_path / "bad.csv"
     bad.write_text(kit.with_cell(kit.csv, 30, "T_hall [degC]", "1,5"), encoding="utf-8")
     with pytest.raises(InputError) as exc:

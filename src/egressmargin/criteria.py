@@ -45,6 +45,11 @@ PARAMETERS: dict[str, dict[str, str | None]] = {
 #: Limits that must be above zero (a visibility of 0 m has no extinction limit C/S).
 POSITIVE_LIMITS = ("visibility", "heat_flux", "layer_height")
 
+#: A gas temperature limit must be above normal room temperature, 20 degC (common
+#: practice for the ambient of a building): a limit at or below it is reached before any
+#: fire (and one below -273.15 degC is no temperature at all).
+TEMPERATURE_LIMIT_FLOOR_C = 20.0
+
 TOXIC_METHODS = ("iso13571", "purser")
 
 #: Parameters whose value is one of a fixed set of words.
@@ -185,6 +190,11 @@ def parse_criterion(cid: str, spec, where, problems: list[Problem], inherited: C
             return None
         if not math.isfinite(limit):
             problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a finite limit"))
+            return None
+        if cid == "temperature" and not limit > TEMPERATURE_LIMIT_FLOOR_C:
+            problems.append(Problem(where(("limit",)), f"found {limit_raw!r} ({limit:g} degC); expected a gas "
+                                    f"temperature limit above room temperature ({TEMPERATURE_LIMIT_FLOOR_C:g} degC), "
+                                    "e.g. 60 degC: a limit at or below it is reached before any fire"))
             return None
         if (quantity is None or cid in POSITIVE_LIMITS) and not limit > 0:
             kind = cid if quantity is not None else ("concentration (FEC)" if cid == "fec_irritant" else "dose")

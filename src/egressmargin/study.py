@@ -170,6 +170,17 @@ class NamedElement:
     where: str = ""
 
 
+#: Ambient oxygen accepted in `ambient: {o2}` (volume fraction). Above 23.5 % the air is
+#: oxygen-enriched (US OSHA 29 CFR 1910.146(b), definition of an oxygen enriched
+#: atmosphere); below 15 % it is lower than fire-prevention oxygen-reduction systems keep
+#: in occupied rooms (about 15 %, from memory). Outside that range the value is taken to
+#: be a slip (a fraction written as percent, or the reverse).
+AMBIENT_O2_LOW = 0.15
+AMBIENT_O2_HIGH = 0.235
+#: Below 19.5 % an atmosphere is oxygen-deficient (US OSHA 29 CFR 1910.146(b)): accepted
+#: with a warning.
+AMBIENT_O2_DEFICIENT = 0.195
+
 #: What the report shows of locations no route uses (`report: {unused_locations: ...}`):
 #: their detail in the appendix (default), or left out with a line naming them.
 UNUSED_LOCATIONS = ("appendix", "omit")
@@ -545,6 +556,16 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
                 amb_o2 = ck.quantity(sc["ambient"]["o2"], kp + ("ambient", "o2"), "o2")
                 if amb_o2 is not None and not 0 < amb_o2 <= 1:
                     ck.err(kp + ("ambient", "o2"), "expected an oxygen fraction in (0, 100] percent")
+                elif amb_o2 is not None and not AMBIENT_O2_LOW <= amb_o2 <= AMBIENT_O2_HIGH:
+                    ck.err(kp + ("ambient", "o2"), f"found {_show(sc['ambient']['o2'])} ({amb_o2 * 100:g} percent); "
+                           f"expected an ambient oxygen fraction from {AMBIENT_O2_LOW * 100:g} to "
+                           f"{AMBIENT_O2_HIGH * 100:g} percent (dry air holds 20.9 percent; a fraction written "
+                           "as a percentage, or percent as a fraction?)")
+                    amb_o2 = None
+                elif amb_o2 is not None and amb_o2 < AMBIENT_O2_DEFICIENT:
+                    ck.warn(kp + ("ambient", "o2"), f"ambient oxygen {amb_o2 * 100:g} percent is below "
+                            f"{AMBIENT_O2_DEFICIENT * 100:g} percent, an oxygen-deficient atmosphere before any "
+                            "fire (an oxygen-reduction system?); check the value")
         ignition = None
         if "ignition" in sc:
             ignition = ck.quantity(sc["ignition"], kp + ("ignition",), "duration")
