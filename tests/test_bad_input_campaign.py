@@ -213,3 +213,137 @@ def test_oxygen_deficient_ambient_is_a_warning_and_dry_air_is_quiet(kit, make_st
     assert "scenarios[0].ambient.o2: warning: ambient oxygen 17 percent is below 19.5 percent" in err
     status, _, err = cli(["validate", make_study(_ambient(kit, "20.9 percent"))])
     assert status == 0 and "ambient.o2" not in err
+
+
+# --------------------------------------------------------------------------- output folders
+
+
+def _fake_output(folder, written):
+    """An output folder as egressmargin leaves it: the listed files and a manifest naming them."""
+    import json
+
+    folder.mkdir(parents=True)
+    for name in written:
+        (folder / name).write_text("{}\n", encoding="utf-8")
+    (folder / "egressmargin-output.json").write_text(json.dumps(
+        {"tool": "egressmargin", "version": "0", "generated_utc": "2026-01-01T00:00:00Z", "command": "x",
+         "written": written}), encoding="utf-8")
+
+
+def test_run_refuses_an_earlier_comparison(good_study, cli, tmp_path):
+    """`run --out` replaced a comparison's folder while `compare` refused a run's: both now refuse the other's."""
+    out = tmp_path / "whatif"
+    _fake_output(out, ["comparison.html", "comparison.json"])
+    before = sorted(p.name for p in out.iterdir())
+    status, _, err = cli(["run", good_study, "--out", out, "--no-pdf", "--quiet"])
+    assert status == 2
+    assert "holds the output of an earlier 'egressmargin compare' (comparison.json)" in err
+    assert sorted(p.name for p in out.iterdir()) == before
+
+
+def test_compare_refuses_a_run_output(tmp_path):
+    from egressmargin.errors import InputError
+    from egressmargin.report.compare_render import write_comparison
+
+    out = tmp_path / "runout"
+    _fake_output(out, ["report.html", "results.json"])
+    with pytest.raises(InputError) as exc:
+        write_comparison({"runs": [], "version": "0"}, out, pdf=False)
+    assert "holds results.json" in str(exc.value)
+
+
+def test_a_240_character_out_name_is_written(good_study, cli, tmp_path):
+    """The lock's name was `.NAME.egressmargin-lock`, 259 bytes for a 240-byte NAME (NAME_MAX is 255)."""
+    out = tmp_path / ("r" * 240)
+    status, _, err = cli(["run", good_study, "--out", out, "--no-pdf", "--quiet", "--samples", "20"])
+    assert status == 0, err
+    assert (out / "results.json").is_file()
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted([out.name, "study"])    # lock and staging gone
+
+
+def test_hidden_names_fit_name_max():
+    from pathlib import Path
+
+    from egressmargin import outputs
+
+    for n in (1, 215, 216, 240, 255):
+        name = "é" * (n // 2) if n % 2 else "r" * n      # multi-byte names are measured in bytes
+        out = Path("/x") / name
+        for tag in ("egressmargin-lock", "egressmargin-tmp-4194304-abcdefgh", "egressmargin-old-4194304-abcdefgh"):
+            assert len(outputs._hidden(out, tag).encode()) <= outputs.NAME_MAX
+    assert outputs._hidden(Path("/x/results"), "egressmargin-lock") == ".results.egressmargin-lock"
+
+
+def test_a_set_aside_output_that_cannot_be_removed_is_reported(good_study, cli, tmp_path, monkeypatch):
+    from egressmargin import outputs
+
+    out = tmp_path / "prev"
+    assert cli(["run", good_study, "--out", out, "--no-pdf", "--quiet", "--samples", "20"])[0] == 0
+    real = outputs.remove_tree
+    monkeypatch.setattr(outputs, "remove_tree",
+                        lambda p: "Permission denied: 'plots'" if outputs._OLD_TAG in p.name else real(p))
+    status, _, err = cli(["run", good_study, "--out", out, "--no-pdf", "--quiet", "--samples", "20"])
+    assert status == 0, err
+    assert "warning: the earlier output set aside here could not be removed (Permission denied: 'plots')" in err
+    left = [p for p in tmp_path.iterdir() if outputs._OLD_TAG in p.name]
+    assert len(left) == 1 and str(left[0]) in err
+    monkeypatch.setattr(outputs, "remove_tree", real)          # the next run removes it (its process is gone)
+    monkeypatch.setattr(outputs, "_alive", lambda pid: False)
+    status, _, err = cli(["run", good_study, "--out", out, "--no-pdf", "--quiet", "--samples", "20"])
+    assert status == 0 and "could not be removed" not in err
+    assert not any(outputs._OLD_TAG in p.name for p in tmp_path.iterdir())
+
+
+def test_remove_tree_gives_read_only_folders_back_to_their_owner(tmp_path, monkeypatch):
+    """The second attempt makes every folder u+rwx first (checked on the modes: root may remove anyway)."""
+    import shutil
+    import stat
+
+    from egressmargin import outputs
+
+    top = tmp_path / ".prev.egressmargin-old-1-abc"
+    (top / "old" / "plots").mkdir(parents=True)
+    (top / "old" / "plots" / "a.png").write_bytes(b"png")
+    os_chmod_ro = 0o555
+    (top / "old" / "plots").chmod(os_chmod_ro)
+    calls = []
+    real = shutil.rmtree
+
+    def rmtree(path, *a, **k):
+        calls.append(stat.S_IMODE((top / "old" / "plots").stat().st_mode))
+        if len(calls) == 1:
+            raise PermissionError(13, "Permission denied", str(top / "old" / "plots" / "a.png"))
+        return real(path, *a, **k)
+    monkeypatch.setattr(shutil, "rmtree", rmtree)
+    assert outputs.remove_tree(top) is None
+    assert calls == [0o555, 0o755] and not top.exists()
+    monkeypatch.setattr(shutil, "rmtree", lambda *a, **k: (_ for _ in ()).throw(PermissionError(13, "Permission denied", "x")))
+    (tmp_path / "other").mkdir()
+    assert outputs.remove_tree(tmp_path / "other") == "Permission denied: 'x'"
+
+
+def test_out_through_dotdot_says_what_it_names(kit, make_study, cli, tmp_path, monkeypatch):
+    study = make_study()
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "study" / "data").mkdir()
+    status, _, err = cli(["run", study, "--out", "study/data/..", "--no-pdf", "--quiet"])
+    assert status == 2
+    assert f"'study/data/..' is the folder above 'study/data' ('{tmp_path / 'study'}'), named through '..'" in err
+    assert "parent of the current folder" not in err
+
+
+# --------------------------------------------------------------------------- messages
+
+
+@pytest.mark.parametrize("command, words", [("validate", "nothing was written"),
+                                            ("run", "unfinished output removed")])
+def test_sigint_words_match_what_the_command_writes(good_study, cli, monkeypatch, command, words):
+    """SIGINT during validate said "unfinished output removed" though validate writes nothing."""
+    from egressmargin import pipeline
+
+    def interrupted(*a, **k):
+        raise KeyboardInterrupt
+    monkeypatch.setattr(pipeline, "load", interrupted)
+    status, _, err = cli([command, good_study, *(["--no-pdf"] if command == "run" else [])])
+    assert status == 130
+    assert f"egressmargin: stopped (SIGINT); {words}" in err

@@ -46,6 +46,9 @@ class RunOptions:
     criteria: str | None = None           # replace the study's criteria: bundled name or file (cwd)
     force: bool = False                   # an earlier output holding other files: replace only the tool's own
     command: str | None = None            # the command line, recorded in the output's manifest
+    #: filled by run(): warnings found once the output is in place (a set-aside folder that
+    #: could not be removed), for the command line to print
+    notices: list = field(default_factory=list)
 
 
 @dataclass
@@ -784,9 +787,10 @@ def run(study_path: Path, options: RunOptions) -> Path:
     inputs += [d.path for d in loaded.data.values()]
     inputs += [d.path for runs in loaded.resolutions.values() for _, d in runs]
     try:
-        with outputs.claim(out, inputs, force=options.force) as target:
+        with outputs.claim(out, inputs, force=options.force, purpose="run") as target:
             results, plots = build_results(loaded, options)
             write_outputs(results, plots, out, options, target)
+        options.notices.extend(target.leftover_warnings())
     finally:
         if options.progress:
             options.progress.done()       # a live line is cleared before any message that follows
@@ -804,8 +808,10 @@ def write_outputs(results: dict, plots: dict, out: Path, options: RunOptions,
     if target is None:
         inputs = [Path(f["path"]) for f in results.get("inputs") or []]
         try:
-            with outputs.claim(out, inputs, force=options.force) as own:
-                return write_outputs(results, plots, out, options, own)
+            with outputs.claim(out, inputs, force=options.force, purpose="run") as own:
+                write_outputs(results, plots, out, options, own)
+            options.notices.extend(own.leftover_warnings())
+            return None
         finally:
             if options.progress:
                 options.progress.done()
