@@ -347,3 +347,25 @@ def test_sigint_words_match_what_the_command_writes(good_study, cli, monkeypatch
     status, _, err = cli([command, good_study, *(["--no-pdf"] if command == "run" else [])])
     assert status == 130
     assert f"egressmargin: stopped (SIGINT); {words}" in err
+
+
+def test_yaml_merge_key_gets_a_located_message(kit, make_study, cli, expect_input_error):
+    """The library's raw "could not determine a constructor for the tag ...merge" was shown."""
+    text = kit.study.replace("egress:\n", "defaults: &d\n  alarm: 30 s\negress:\n", 1).replace(
+        "    alarm: 30 s\n", "    <<: *d\n", 1)
+    for msg in _both(cli, expect_input_error, make_study(text)):
+        assert f"study.yaml:{kit.line_of(text, '<<: *d')} egress[0]: error: found a YAML merge key" in msg
+        assert "constructor" not in msg
+
+
+def test_a_date_like_title_is_the_text_as_written(kit, make_study, cli, tmp_path):
+    import json
+
+    text = kit.study.replace("title: Test hall, small fixture (illustrative)", "title: 2024-01-01")
+    status, out, err = cli(["run", make_study(text), "--no-pdf", "--quiet", "--out", tmp_path / "out"])
+    assert status == 0, err
+    res = json.loads((tmp_path / "out" / "results.json").read_text())
+    assert res["study"]["title"] == "2024-01-01"
+    from egressmargin.report import render_html
+    html = render_html(res, {})
+    assert "2024-01-01" in html and "datetime" not in html
