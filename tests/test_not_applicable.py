@@ -123,3 +123,12 @@ def test_only_and_not_applicable_together_is_an_error(kit, make_study, cli):
     status, _, err = cli(["validate", make_study(text)])
     assert status == 2
     assert "criteria.only[1]" in err and "declared not applicable" in err
+
+
+def test_every_criterion_not_applicable_is_an_error(kit, make_study, cli):
+    from egressmargin.criteria import CRITERIA
+
+    spec = ", ".join(f'{cid}: {{not_applicable: "illustrative"}}' for cid in CRITERIA)
+    status, _, err = cli(["validate", make_study(kit.study.replace(ORIGINAL, f"criteria: {{base: general-2m, {spec}}}"))])
+    assert status == 2
+    assert "no criterion is left to apply (not applicable: temperature" in err

@@ -456,7 +456,10 @@ def _usable_criteria(ck, criteria: CriteriaSet, given) -> None:
     zero or less where only a positive one means anything (every criterion but temperature)."""
     if not criteria.items:
         kp = ("criteria", "only") if isinstance(given, dict) and "only" in given else ("criteria",)
-        ck.err(kp, "no criterion is left to apply; expected at least one criterion id in 'only'")
+        ck.err(kp, "no criterion is left to apply; expected at least one criterion id in 'only'"
+               if not criteria.not_applicable else
+               f"no criterion is left to apply (not applicable: {', '.join(criteria.not_applicable)}); expected at "
+               "least one criterion that applies")
     for cid, c in criteria.items.items():
         if cid != "temperature" and not c.limit > 0:
             ck.err(("criteria", cid, "limit"), f"found '{c.limit_text}' for '{cid}'; expected a limit above zero")
