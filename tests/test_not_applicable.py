@@ -132,3 +132,11 @@ def test_every_criterion_not_applicable_is_an_error(kit, make_study, cli):
     status, _, err = cli(["validate", make_study(kit.study.replace(ORIGINAL, f"criteria: {{base: general-2m, {spec}}}"))])
     assert status == 2
     assert "no criterion is left to apply (not applicable: temperature" in err
+
+
+def test_null_criterion_points_to_not_applicable(kit, make_study, cli):
+    """Issue 20 item 3: `fec_irritant: null` was the only way tried; the message now names the key that works."""
+    status, _, err = cli(["validate", make_study(kit.study.replace(ORIGINAL,
+                                                                   "criteria: {base: general-2m, fec_irritant: null}"))])
+    assert status == 2
+    assert "criteria.fec_irritant: error: found None" in err and "not_applicable" in err

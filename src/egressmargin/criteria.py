@@ -162,7 +162,8 @@ def parse_criterion(cid: str, spec, where, problems: list[Problem], inherited: C
                     ) -> Criterion | None:
     """Check one criterion mapping and return it in internal units (None if broken)."""
     if not isinstance(spec, dict):
-        problems.append(Problem(where(()), f"found {spec!r}; expected a mapping such as {{limit: ...}}"))
+        problems.append(Problem(where(()), f"found {spec!r}; expected a mapping such as {{limit: ...}}, or "
+                                f"{{not_applicable: \"<reason>\"}} to leave '{cid}' out"))
         return None
     quantity, unit, _, _ = CRITERIA[cid]
     allowed = {"limit", "source", *PARAMETERS[cid]}
