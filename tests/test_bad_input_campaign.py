@@ -304,8 +304,7 @@ def test_remove_tree_gives_read_only_folders_back_to_their_owner(tmp_path, monke
     top = tmp_path / ".prev.egressmargin-old-1-abc"
     (top / "old" / "plots").mkdir(parents=True)
     (top / "old" / "plots" / "a.png").write_bytes(b"png")
-    os_chmod_ro = 0o555
-    (top / "old" / "plots").chmod(os_chmod_ro)
+    (top / "old" / "plots").chmod(0o555)                      # read-only, as a user may leave it
     calls = []
     real = shutil.rmtree
 
