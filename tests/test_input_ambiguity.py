@@ -354,14 +354,15 @@ def test_report_field_given_as_a_map_or_list(kit, make_study, expect_input_error
 
 def test_absurd_sample_count_is_refused_with_the_figure(kit, make_study, cli):
     """samples: 1000000000 would end in a MemoryError after loading (issue 13 item 5):
-    10^9 x (2 x 256 + 512) B = 1.0 TB for the fixture's 2 locations and 1 route."""
+    10^9 x (2 x 256 + 512 + 132 x 64) B = 9.5 TB for the fixture's 2 locations and 1 route of
+    120 occupants (132 with the sweep's 10 %; the occupant term added for issue 20)."""
     from egressmargin.sizing import available_memory
 
     text = kit.study.replace("samples: 200", "samples: 1000000000")
     status, out, err = cli(["validate", make_study(text)])
     assert status == 2
     line = kit.line_of(text, "samples:")
-    assert f"study.yaml:{line} samples: error: 1000000000 samples need about 1.0 TB of memory" in err
+    assert f"study.yaml:{line} samples: error: 1000000000 samples need about 9.5 TB of memory" in err
     assert "this machine has" in err and "available" in err
     if available_memory()[0] is not None:
         assert "expected at most about" in err
@@ -369,7 +370,7 @@ def test_absurd_sample_count_is_refused_with_the_figure(kit, make_study, cli):
 
 def test_absurd_samples_on_the_command_line(kit, make_study, expect_input_error):
     err = expect_input_error(make_study(), "--samples", "1000000000")
-    assert "--samples (command line): error: 1000000000 samples need about 1.0 TB" in err
+    assert "--samples (command line): error: 1000000000 samples need about 9.5 TB" in err
 
 
 def test_memory_estimate_closed_form():
@@ -602,10 +603,87 @@ def test_scan_agrees_across_chunk_sizes(kit, tmp_path, chunk, monkeypatch):
     monkeypatch.setattr(histories, "SCAN_CHUNK", chunk)
     good = tmp_path / "good.csv"
     good.write_text(kit.csv.replace("\n", "\r\n"), encoding="utf-8")
-    digest, filled = histories._scan(good, "good.csv")
-    assert digest == hashlib.sha256(good.read_bytes()).hexdigest() and filled == 61
+    digest, filled, blanks = histories._scan(good, "good.csv")
+    assert digest == hashlib.sha256(good.read_bytes()).hexdigest() and filled == 61 and blanks == []
+    gappy = tmp_path / "gappy.csv"          # blank lines 4 and 31 (1-based), one of them with a CR and spaces
+    lines = kit.csv.split("\n")
+    gappy.write_text("\n".join(lines[:3] + [""] + lines[3:29] + ["  \r"] + lines[29:]), encoding="utf-8")
+    assert histories._scan(gappy, "gappy.csv")[2] == [4, 31]
     bad = tmp_path / "bad.csv"
     bad.write_text(kit.with_cell(kit.csv, 30, "T_hall [degC]", "1,5"), encoding="utf-8")
     with pytest.raises(InputError) as exc:
         histories._scan(bad, "bad.csv")
     assert exc.value.problems[0].where == f"bad.csv:{kit.csv_line(30)}"
+
+
+# ------------------------------------------------------------- memory: the flow model's occupant term (issue 20)
+
+
+@pytest.fixture
+def small_machine(monkeypatch):
+    """This machine with 8 GB available of 16 GB (sizing.available_memory replaced)."""
+    from egressmargin import sizing
+    monkeypatch.setattr(sizing, "available_memory", lambda: (8_000_000_000, 16_000_000_000))
+
+
+def test_occupant_term_closed_form():
+    """S x P x BYTES_PER_SAMPLE_OCCUPANT added per scenario (P: occupants of its routes, fourth number)."""
+    from egressmargin import sizing
+
+    with_occ = sizing.estimate_bytes(2000, [(2, 1, 60, 100000)])
+    assert with_occ - sizing.estimate_bytes(2000, [(2, 1, 60)]) == 2000 * 100000 * sizing.BYTES_PER_SAMPLE_OCCUPANT
+
+
+def test_occupant_bound_of_a_distribution_is_its_upper_quantile():
+    """Quantile 1 - 1/(10 S) of the count, x 1.1; checked against scipy.stats.lognorm's ppf."""
+    import numpy as np
+    from scipy import stats
+    from egressmargin import sizing
+
+    median, p95, S = 100.0, 400.0, 2000
+    sigma = np.log(p95 / median) / stats.norm.ppf(0.95)
+    q = stats.lognorm(s=sigma, scale=median).ppf(1 - 1 / (10 * S))
+    assert sizing.occupant_count_bound({"lognormal": {"median": median, "p95": p95}}, S) == \
+        int(np.ceil(round(q) * 1.1 - 1e-9))
+
+
+@pytest.mark.parametrize("occupants, samples, words", [
+    ("100000", "2000", "100000 occupants on route 'north-stair' with 2000 samples need about"),
+    ("1000000000", "200", "1000000000 occupants on route 'north-stair' with 200 samples need about"),
+    ("{lognormal: {median: 100, p95: 1000000000000}}", "200", "an occupant count reaching beyond 1e18"),
+])
+def test_large_occupant_counts_are_input_errors(kit, make_study, cli, expect_input_error, small_machine,
+                                                occupants, samples, words):
+    """Issue 20: validate said OK and run died on a (samples x occupants) array; now exit 2 at the count."""
+    text = kit.study.replace("occupants: 120", f"occupants: {occupants}").replace("samples: 200",
+                                                                                   f"samples: {samples}")
+    study = make_study(text)
+    line = kit.line_of(text, "occupants:")
+    status, _, verr = cli(["validate", study])
+    assert status == 2, verr
+    err = expect_input_error(study)
+    for msg in (verr, err):
+        assert f"study.yaml:{line} egress[0].occupants: error: {words}" in msg, msg
+        assert "this machine has 8.0 GB available (16 GB in all)" in msg
+        assert "expected at most about" in msg or "expected a count whose largest draws stay below" in msg
+
+
+def test_largest_count_that_fits_is_stated(kit, make_study, cli, small_machine):
+    """The count named as fitting is the one that solves estimate_bytes(...) = available for this route."""
+    import re
+    from egressmargin import sizing
+
+    text = kit.study.replace("occupants: 120", "occupants: 100000").replace("samples: 200", "samples: 2000\nmax_samples: 2000")
+    status, _, err = cli(["validate", make_study(text)])
+    assert status == 2
+    fits = int(re.search(r"expected at most about (\d+) occupants", err).group(1))
+    bound = sizing.occupant_count_bound({"fixed": float(fits)}, 2000)
+    assert sizing.estimate_bytes(2000, [(2, 1, 60, bound)]) <= 8e9
+    assert sizing.estimate_bytes(2000, [(2, 1, 60, sizing.occupant_count_bound({"fixed": fits + 50.0}, 2000))]) > 8e9
+    samples = int(re.search(r"or samples at most about (\d+)", err).group(1))
+    assert sizing.estimate_bytes(samples, [(2, 1, 60, 110000)]) <= 8e9 < sizing.estimate_bytes(samples + 1, [(2, 1, 60, 110000)])
+
+
+def test_ordinary_counts_pass_on_a_small_machine(kit, make_study, cli, small_machine):
+    status, _, err = cli(["validate", make_study(kit.study.replace("occupants: 120", "occupants: 2000"))])
+    assert status == 0, err

@@ -124,7 +124,7 @@ def test_symlink_as_out_is_refused(refused, good_study, tmp_path):
     assert "is a symbolic link" in refused(good_study, tmp_path / "dangling", tmp_path)
 
 
-@pytest.mark.parametrize("name, words", [(".", "is the current folder"), ("..", "a parent of the current folder")])
+@pytest.mark.parametrize("name, words", [(".", "is the current folder"), ("..", "is the folder above the current one")])
 def test_dot_and_dotdot_are_refused(refused, good_study, tmp_path, monkeypatch, name, words):
     cwd = tmp_path / "work" / "cwd"
     cwd.mkdir(parents=True)

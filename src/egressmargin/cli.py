@@ -151,15 +151,24 @@ def main(argv: list[str] | None = None) -> int:
         print(str(exc), file=sys.stderr)
         return 2
     except KeyboardInterrupt:
-        print("egressmargin: stopped (SIGINT); unfinished output removed", file=sys.stderr)
+        print(f"egressmargin: stopped (SIGINT); {_after_stop(args.command)}", file=sys.stderr)
         return EXIT_SIGINT
     except Stopped:
-        print("egressmargin: stopped (SIGTERM); unfinished output removed", file=sys.stderr)
+        print(f"egressmargin: stopped (SIGTERM); {_after_stop(args.command)}", file=sys.stderr)
         return EXIT_SIGTERM
     except BrokenPipeError:
         # the reader of stdout went away (``| head``): stop quietly, as a pipe's writer does
         _silence_stdout()
         return EXIT_SIGPIPE
+
+
+#: Commands that write nothing: stopping them leaves nothing to remove.
+READ_ONLY_COMMANDS = ("validate", "criteria")
+
+
+def _after_stop(command: str) -> str:
+    """What a stopped command left behind, in words."""
+    return "nothing was written" if command in READ_ONLY_COMMANDS else "unfinished output removed"
 
 
 def _silence_stdout() -> None:
@@ -188,9 +197,9 @@ def _options(args, **extra):
 
 def _run(args) -> int:
     from .pipeline import run
-    out = run(args.study, _options(args, uncertainty=args.uncertainty, raw_only=args.raw_only,
-                                   criteria=args.criteria))
-    _report_run(out)
+    options = _options(args, uncertainty=args.uncertainty, raw_only=args.raw_only, criteria=args.criteria)
+    out = run(args.study, options)
+    _report_run(out, options.notices)
     return 0
 
 
@@ -199,16 +208,18 @@ def _demo(args) -> int:
     from .resources import resource_dir
     study = resource_dir("demo") / "study.yaml"
     args.out = args.out or Path("egressmargin-demo")
-    out = run(study, _options(args))
-    _report_run(out)
+    options = _options(args)
+    out = run(study, options)
+    _report_run(out, options.notices)
     return 0
 
 
-def _report_run(out: Path) -> None:
-    """Read results.json once: its warnings (those ``validate`` prints) on stderr, the summary on stdout."""
+def _report_run(out: Path, notices=()) -> None:
+    """Read results.json once: its warnings (those ``validate`` prints) on stderr, the summary on stdout;
+    then ``notices`` (what the run could not tidy beside the output) on stderr."""
     import json
     res = json.loads((out / "results.json").read_text(encoding="utf-8"))
-    for w in res.get("warnings") or []:
+    for w in [*(res.get("warnings") or []), *map(str, notices)]:
         print(w, file=sys.stderr)
     _summary(out, res)
 
@@ -257,6 +268,8 @@ def _validate(args) -> int:
     print(f"{args.study}: OK — {len(loaded.study.scenarios)} scenario(s), {n_loc} location(s), "
           f"{len(loaded.study.routes)} route(s), criteria '{loaded.study.criteria.name}', "
           f"{'model uncertainty from ' + str(loaded.table.path) if loaded.table else 'no model-uncertainty table'}")
+    for cid, why in loaded.study.criteria.not_applicable.items():
+        print(f"  criterion '{cid}' not applicable: {why}")
     if getattr(args, "explain", False):
         from .egress.summary import explain_text
         print()

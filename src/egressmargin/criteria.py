@@ -45,6 +45,11 @@ PARAMETERS: dict[str, dict[str, str | None]] = {
 #: Limits that must be above zero (a visibility of 0 m has no extinction limit C/S).
 POSITIVE_LIMITS = ("visibility", "heat_flux", "layer_height")
 
+#: A gas temperature limit must be above normal room temperature, 20 degC (common
+#: practice for the ambient of a building): a limit at or below it is reached before any
+#: fire (and one below -273.15 degC is no temperature at all).
+TEMPERATURE_LIMIT_FLOOR_C = 20.0
+
 TOXIC_METHODS = ("iso13571", "purser")
 
 #: Parameters whose value is one of a fixed set of words.
@@ -78,6 +83,9 @@ class CriteriaSet:
     #: True when nobody stated the kind of sign for this study: the visibility criterion
     #: uses the bundled set's light-emitting signs (C = 8), which the report should flag.
     signs_default: bool = True
+    #: criteria declared not applicable for this study: criterion id -> the reason given
+    #: (``{<criterion>: {not_applicable: "<reason>"}}``); they are not in ``items``.
+    not_applicable: dict[str, str] = field(default_factory=dict)
 
     @property
     def visibility_signs(self) -> dict | None:
@@ -102,6 +110,7 @@ class CriteriaSet:
             out["visibility_signs"] = self.visibility_signs
         if self.override is not None:
             out["override"] = dict(self.override)
+        out["not_applicable"] = dict(self.not_applicable)
         return {**out, **{cid: {"limit": round(c.limit, 6), "unit": c.unit} for cid, c in self.items.items()}}
 
 
@@ -123,11 +132,38 @@ def _did_you_mean(word: str, options) -> str:
     return f"; did you mean '{close[0]}'?" if close else ""
 
 
+NOT_APPLICABLE = "not_applicable"
+
+
+def declared_not_applicable(cid: str, spec, where, problems: list[Problem]) -> str | None:
+    """The reason of ``{<criterion>: {not_applicable: "<reason>"}}``, or None when ``spec`` is
+    not such a declaration (or a broken one, reported in ``problems``).
+
+    The reason must be a non-empty string, and the declaration stands alone: a limit or a
+    parameter beside it would say the criterion both applies and does not (project choice).
+    """
+    if not isinstance(spec, dict) or NOT_APPLICABLE not in spec:
+        return None
+    reason = spec[NOT_APPLICABLE]
+    others = [k for k in spec if k != NOT_APPLICABLE]
+    if others:
+        problems.append(Problem(where((others[0],)), f"found '{others[0]}' beside not_applicable for criterion "
+                                f"'{cid}'; expected either not_applicable: \"<reason>\" alone, or the criterion's "
+                                "limit and parameters without it"))
+    if not isinstance(reason, str) or not reason.strip():
+        problems.append(Problem(where((NOT_APPLICABLE,)), f"found {reason!r}; expected the reason the criterion "
+                                f"'{cid}' does not apply, as text, e.g. not_applicable: \"no halogenated or "
+                                "nitrogenous fuel\""))
+        return None
+    return None if others else reason.strip()
+
+
 def parse_criterion(cid: str, spec, where, problems: list[Problem], inherited: Criterion | None = None
                     ) -> Criterion | None:
     """Check one criterion mapping and return it in internal units (None if broken)."""
     if not isinstance(spec, dict):
-        problems.append(Problem(where(()), f"found {spec!r}; expected a mapping such as {{limit: ...}}"))
+        problems.append(Problem(where(()), f"found {spec!r}; expected a mapping such as {{limit: ...}}, or "
+                                f"{{not_applicable: \"<reason>\"}} to leave '{cid}' out"))
         return None
     quantity, unit, _, _ = CRITERIA[cid]
     allowed = {"limit", "source", *PARAMETERS[cid]}
@@ -155,6 +191,11 @@ def parse_criterion(cid: str, spec, where, problems: list[Problem], inherited: C
             return None
         if not math.isfinite(limit):
             problems.append(Problem(where(("limit",)), f"found {limit_raw!r}; expected a finite limit"))
+            return None
+        if cid == "temperature" and not limit > TEMPERATURE_LIMIT_FLOOR_C:
+            problems.append(Problem(where(("limit",)), f"found {limit_raw!r} ({limit:g} degC); expected a gas "
+                                    f"temperature limit above room temperature ({TEMPERATURE_LIMIT_FLOOR_C:g} degC), "
+                                    "e.g. 60 degC: a limit at or below it is reached before any fire"))
             return None
         if (quantity is None or cid in POSITIVE_LIMITS) and not limit > 0:
             kind = cid if quantity is not None else ("concentration (FEC)" if cid == "fec_irritant" else "dose")
@@ -252,17 +293,25 @@ def criteria_from_document(doc: Located, problems: list[Problem]) -> CriteriaSet
                                 f"{{limit: ...}}; ids: {', '.join(CRITERIA)}"))
         return None
     items = {}
+    not_applicable: dict[str, str] = {}
     for cid, spec in crit.items():
         if cid not in CRITERIA:
             problems.append(Problem(doc.where(("criteria", cid)), f"unknown criterion '{cid}'; expected one of "
                                     f"{', '.join(CRITERIA)}{_did_you_mean(cid, CRITERIA)}"))
+            continue
+        if isinstance(spec, dict) and NOT_APPLICABLE in spec:
+            reason = declared_not_applicable(cid, spec, lambda kp, cid=cid: doc.where(("criteria", cid) + tuple(kp)),
+                                             problems)
+            if reason is not None:
+                not_applicable[cid] = reason
             continue
         c = parse_criterion(cid, spec, lambda kp, cid=cid: doc.where(("criteria", cid) + tuple(kp)), problems)
         if c:
             items[cid] = c
     stated = _states_signs(crit.get("visibility"))
     return CriteriaSet(str(data.get("name", doc.path.stem)), str(data.get("description", "")),
-                       [str(s) for s in sources], items, doc.path, signs_default=not stated)
+                       [str(s) for s in sources], items, doc.path, signs_default=not stated,
+                       not_applicable=not_applicable)
 
 
 def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> CriteriaSet | None:
@@ -288,8 +337,16 @@ def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> C
         if base is None:
             return None
     items = dict(base.items) if base else {}
+    not_applicable = dict(base.not_applicable) if base else {}
     for cid in CRITERIA:
+        if cid in value and isinstance(value[cid], dict) and NOT_APPLICABLE in value[cid]:
+            reason = declared_not_applicable(cid, value[cid], lambda kp, cid=cid: where((cid,) + tuple(kp)), problems)
+            if reason is not None:
+                items.pop(cid, None)
+                not_applicable[cid] = reason
+            continue
         if cid in value:
+            not_applicable.pop(cid, None)          # stated again in full: it applies after all
             c = parse_criterion(cid, value[cid], lambda kp, cid=cid: where((cid,) + tuple(kp)), problems,
                                 inherited=items.get(cid))
             if c:
@@ -313,7 +370,11 @@ def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> C
                                         f"'base' set too, e.g. base: {names[0] if names else 'general-2m'}"))
                 only = []
             for i, cid in enumerate(only):
-                if cid not in items:
+                if cid in not_applicable:
+                    problems.append(Problem(where(("only", i)), f"'{cid}' is declared not applicable "
+                                            f"({not_applicable[cid]}); expected it in 'only' or not_applicable, "
+                                            "not both"))
+                elif cid not in items:
                     problems.append(Problem(where(("only", i)), f"'{cid}' is not a criterion of this set; expected "
                                             f"one of {', '.join(items)}{_did_you_mean(cid, items)}"))
             items = {k: v for k, v in items.items() if k in only}
@@ -322,7 +383,8 @@ def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> C
     return CriteriaSet(name, base.description if base else "Criteria given in the study file.",
                        list(base.sources) if base else ["as stated in the study file"], items,
                        base.path if base else None,
-                       signs_default=not stated and (base.signs_default if base else True))
+                       signs_default=not stated and (base.signs_default if base else True),
+                       not_applicable=not_applicable)
 
 
 def override_criteria(text: str, study_value, problems: list[Problem],

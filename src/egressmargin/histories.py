@@ -108,14 +108,38 @@ def _listing(names) -> str:
     return shown + (f" … ({len(names)} columns)" if len(names) > NAMES_LISTED else "")
 
 
-def _first_lines(path: Path, n: int) -> list[bytes]:
-    """The first ``n`` lines of the file (without line ends), without reading the rest."""
+#: Bytes looked at for the file's line ends (CR only, or a CR inside a line).
+LINE_END_PROBE = 1 << 16
+
+
+def _first_lines(path: Path, n: int, delimiter: str = ",") -> list[bytes]:
+    """The first ``n`` lines of the file (without line ends), without reading the rest.
+
+    Raises InputError when the lines end with a carriage return (CR) alone, or when one of
+    these lines holds a CR before its end (inside a cell): the csv module and pandas would
+    take the CR for a line end, so the message names the line and the cell.
+    """
     out = []
     with open(path, "rb") as fh:
+        probe = fh.read(LINE_END_PROBE)
+        fh.seek(0)
         for line in fh:
             out.append(line.rstrip(b"\r\n"))
             if len(out) == n:
                 break
+    fname = str(path)
+    if b"\n" not in probe and b"\r" in probe.rstrip(b"\r"):      # no LF, and a CR before the end
+        raise InputError([Problem(f"{fname}:1", "the lines end with a carriage return (CR) alone, as in files "
+                                  "saved on classic Mac OS; expected LF or CR LF line ends: save the file with "
+                                  "Unix (LF) or Windows (CR LF) line ends")])
+    for i, line in enumerate(out):
+        if b"\r" in line:
+            cells = line.split(delimiter.encode())
+            k = next(j for j, c in enumerate(cells) if b"\r" in c)
+            shown = cells[k].decode("utf-8", errors="replace").replace("\r", "<CR>").strip()
+            raise InputError([Problem(f"{fname}:{i + 1} column {k + 1}", f"a carriage return (CR) inside the cell "
+                                      f"{_short(shown)!r}, which would split the line in two; expected no line "
+                                      "break inside a cell: remove it")])
     return out
 
 
@@ -226,7 +250,7 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
     problems: list[Problem] = []
     fname = str(path)
     try:
-        head = _first_lines(path, 3)
+        head = _first_lines(path, 3, getattr(spec, "delimiter", ",") or ",")
     except FileNotFoundError:
         raise InputError([Problem(fname, "file not found; expected the scenario's CSV histories")]) from None
     except OSError as exc:
@@ -239,7 +263,8 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
         wanted += [ref.column for ref in loc.series.values()]
         wanted += loc.profile.columns if loc.profile is not None else []
     names, units_cells, names_line, units_at, line0 = _layout(spec, head, fname, wanted)
-    digest, filled = _scan(path, fname, delimiter, skip=names_line - 1)
+    digest, filled, blanks = _scan(path, fname, delimiter, skip=names_line - 1)
+    line0 = DataLines(line0, blanks)
     split = [_split_header(h) for h in names]
 
     def candidates(col: str) -> list[int]:
@@ -419,8 +444,44 @@ _DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+(?:[eE][-+]?\d+)?$")
 SCAN_CHUNK = 1 << 24
 
 
-def _scan(path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> tuple[str, int]:
-    """Read the file once, in chunks: its SHA-256 and its number of non-blank lines.
+class DataLines(int):
+    """The file line of the first data row, such that ``line0 + j`` is the file line of data
+    row ``j`` (0-based) with the blank lines that the CSV reader skips counted back in.
+
+    Parameters
+    ----------
+    line0 : int
+        1-based file line of data row 0 when no blank line comes before it.
+    blanks : sequence of int
+        1-based file lines that are blank (whitespace only) after the names row.
+
+    Examples
+    --------
+    >>> line0 = DataLines(2, [5, 6])
+    >>> [line0 + j for j in range(5)]
+    [2, 3, 4, 7, 8]
+    """
+
+    def __new__(cls, line0: int, blanks=()):
+        obj = super().__new__(cls, line0)
+        obj.blanks = sorted(int(b) for b in blanks)
+        return obj
+
+    def __add__(self, j):
+        line = int(self) + int(j)
+        for b in self.blanks:
+            if b > line:
+                break
+            line += 1
+        return line
+
+    __radd__ = __add__
+
+
+def _scan(path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> tuple[str, int, list[int]]:
+    """Read the file once, in chunks: its SHA-256, its number of non-blank lines and the
+    1-based lines after the names row (line ``skip`` + 1) that are blank (empty or
+    whitespace only: the CSV reader skips them, so messages count them back in).
 
     Raises InputError for a row with more fields than the names row (line ``skip`` + 1):
     reading only the mapped columns would otherwise let a ragged row shift values into the
@@ -433,7 +494,8 @@ def _scan(path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> tuple[
 
     h = hashlib.sha256()
     sep = ord(delimiter)
-    st = {"base": 0, "names": b"", "n_sep": None, "wide": None, "filled": 0, "quoted": False, "odd": False}
+    st = {"base": 0, "names": b"", "n_sep": None, "wide": None, "filled": 0, "quoted": False, "odd": False,
+          "blank": []}
 
     def lines_of(buf: bytes) -> None:
         arr = np.frombuffer(buf, np.uint8)
@@ -461,6 +523,10 @@ def _scan(path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> tuple[
                 k = int(wide[0])
                 st["wide"] = (int(index[k]), buf[starts[k]:ends[k]])
         st["filled"] += int((filled & (index >= skip)).sum())
+        # blank lines have no delimiter; only those few are looked at one by one
+        for k in np.flatnonzero((counts == 0) & (index > skip) & (length < 256)):
+            if not buf[starts[k]:ends[k]].strip():
+                st["blank"].append(int(index[k]) + 1)
         st["base"] += len(ends)
 
     carry = b""
@@ -479,8 +545,9 @@ def _scan(path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> tuple[
     if carry:
         lines_of(carry)
     digest, filled = h.hexdigest(), st["filled"] + skip
+    blanks = st["blank"]
     if not st["odd"]:
-        return digest, filled
+        return digest, filled, blanks
     if st["quoted"]:
         # quotes may hold delimiters or span lines: let the full parser judge
         try:
@@ -489,9 +556,9 @@ def _scan(path: Path, fname: str, delimiter: str = ",", skip: int = 0) -> tuple[
         except Exception as exc:
             raise InputError([Problem(fname, f"cannot read as CSV ({str(exc).splitlines()[0]}); expected a "
                                       "delimited file with one field per column on every line")]) from None
-        return digest, filled
+        return digest, filled, blanks
     if st["wide"] is None:
-        return digest, filled
+        return digest, filled, blanks
 
     def fields(line):
         return len(next(csv.reader([line.decode("utf-8", errors="replace")], delimiter=delimiter), []))

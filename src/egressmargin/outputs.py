@@ -33,6 +33,7 @@ import re
 import shlex
 import shutil
 import signal
+import stat
 import sys
 import tempfile
 import threading
@@ -174,8 +175,22 @@ def _refuse(message: str) -> InputError:
     return InputError([Problem(WHERE, message)])
 
 
+#: What marks each kind of output in its manifest's ``written`` list.
+OUTPUT_MARKS = {"run": "results.json", "comparison": "comparison.json"}
+
+
+def _other_output(manifest: dict, purpose: str | None) -> str | None:
+    """The kind of output the manifest describes when it is not ``purpose``'s kind, else None."""
+    if purpose is None:
+        return None
+    for kind, mark in OUTPUT_MARKS.items():
+        if kind != purpose and mark in manifest["written"] and OUTPUT_MARKS[purpose] not in manifest["written"]:
+            return kind
+    return None
+
+
 def inspect_target(out: Path, inputs: Iterable[Path] = (), force: bool = False,
-                   cwd: Path | None = None) -> Plan:
+                   cwd: Path | None = None, purpose: str | None = None) -> Plan:
     """Check that a run may write ``out``; write nothing.
 
     Parameters
@@ -190,6 +205,9 @@ def inspect_target(out: Path, inputs: Iterable[Path] = (), force: bool = False,
         are kept).
     cwd : Path, optional
         The current folder (default ``Path.cwd()``).
+    purpose : str, optional
+        ``"run"`` or ``"comparison"``: an earlier output of the other kind (its manifest
+        lists the other's :data:`OUTPUT_MARKS` file) is refused, not replaced.
 
     Returns
     -------
@@ -204,9 +222,14 @@ def inspect_target(out: Path, inputs: Iterable[Path] = (), force: bool = False,
     out = Path(os.path.abspath(given))
     here = (cwd or Path.cwd()).resolve()
     if given.name in ("", ".", ".."):
-        raise _refuse(f"'{given}' is {'the current folder' if given.name != '..' else 'a parent of the current folder'}"
-                      "; egressmargin writes only a new folder, an empty one or an earlier output of its own. "
-                      "Give a new folder name, e.g. --out results; nothing was changed")
+        if given.name == "..":
+            above = "the current one" if str(given.parent) in ("", ".") else f"'{given.parent}'"
+            what = f"the folder above {above} ('{out}'), named through '..'"
+        else:
+            what = "the root folder" if out == Path(out.anchor) else "the current folder"
+        raise _refuse(f"'{given}' is {what}; egressmargin writes only a new folder, an empty one or an earlier "
+                      "output of its own, named plainly. Give a new folder name, e.g. --out results; nothing was "
+                      "changed")
     if out.is_symlink():
         raise _refuse(f"'{given}' is a symbolic link (to '{os.readlink(out)}'); egressmargin does not write through "
                       "links. Give the real folder or a new folder name; nothing was changed")
@@ -239,6 +262,12 @@ def inspect_target(out: Path, inputs: Iterable[Path] = (), force: bool = False,
         raise _refuse(f"'{given}' holds {len(top)} item(s) ({_some(top)}) and is not an earlier egressmargin "
                       f"output ({why}); nothing was changed. Give a new or empty folder, or move those files away "
                       f"yourself{hint}")
+    other = _other_output(manifest, purpose)
+    if other is not None:
+        raise _refuse(f"'{given}' holds the output of an earlier 'egressmargin {'compare' if other == 'comparison' else other}' "
+                      f"({OUTPUT_MARKS[other]}), which 'egressmargin {'compare' if purpose == 'comparison' else purpose}' "
+                      f"does not replace; nothing was changed. Give a new or empty folder, or an earlier "
+                      f"{purpose} output, with --out")
     entries = [e for e in listing(out) if not _is_own(out, e.split("/")[0])]
     listed = {w for w in manifest["written"] if _safe_entry(w)}
     extra = [e for e in entries if e != MANIFEST_NAME and e not in listed]
@@ -254,6 +283,13 @@ def inspect_target(out: Path, inputs: Iterable[Path] = (), force: bool = False,
     _check_parent(given, out)
     if extra and not os.access(out, os.W_OK | os.X_OK):
         raise _refuse(f"cannot write in '{given}' (permission denied); nothing was changed")
+    locked = [e for e in ("", *tool_entries) if e.endswith("/") or e == ""
+              if (out / e).is_dir() and not os.access(out / e, os.W_OK | os.X_OK)]
+    if locked:
+        names = [f"'{given}'" if e == "" else f"'{e}'" for e in locked]
+        raise _refuse(f"the earlier output in '{given}' cannot be removed: {', '.join(names[:3])} "
+                      f"{'is' if len(names) == 1 else 'are'} read-only; make {'it' if len(names) == 1 else 'them'} "
+                      "writable (chmod u+w) or give another --out; nothing was changed")
     return Plan(out, "earlier", tuple(extra), tool_entries)
 
 
@@ -312,8 +348,38 @@ def _alive(pid: int) -> bool:
     return True
 
 
+#: Longest file name in bytes on common file systems (NAME_MAX: 255 on ext4, XFS, btrfs,
+#: APFS; 255 UTF-16 units on NTFS).
+NAME_MAX = 255
+#: Bytes the hidden names add to the output folder's name: "." + "." + the longest tag
+#: (16-17) + "-" + a process id (up to 7 digits) + "-" + mkdtemp's 8 characters, rounded up.
+_HIDDEN_EXTRA = 40
+
+
+def _base_name(out: Path) -> str:
+    """The output folder's name as the hidden names beside it use it: the name itself, or,
+    when a hidden name would be longer than :data:`NAME_MAX`, its first bytes and ``~`` and
+    12 hex digits of its SHA-256 (so a long but valid ``--out`` keeps working).
+
+    >>> _base_name(Path("results"))
+    'results'
+    >>> len(_base_name(Path("r" * 240)).encode()) + _HIDDEN_EXTRA <= NAME_MAX
+    True
+    """
+    import hashlib
+
+    name = out.name
+    raw = name.encode("utf-8", "surrogateescape")
+    room = NAME_MAX - _HIDDEN_EXTRA
+    if len(raw) <= room:
+        return name
+    digest = hashlib.sha256(raw).hexdigest()[:12]
+    head = raw[:room - 13].decode("utf-8", "ignore")
+    return f"{head}~{digest}"
+
+
 def _hidden(out: Path, tag: str) -> str:
-    return f".{out.name}.{tag}"
+    return f".{_base_name(out)}.{tag}"
 
 
 def _is_own(out: Path, name: str) -> bool:
@@ -351,6 +417,40 @@ def stale_folders(out: Path) -> list[Path]:
     return sorted(found)
 
 
+def remove_tree(path: Path) -> str | None:
+    """Remove a folder this tool staged or set aside; None when it is gone, else why not.
+
+    A read-only folder inside it (a ``plots/`` a user made read-only, say) stops
+    ``shutil.rmtree``; then every folder in the tree is given back its owner's
+    permissions (u+rwx, links not followed) and the removal is tried once more, as
+    ``chmod -R u+rwX`` then ``rm -rf`` would.
+    """
+    path = Path(path)
+    for attempt in (0, 1):
+        try:
+            if attempt:
+                _owner_may_remove(path)
+            shutil.rmtree(path)
+            return None
+        except FileNotFoundError:
+            return None
+        except OSError as exc:
+            why = f"{exc.strerror or exc}: '{exc.filename or path}'"
+    return why
+
+
+def _owner_may_remove(top: Path) -> None:
+    """u+rwx on ``top`` and on every folder below it (each before it is listed)."""
+    if top.is_symlink() or not top.is_dir():
+        return
+    os.chmod(top, stat.S_IMODE(os.lstat(top).st_mode) | 0o700)
+    for root, dirs, _ in os.walk(top):
+        for d in dirs:
+            p = os.path.join(root, d)
+            if not os.path.islink(p):
+                os.chmod(p, stat.S_IMODE(os.lstat(p).st_mode) | 0o700)
+
+
 class OutputFolder:
     """A claimed output folder: the lock is held and a staging folder exists beside it.
 
@@ -358,8 +458,10 @@ class OutputFolder:
     the staging folder and the lock file.
     """
 
-    def __init__(self, plan: Plan, given: Path, inputs: tuple[Path, ...], force: bool, when: datetime):
+    def __init__(self, plan: Plan, given: Path, inputs: tuple[Path, ...], force: bool, when: datetime,
+                 purpose: str | None = None):
         self.plan, self.given, self.inputs, self.force, self.when = plan, given, inputs, force, when
+        self.purpose = purpose
         self.out = plan.out
         self.home = workspace(self.out)
         self.lock_path = self.home / _hidden(self.out, _LOCK_TAG)
@@ -368,6 +470,9 @@ class OutputFolder:
         self._lock_fd: int | None = None
         self._made: list[Path] = []
         self.committed = False
+        #: Folders of this tool left beside the output because they could not be removed,
+        #: with the reason (reported as warnings: the output itself is in place).
+        self.leftovers: list[tuple[Path, str]] = []
 
     # the lock ----------------------------------------------------------------
     def _make_parents(self) -> None:
@@ -421,9 +526,11 @@ class OutputFolder:
                 self._make_parents()
                 self._lock()
                 # under the lock: what is there now (another run may just have finished)
-                self.plan = inspect_target(self.given, self.inputs, self.force)
+                self.plan = inspect_target(self.given, self.inputs, self.force, purpose=self.purpose)
                 for p in stale_folders(self.out):
-                    shutil.rmtree(p, ignore_errors=True)
+                    why = remove_tree(p)
+                    if why is not None:
+                        self.leftovers.append((p, why))
                 self.staging = Path(tempfile.mkdtemp(prefix=_hidden(self.out, f"{_TMP_TAG}-{os.getpid()}-"),
                                                      dir=self.home))
                 _usual_permissions(self.staging)
@@ -468,7 +575,7 @@ class OutputFolder:
                     "command": command if command is not None else shlex.join(["egressmargin", *sys.argv[1:]]),
                     "written": written}
         (self.staging / MANIFEST_NAME).write_text(json.dumps(manifest, indent=2) + "\n", encoding="utf-8")
-        plan = inspect_target(self.given, self.inputs, self.force)
+        plan = inspect_target(self.given, self.inputs, self.force, purpose=self.purpose)
         with signals_held():
             if plan.keep or self.home == self.out:
                 self._merge(plan)
@@ -476,8 +583,16 @@ class OutputFolder:
                 self._swap(plan)
             self.committed = True
         if self._aside is not None:
-            shutil.rmtree(self._aside, ignore_errors=True)
+            why = remove_tree(self._aside)
+            if why is not None:
+                self.leftovers.append((self._aside, why))
             self._aside = None
+
+    def leftover_warnings(self) -> list[Problem]:
+        """Warnings naming the set-aside or staging folders that could not be removed."""
+        return [Problem(str(p), f"the earlier output set aside here could not be removed ({why}); the new output "
+                        f"is in place at '{self.given}'. Remove this folder yourself (a later run to the same "
+                        "--out tries again)", warning=True) for p, why in self.leftovers]
 
     def _set_aside_folder(self) -> Path:
         return Path(tempfile.mkdtemp(prefix=_hidden(self.out, f"{_OLD_TAG}-{os.getpid()}-"), dir=self.home))
@@ -543,7 +658,7 @@ def _move_into(src: Path, dst: Path, move) -> None:
             move(p, target)
 
 
-def claim(out: Path, inputs: Iterable[Path] = (), force: bool = False) -> OutputFolder:
+def claim(out: Path, inputs: Iterable[Path] = (), force: bool = False, purpose: str | None = None) -> OutputFolder:
     """Check ``out`` (no writes) and return the folder to claim with ``with``.
 
     Raises InputError before anything is written when ``out`` may not be written (see
@@ -551,13 +666,13 @@ def claim(out: Path, inputs: Iterable[Path] = (), force: bool = False) -> Output
     """
     inputs = tuple(Path(i) for i in inputs if i is not None)
     try:
-        plan = inspect_target(Path(out), inputs, force)
+        plan = inspect_target(Path(out), inputs, force, purpose=purpose)
     except OSError as exc:            # an unreadable folder, say
         problem = user_os_error(exc, Path(out))
         if problem is None:
             raise
         raise problem from None
-    return OutputFolder(plan, Path(out), inputs, force, run_time())
+    return OutputFolder(plan, Path(out), inputs, force, run_time(), purpose)
 
 
 def _usual_permissions(folder: Path) -> None:

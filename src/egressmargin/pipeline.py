@@ -25,6 +25,7 @@ from .stats import rounded as _t, share, summarise
 from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study, data_problems
 from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
+from .yamlfile import load_located
 from .records import RouteResult, route_json
 from .verdict import CI_METHOD, decide, draw_outcomes, needs_more_samples, worst_outcome
 
@@ -46,6 +47,9 @@ class RunOptions:
     criteria: str | None = None           # replace the study's criteria: bundled name or file (cwd)
     force: bool = False                   # an earlier output holding other files: replace only the tool's own
     command: str | None = None            # the command line, recorded in the output's manifest
+    #: filled by run(): warnings found once the output is in place (a set-aside folder that
+    #: could not be removed), for the command line to print
+    notices: list = field(default_factory=list)
 
 
 @dataclass
@@ -64,13 +68,25 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
     options = options or RunOptions()
     study, specs, problems = check_study(study_path, criteria_override=options.criteria)
     if study is None:
-        # Report the CSV problems of every scenario that could be read, too.
+        # Report the problems of every file that could be read, too: each scenario's CSV,
+        # its resolutions' CSVs and the model-uncertainty table ("every problem at once").
         for spec in specs:
-            if spec.histories is not None and spec.histories.is_file() and spec.time is not None:
+            if spec.time is None:
+                continue
+            paths = [spec.histories] + [r.histories for r in getattr(spec, "resolutions", None) or []]
+            for k, path in enumerate(paths):
+                if path is None or not path.is_file() or (k and path.resolve() == paths[0].resolve()):
+                    continue
                 try:
-                    read_scenario(spec)
+                    read_scenario(spec, None if k == 0 else path)
                 except InputError as exc:
                     problems.extend(exc.problems)
+        unc_path = options.uncertainty or _named_table(Path(study_path))
+        if unc_path is not None and not options.raw_only and Path(unc_path).is_file():
+            try:
+                load_table(Path(unc_path))
+            except InputError as exc:
+                problems.extend(exc.problems)
         raise InputError(problems)
     problems = []
     warnings = list(study.warnings)
@@ -99,11 +115,11 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
             warnings.extend(w)
         except InputError as exc:
             problems.extend(exc.problems)
-            continue
         runs = []
         for r in spec.resolutions:
             if r.histories.resolve() == spec.histories.resolve():
-                runs.append((r.cell_m, data[spec.id]))
+                if spec.id in data:
+                    runs.append((r.cell_m, data[spec.id]))
                 continue
             try:
                 d2, w2 = read_scenario(spec, r.histories)
@@ -186,6 +202,16 @@ def _finding_problems(study: Study, data: dict, findings) -> list[Problem]:
                 else f"acknowledge with accept_warnings: [{f.code}] on a location of the scenario")
         out.append(Problem(where, f"{place}, {series}: {f.message} [{f.code}; {hint}]", warning=True))
     return out
+
+
+def _named_table(study_path: Path) -> Path | None:
+    """The model-uncertainty table a study names (``uncertainty:``), read again from the file
+    when the study has errors, so that the table's own problems are reported with them."""
+    try:
+        value = load_located(study_path).data.get("uncertainty")
+    except (InputError, AttributeError):
+        return None
+    return study_path.parent / value if isinstance(value, str) and value.strip() else None
 
 
 def _on_ignition_clock(spec, data: ScenarioData, problems: list[Problem]) -> ScenarioData:
@@ -837,9 +863,10 @@ def run(study_path: Path, options: RunOptions) -> Path:
     inputs += [d.path for d in loaded.data.values()]
     inputs += [d.path for runs in loaded.resolutions.values() for _, d in runs]
     try:
-        with outputs.claim(out, inputs, force=options.force) as target:
+        with outputs.claim(out, inputs, force=options.force, purpose="run") as target:
             results, plots = build_results(loaded, options)
             write_outputs(results, plots, out, options, target)
+        options.notices.extend(target.leftover_warnings())
     finally:
         if options.progress:
             options.progress.done()       # a live line is cleared before any message that follows
@@ -857,8 +884,10 @@ def write_outputs(results: dict, plots: dict, out: Path, options: RunOptions,
     if target is None:
         inputs = [Path(f["path"]) for f in results.get("inputs") or []]
         try:
-            with outputs.claim(out, inputs, force=options.force) as own:
-                return write_outputs(results, plots, out, options, own)
+            with outputs.claim(out, inputs, force=options.force, purpose="run") as own:
+                write_outputs(results, plots, out, options, own)
+            options.notices.extend(own.leftover_warnings())
+            return None
         finally:
             if options.progress:
                 options.progress.done()

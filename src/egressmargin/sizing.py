@@ -14,6 +14,15 @@ already in memory when this is asked. So the estimate is
 with S the most samples a run may draw, L the scenario's locations, R its routes and N
 its rows. Summing over scenarios is conservative: results of every scenario are kept
 until the end, and scenarios may run in parallel processes.
+
+The flow model (``egress/flow.py``) is the exception to "no samples x something arrays":
+it follows every person, so it holds a few arrays of shape (samples, occupants) for the
+routes of a scenario at once. A scenario whose routes carry P occupants in all adds
+
+    S * P * BYTES_PER_SAMPLE_OCCUPANT
+
+(``scenarios`` entries may give P as a fourth number; without it the term is zero). For
+an occupant count given as a distribution, P uses :func:`occupant_count_bound`.
 """
 
 from __future__ import annotations
@@ -30,6 +39,14 @@ BYTES_PER_SAMPLE_LOCATION = 256
 #: Bytes per sample and route (the same measurement: under 100 B; 64 float64 values
 #: allowed for the egress components, the movement model and the route's records).
 BYTES_PER_SAMPLE_ROUTE = 512
+#: Bytes per sample and occupant held by the flow model (project measurement: peak
+#: resident memory of `run --no-pdf` on the test fixture grew by 50 B per sample-occupant
+#: between 20 000 and 40 000 occupants at 200 samples, with one or six path elements,
+#: start times spread across occupants or not, along-route exposure or not; rounded up
+#: to 8 float64 values).
+BYTES_PER_SAMPLE_OCCUPANT = 64
+#: The sensitivity sweep draws the occupant count 10 % higher (assess.py: a +/-10 % sweep).
+OCCUPANT_SWEEP = 1.1
 #: Copies of a location's series held at once (raw, corrected, running maxima, dose
 #: curves; project choice, generous).
 SERIES_COPIES = 8
@@ -54,10 +71,40 @@ def estimate_bytes(samples: int, scenarios) -> int:
     1031680
     """
     total = 0
-    for locations, routes, rows in scenarios:
+    for shape in scenarios:
+        locations, routes, rows = shape[:3]
+        occupants = shape[3] if len(shape) > 3 else 0
         total += int(samples) * (locations * BYTES_PER_SAMPLE_LOCATION + routes * BYTES_PER_SAMPLE_ROUTE)
+        total += int(samples) * int(occupants) * BYTES_PER_SAMPLE_OCCUPANT
         total += locations * rows * 8 * SERIES_COPIES
     return total
+
+
+def occupant_count_bound(spec: dict, samples: int) -> int:
+    """The most occupants the flow model should expect on a route over ``samples`` draws.
+
+    A fixed count is itself. For a distribution the bound is its quantile at
+    ``1 - 1/(10 samples)``: the largest of ``samples`` independent draws exceeds it with
+    probability ``1 - (1 - 1/(10 S))^S``, about 1 - exp(-0.1) = 9.5 % (project choice: an
+    estimate, not a guarantee). Times :data:`OCCUPANT_SWEEP` for the sensitivity sweep,
+    rounded up; a value beyond 1e18 is capped there (it cannot fit anyway).
+
+    Examples
+    --------
+    >>> occupant_count_bound({"fixed": 200.0}, 2000)
+    220
+    >>> occupant_count_bound({"uniform": {"low": 100.0, "high": 200.0}}, 1000)   # 200 - 1e-4 * 100, * 1.1
+    220
+    """
+    import math
+
+    from .egress.distributions import ppf
+
+    q = 1.0 - 1.0 / (10.0 * max(int(samples), 1))
+    n = float(ppf(spec, q)) if spec else 1.0
+    if not math.isfinite(n) or n > 1e18:
+        return 10 ** 18
+    return int(math.ceil(max(round(n), 1) * OCCUPANT_SWEEP - 1e-9))
 
 
 def available_memory() -> tuple[int | None, int | None]:
@@ -123,8 +170,10 @@ def memory_problems(samples: int, scenarios, where: str, available: int | None =
     most = max(int((available - fixed) // per_sample), 0)
     L = sum(s[0] for s in scenarios)
     R = sum(s[1] for s in scenarios)
+    P = sum(s[3] for s in scenarios if len(s) > 3)
+    people = f", {P} occupants as the flow model counts them" if P else ""
     whole = f" ({format_bytes(total)} in all)" if total else ""
     return [Problem(where, f"{samples} samples need about {format_bytes(need)} of memory ({L} location"
-                           f"{'s' if L != 1 else ''} and {R} route{'s' if R != 1 else ''} over {len(scenarios)} "
+                           f"{'s' if L != 1 else ''} and {R} route{'s' if R != 1 else ''}{people} over {len(scenarios)} "
                            f"scenario{'s' if len(scenarios) != 1 else ''}); this machine has "
                            f"{format_bytes(available)} available{whole}; expected at most about {most} samples")]

@@ -173,6 +173,17 @@ class NamedElement:
     where: str = ""
 
 
+#: Ambient oxygen accepted in `ambient: {o2}` (volume fraction). Above 23.5 % the air is
+#: oxygen-enriched (US OSHA 29 CFR 1910.146(b), definition of an oxygen enriched
+#: atmosphere); below 15 % it is lower than fire-prevention oxygen-reduction systems keep
+#: in occupied rooms (about 15 %, from memory). Outside that range the value is taken to
+#: be a slip (a fraction written as percent, or the reverse).
+AMBIENT_O2_LOW = 0.15
+AMBIENT_O2_HIGH = 0.235
+#: Below 19.5 % an atmosphere is oxygen-deficient (US OSHA 29 CFR 1910.146(b)): accepted
+#: with a warning.
+AMBIENT_O2_DEFICIENT = 0.195
+
 #: What the report shows of locations no route uses (`report: {unused_locations: ...}`):
 #: their detail in the appendix (default), or left out with a line naming them.
 UNUSED_LOCATIONS = ("appendix", "omit")
@@ -448,7 +459,10 @@ def _usable_criteria(ck, criteria: CriteriaSet, given) -> None:
     zero or less where only a positive one means anything (every criterion but temperature)."""
     if not criteria.items:
         kp = ("criteria", "only") if isinstance(given, dict) and "only" in given else ("criteria",)
-        ck.err(kp, "no criterion is left to apply; expected at least one criterion id in 'only'")
+        ck.err(kp, "no criterion is left to apply; expected at least one criterion id in 'only'"
+               if not criteria.not_applicable else
+               f"no criterion is left to apply (not applicable: {', '.join(criteria.not_applicable)}); expected at "
+               "least one criterion that applies")
     for cid, c in criteria.items.items():
         if cid != "temperature" and not c.limit > 0:
             ck.err(("criteria", cid, "limit"), f"found '{c.limit_text}' for '{cid}'; expected a limit above zero")
@@ -548,6 +562,16 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
                 amb_o2 = ck.quantity(sc["ambient"]["o2"], kp + ("ambient", "o2"), "o2")
                 if amb_o2 is not None and not 0 < amb_o2 <= 1:
                     ck.err(kp + ("ambient", "o2"), "expected an oxygen fraction in (0, 100] percent")
+                elif amb_o2 is not None and not AMBIENT_O2_LOW <= amb_o2 <= AMBIENT_O2_HIGH:
+                    ck.err(kp + ("ambient", "o2"), f"found {_show(sc['ambient']['o2'])} ({amb_o2 * 100:g} percent); "
+                           f"expected an ambient oxygen fraction from {AMBIENT_O2_LOW * 100:g} to "
+                           f"{AMBIENT_O2_HIGH * 100:g} percent (dry air holds 20.9 percent; a fraction written "
+                           "as a percentage, or percent as a fraction?)")
+                    amb_o2 = None
+                elif amb_o2 is not None and amb_o2 < AMBIENT_O2_DEFICIENT:
+                    ck.warn(kp + ("ambient", "o2"), f"ambient oxygen {amb_o2 * 100:g} percent is below "
+                            f"{AMBIENT_O2_DEFICIENT * 100:g} percent, an oxygen-deficient atmosphere before any "
+                            "fire (an oxygen-reduction system?); check the value")
         ignition = None
         if "ignition" in sc:
             ignition = ck.quantity(sc["ignition"], kp + ("ignition",), "duration")
@@ -766,7 +790,7 @@ def _routes(ck, value, loc_ids: dict[str, dict], named: dict | None = None,
                     if not isinstance(s, (str, int)) or isinstance(s, bool):
                         ck.err(kp + ("scenarios", j), f"found {_show(s)}; expected a scenario id")
                         continue
-                    if s not in loc_ids:
+                    if str(s) not in loc_ids:        # ids are text: an integer id is compared as written
                         ck.err(kp + ("scenarios", j), f"no scenario '{s}'; expected one of "
                                f"{', '.join(all_scen)}{did_you_mean(s, all_scen)}")
                 scen = [str(s) for s in scen]
@@ -830,6 +854,7 @@ def _location_ref(ck, lid, kp, covered, loc_ids) -> str | None:
     if not isinstance(lid, (str, int)) or isinstance(lid, bool):
         ck.err(kp, f"found {_show(lid)}; expected a location id")
         return None
+    lid = str(lid)                          # ids are text: an integer id is compared as written
     missing = [s for s in covered if s in loc_ids and lid not in loc_ids[s]]
     if missing:
         known = sorted({x for s in covered if s in loc_ids for x in loc_ids[s]})
@@ -1003,6 +1028,12 @@ def _check_upstream(ck, named: dict[str, NamedElement], routes: list[RouteSpec])
             if rid not in users:
                 ck.err(kp + (j,), f"route '{rid}' does not use element '{eid}'; expected one of "
                        f"{', '.join(users) or '(no route uses it)'}{did_you_mean(rid, users or ids)}")
+        if el.upstream and users and set(users) <= set(el.upstream):
+            # with every user upstream nobody receives "the capacity left over": the merge
+            # would fall back to first come, first served while the report says they keep their flow
+            ck.err(kp, f"upstream names every route that uses element '{eid}' ({', '.join(users)}); expected "
+                   "at least one route left behind, which receives the capacity the upstream routes leave "
+                   "(or no upstream: first come, first served)")
     for a_i, a in enumerate(routes):
         for b in routes[a_i + 1:]:
             if a.scenarios and b.scenarios and not set(a.scenarios) & set(b.scenarios):
@@ -1186,8 +1217,8 @@ def _element(ck, el, ekp) -> dict | None:
                 f"escape {kind} is likely to be ({MIN_PLAUSIBLE_WIDTH_M} m); check the unit (it controls the "
                 f"route's flow at {we:.2f} m effective width)")
     if "at" in spec:
-        element["at"] = spec["at"] if isinstance(spec["at"], (str, int)) and not isinstance(spec["at"], bool) \
-            else None
+        element["at"] = str(spec["at"]) if isinstance(spec["at"], (str, int)) \
+            and not isinstance(spec["at"], bool) else None
         element["at_kp"] = ekp + (kind, "at")
         if element["at"] is None:
             ck.err(ekp + (kind, "at"), f"found {_show(spec['at'])}; expected a location id")
@@ -1267,7 +1298,7 @@ def data_problems(study: Study, data: dict, samples: int | None = None) -> list[
 
     ``data`` maps scenario id to its :class:`~egressmargin.histories.ScenarioData`.
     """
-    from .sizing import estimate_bytes, memory_problems
+    from .sizing import estimate_bytes, memory_problems, occupant_count_bound
 
     problems: list[Problem] = []
     by_id = {s.id: s for s in study.scenarios}
@@ -1294,18 +1325,83 @@ def data_problems(study: Study, data: dict, samples: int | None = None) -> list[
                                         "respond at time zero; expected an activation temperature above ambient"))
     drawn = int(samples or study.samples)
     most = int(getattr(study, "max_samples", 0) or 0)
-    shapes = [(len(d.location_ids), sum(1 for r in study.routes if r.scenarios is None or sid in r.scenarios),
-               len(d.t_s)) for sid, d in data.items()]
+
+    def shapes_at(n_samples):
+        return [(len(d.location_ids), sum(1 for r in study.routes if r.scenarios is None or sid in r.scenarios),
+                 len(d.t_s), sum(occupant_count_bound(r.occupants_dist or {"fixed": float(r.occupants)}, n_samples)
+                                 for r in study.routes if r.scenarios is None or sid in r.scenarios))
+                for sid, d in data.items()]
+    shapes = shapes_at(drawn)
     # Every scenario keeps its `samples` draws to the end; the extra draws that settle a
     # straddling verdict (up to max_samples) are made for one scenario at a time and dropped.
     memory = memory_problems(drawn, shapes, "")
-    key = "samples"
+    key, used, used_shapes = "samples", drawn, shapes
     if not memory and most > drawn and shapes:
-        largest = max(shapes, key=lambda sh: estimate_bytes(most, [sh]))
+        largest = max(shapes_at(most), key=lambda sh: estimate_bytes(most, [sh]))
         memory = memory_problems(most, [largest], "")
-        key = "max_samples"
+        key, used, used_shapes = "max_samples", most, [largest]
     if memory:   # locate the key only when there is something to say (reads the study again)
-        where = "--samples (command line)" if samples and key == "samples" else \
-            load_located(study.path).where((key,))
-        problems += [Problem(where, p.message) for p in memory]
+        occupant_problem = _occupant_memory_problem(study, used, used_shapes, key, samples)
+        if occupant_problem is not None:
+            problems.append(occupant_problem)
+        else:
+            where = "--samples (command line)" if samples and key == "samples" else \
+                load_located(study.path).where((key,))
+            problems += [Problem(where, p.message) for p in memory]
     return problems
+
+
+def _occupant_memory_problem(study: Study, n_samples: int, shapes, key: str, cli_samples) -> Problem | None:
+    """The memory problem located at the occupant count of the largest route, when the flow
+    model's (samples x occupants) arrays are at least half of what the run needs; else None.
+
+    Says the count as drawn (for a distribution its quantile ``1 - 1/(10 samples)``, see
+    :func:`~egressmargin.sizing.occupant_count_bound`), the memory needed and available, the
+    largest count of that route that fits with everything else unchanged, and the most
+    samples that fit with the counts unchanged.
+    """
+    from .sizing import (BYTES_PER_SAMPLE_OCCUPANT, OCCUPANT_SWEEP, available_memory, estimate_bytes,
+                         format_bytes, occupant_count_bound)
+
+    available, total = available_memory()
+    need = estimate_bytes(n_samples, shapes)
+    occupant_bytes = sum(n_samples * sh[3] * BYTES_PER_SAMPLE_OCCUPANT for sh in shapes)
+    if available is None or not study.routes or occupant_bytes * 2 < need \
+            or need - occupant_bytes > available:       # too many samples whatever the counts: say so at samples
+        return None
+    bounds = {r.id: occupant_count_bound(r.occupants_dist or {"fixed": float(r.occupants)}, n_samples)
+              for r in study.routes}
+    route = max(study.routes, key=lambda r: bounds[r.id])
+    # bytes per occupant of this route: it counts once in every scenario it is assessed on (of those sized)
+    n_scen = min(len(shapes), max(1, sum(1 for sc in study.scenarios
+                                         if route.scenarios is None or sc.id in route.scenarios)))
+    per_occupant = n_scen * n_samples * BYTES_PER_SAMPLE_OCCUPANT * OCCUPANT_SWEEP
+    rest = need - n_scen * n_samples * bounds[route.id] * BYTES_PER_SAMPLE_OCCUPANT
+    fits = max(int((available - rest) // per_occupant), 0)
+    while fits > 0 and rest + n_scen * n_samples * BYTES_PER_SAMPLE_OCCUPANT * occupant_count_bound(
+            {"fixed": float(fits)}, n_samples) > available:       # the bound rounds up: step down to what fits
+        fits -= 1
+    fixed = estimate_bytes(0, shapes)
+    most_samples = max(int((available - fixed) // max(estimate_bytes(1, shapes) - fixed, 1)), 0)
+    doc = load_located(study.path)
+    index = next((i for i, r in enumerate(doc.data.get("egress") or [])
+                  if isinstance(r, dict) and str(r.get("id")) == route.id), None)
+    where = doc.where(("egress", index, "occupants")) if index is not None else route.where
+    dist = route.occupants_dist or {"fixed": float(route.occupants)}
+    if "fixed" in dist:
+        count, limit = f"{route.occupants} occupants", f"at most about {fits} occupants on this route"
+    else:
+        drawn = f"about {round(bounds[route.id] / OCCUPANT_SWEEP):.4g}" if bounds[route.id] < 10 ** 18 \
+            else "beyond 1e18"
+        count = (f"an occupant count reaching {drawn} (its quantile 1 - 1/(10 x {n_samples}), "
+                 f"about the largest of {n_samples} draws)")
+        limit = f"a count whose largest draws stay below about {fits} on this route"
+    whole = f" ({format_bytes(total)} in all)" if total else ""
+    samples_words = "--samples" if cli_samples and key == "samples" else key
+    paren = "" if samples_words == "samples" else f" ({samples_words})"
+    return Problem(where, f"{count} on route '{route.id}' with {n_samples} samples{paren} need about "
+                          f"{format_bytes(need)} of memory: the flow model follows every occupant in every draw "
+                          f"(counted 10 % high for the sensitivity sweep); this machine has "
+                          f"{format_bytes(available)} available{whole}; expected {limit}"
+                          + (f", or {samples_words} at most about {most_samples} with these counts" if most_samples
+                             else " (no number of samples fits these counts)"))

@@ -36,6 +36,16 @@ DISTRIBUTIONS = ("lognormal", "normal")
 
 #: What a table row's statistics were fitted on: ``rise`` above ambient, ``depletion``
 #: below ambient, or the quantity ``as-given``.
+#: A relative standard deviation above this is refused in a table, and warned of in
+#: fit-uncertainty's sigma_exp column, as a likely percentage (0.07 written as 7): a
+#: lognormal factor with sigma 1 already spans exp(+/-1.96) = x/7 either way at 95 %,
+#: beyond what a validation study of a fire model reports (project choice).
+SIGMA_PERCENT_SUSPECT = 1.0
+#: Above this a table's sigma is accepted with a warning: the 95 % band of a corrected
+#: value spans more than a factor exp(2 x 1.96 x 0.5) = 7, so the run's times are set
+#: more by the table than by the simulation (project choice).
+SIGMA_WIDE = 0.5
+
 BASES = ("rise", "depletion", "as-given")
 
 #: The basis on which the run applies each quantity's row (the contract: temperature as
@@ -97,6 +107,7 @@ def load_table(path: Path) -> UncertaintyTable:
     doc = load_located(path)
     problems: list[Problem] = []
     unstated: list[str] = []
+    wide: list[Problem] = []
     data = doc.data
     allowed = {"source", "distribution", "quantities", "fitted", "parameters"}
     if not isinstance(data, dict):
@@ -147,6 +158,16 @@ def load_table(path: Path) -> UncertaintyTable:
                 problems.append(Problem(doc.where(kp + (key,)), f"found {v!r}; expected a {finite}number "
                                         f"{'above' if strict else 'of at least'} {low:g}"))
                 continue
+            if key != "bias" and v > SIGMA_PERCENT_SUSPECT:
+                problems.append(Problem(doc.where(kp + (key,)), f"found {v!r}: a relative standard deviation above "
+                                        f"{SIGMA_PERCENT_SUSPECT:g} is beyond any validated model; is it a "
+                                        "percentage? expected a fraction (7 % is written 0.07)"))
+                continue
+            if key == "sigma_model" and v > SIGMA_WIDE:
+                wide.append(Problem(doc.where(kp + (key,)), f"found {v!r}: with sigma_model above {SIGMA_WIDE:g} the "
+                                    f"95 % band of corrected {q} spans more than a factor of 7, so the table rather "
+                                    "than the simulation sets the times; check that it is a fraction, not a "
+                                    "percentage", warning=True))
             vals[key] = float(v)
         rmin = rmax = None
         rtext = ""
@@ -186,7 +207,7 @@ def load_table(path: Path) -> UncertaintyTable:
                         f"{_BASIS_WORDS[applied_basis(q)]}, as the run applies it; add 'basis: "
                         f"{applied_basis(q)}' to say so (egressmargin fit-uncertainty writes it)", warning=True)
                 for q in unstated]
-    warnings += _failed_checks(doc, data.get("fitted"), quantities)
+    warnings += wide + _failed_checks(doc, data.get("fitted"), quantities)
     return UncertaintyTable(source.strip(), dist, quantities, Path(path), params if isinstance(params, dict) else {},
                             warnings)
 

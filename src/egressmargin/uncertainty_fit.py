@@ -36,7 +36,7 @@ import numpy as np
 
 from egressmargin.errors import Problem, raise_if_any
 from egressmargin.study import did_you_mean
-from egressmargin.uncertainty import APPLIED_BASIS, BASES, applied_basis
+from egressmargin.uncertainty import APPLIED_BASIS, BASES, SIGMA_PERCENT_SUSPECT, applied_basis
 from egressmargin.units import check_unit
 
 __all__ = [
@@ -437,7 +437,7 @@ def read_pairs(
                     )
                 )
                 row_ok = False
-            elif sigma > 1:
+            elif sigma > SIGMA_PERCENT_SUSPECT:
                 problems.append(
                     Problem(
                         f"{name}:{line} column 'sigma_exp'",

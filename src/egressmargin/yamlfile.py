@@ -80,6 +80,10 @@ def _build(node, key_path, lines, ancestors=(), count=None, found=None):
         for knode, vnode in node.value:
             if not isinstance(knode, yaml.ScalarNode):
                 raise _Bad(knode.start_mark.line + 1, "a list or mapping is used as a key; expected a plain key")
+            if knode.tag == MERGE_TAG:
+                found.append((knode.start_mark.line + 1, key_path, "found a YAML merge key ('<<: *name'), which "
+                              "this tool does not expand; expected the keys written out in this mapping"))
+                continue
             key = _construct_scalar(knode)
             kp = key_path + (key,)
             key_line = knode.start_mark.line + 1
@@ -101,7 +105,16 @@ def _build(node, key_path, lines, ancestors=(), count=None, found=None):
     return value
 
 
+#: The tag PyYAML gives the merge key ``<<`` (YAML 1.1 merge key type).
+MERGE_TAG = "tag:yaml.org,2002:merge"
+#: The tag of a date or date-time scalar (YAML 1.1 timestamp type): kept as the text as
+#: written (a title ``2024-01-01`` is text, never ``datetime.date(2024, 1, 1)``).
+TIMESTAMP_TAG = "tag:yaml.org,2002:timestamp"
+
+
 def _construct_scalar(node):
+    if node.tag == TIMESTAMP_TAG:
+        return node.value
     loader = yaml.SafeLoader("")
     try:
         return loader.construct_object(node, deep=True)
@@ -139,7 +152,11 @@ def load_located_text(text: str, path: Path) -> Located:
     except _Bad as exc:
         raise InputError([Problem(f"{path}:{exc.line}", exc.message)]) from None
     except yaml.YAMLError as exc:
-        raise InputError([Problem(str(path), f"YAML error: {exc}")]) from None
+        mark = getattr(exc, "problem_mark", None) or getattr(exc, "context_mark", None)
+        what = getattr(exc, "problem", None) or str(exc).splitlines()[0]
+        raise InputError([Problem(f"{path}:{mark.line + 1}" if mark else str(path),
+                                  f"YAML error: {what}; expected plain YAML values (text, numbers, lists, "
+                                  "mappings)")]) from None
     if found:
         raise InputError([Problem(f"{path}:{line} {format_key_path(kp)}".rstrip(), message)
                           for line, kp, message in found])

@@ -394,6 +394,9 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "criteria": {"name": criteria.get("name"), "description": criteria.get("description"),
                      "sources": list(criteria.get("sources") or []),
                      "rows": _criteria_rows(applied),
+                     "not_applicable": [{"label": _label(str(cid)), "reason": str(why)} for cid, why in
+                                        (criteria.get("not_applicable") or {}).items()]
+                     if isinstance(criteria.get("not_applicable"), Mapping) else [],
                      "signs": criteria.get("visibility_signs")
                      if isinstance(criteria.get("visibility_signs"), Mapping) else None},
         "criterion_ids": criterion_ids,
