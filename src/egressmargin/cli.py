@@ -318,8 +318,11 @@ def _compare(args) -> int:
     from .report.compare_render import write_comparison
     runs = read_comparable(args.results, allow_different_titles=args.allow_different_titles)
     comparison = build_comparison(runs, allow_different_titles=args.allow_different_titles)
+    notices: list = []
     paths = write_comparison(comparison, args.out, pdf=not args.no_pdf, generated=date.today().isoformat(),
-                             command=args.command_line)
+                             command=args.command_line, notices=notices)
+    for w in notices:
+        print(str(w), file=sys.stderr)
     for r in comparison["runs"]:
         print(f"{r['label']}: {r['path']}")
     diffs = comparison["differences"]["summary"]

@@ -230,7 +230,8 @@ def _refuse_run_output(out: Path) -> None:
 
 
 def write_comparison(comparison: Mapping[str, Any], out_dir: Path, pdf: bool = True,
-                     generated: str | None = None, command: str | None = None) -> dict[str, Path]:
+                     generated: str | None = None, command: str | None = None,
+                     notices: list | None = None) -> dict[str, Path]:
     """Write ``comparison.json``, ``comparison.html`` (and ``comparison.pdf``) into ``out_dir``.
 
     Parameters
@@ -246,6 +247,9 @@ def write_comparison(comparison: Mapping[str, Any], out_dir: Path, pdf: bool = T
         Date printed on the page (the JSON carries none, so reruns are byte-identical).
     command : str, optional
         The command line recorded in the output's manifest (default: this process's).
+    notices : list, optional
+        Receives what could not be tidied beside the output (a set-aside earlier output
+        that could not be removed), for the command line to print.
 
     Returns
     -------
@@ -272,6 +276,8 @@ def write_comparison(comparison: Mapping[str, Any], out_dir: Path, pdf: bool = T
             if pdf:
                 write_pdf(html, tmp / files["pdf"])
             target.commit(comparison["version"], command)
+        if notices is not None:
+            notices.extend(target.leftover_warnings())
     except OSError as exc:
         problem = outputs.user_os_error(exc, out)
         if problem is None:
