@@ -25,7 +25,7 @@ from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study, data_problems
 from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
 from .records import RouteResult, route_json
-from .verdict import CI_METHOD, decide, draw_outcomes, needs_more_samples, worst_outcome
+from .verdict import ci_method, decide, draw_outcomes, planned_looks, sequential, worst_outcome
 
 #: Samples used to draw the corrected p05-p95 band on the report's time plots.
 BAND_SAMPLES = 200
@@ -310,27 +310,35 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                                         study.elements) if routes_here else None
     more = _MoreSamples(table, prep, crit, seed, index, raw)
     s_max = max(study.max_samples, S)
+    schedule = planned_looks(S, s_max)      # the sequential rule's planned looks (verdict.py)
     bigger: dict[int, object] = {}
     sensitivities = None
     for ri, route in routes_here:
-        eg, fac_r, s_used = egress, factors, S
-        out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, eg.routes[route.id])
         # Settle the statistics by sampling more where the interval straddles the limit: the
-        # scenario's ASET and its (shared) egress again with twice the draws, same seed streams.
-        while s_used < s_max and needs_more_samples(out.aset, out.rset, end, study.max_p_fail):
-            s_used = min(2 * s_used, s_max)
-            fac_r, loc_big = more.at(s_used)
-            if s_used not in bigger:
-                bigger = {s_used: egress_at(s_used, fac_r)}        # keep one count: memory
-            eg = bigger[s_used]
-            out = assess.outcome(route, prep, loc_big, raw_aset, governing_raw, eg.routes[route.id])
+        # scenario's ASET and its (shared) egress again at the next planned look (twice the
+        # draws, same seed streams); each look's interval is corrected for the number of looks.
+        def draw_at(n: int, route=route):
+            if n == S:
+                fac_n, loc_n, eg_n = factors, loc_aset, egress
+            else:
+                fac_n, loc_n = more.at(n)
+                if n not in bigger:
+                    bigger.clear()                                   # keep one count: memory
+                    bigger[n] = egress_at(n, fac_n)
+                eg_n = bigger[n]
+            o = assess.outcome(route, prep, loc_n, raw_aset, governing_raw, eg_n.routes[route.id])
+            return o.aset, o.rset, None, o, eg_n, fac_n
+
+        s_used, (_, _, _, out, eg, fac_r) = sequential(schedule, draw_at, end, study.max_p_fail)
         margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
         route_locs = [locations[prep.ids.index(loc)] for loc in route.exposed_at]
         assessed_any = any(c.get("status") == "assessed" for loc in route_locs for c in loc["criteria"].values())
-        v = decide(out.aset, out.rset, end, study.max_p_fail, assessed=assessed_any, max_samples=s_max)
+        v = decide(out.aset, out.rset, end, study.max_p_fail, assessed=assessed_any, max_samples=s_max,
+                   looks=len(schedule), schedule=schedule)
         la = out.extras.get("location_aware")
         v_la = None if la is None else decide(la.aset_s, la.leave_s, end, study.max_p_fail, assessed=assessed_any,
-                                              outcomes=worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end)))
+                                              outcomes=worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end)),
+                                              looks=len(schedule), schedule=schedule)
         if sensitivities is None:          # every route's sweep in one flow run of the scenario
             sf, si, sa = sweep
             sensitivities = assess.scenario_sensitivity(specs_here, prep, sf, si, sa,
@@ -643,7 +651,8 @@ def build_results(loaded: Loaded, options: RunOptions):
         "uncertainty": loaded.table.as_results() if loaded.table else None,
         "egress_method": egress_method(),
         "acceptance": {"max_p_fail": study.max_p_fail, "max_samples": study.max_samples,
-                       "interval_method": CI_METHOD},
+                       "interval_method": ci_method(len(planned_looks(S, max(study.max_samples, S))),
+                                                    planned_looks(S, max(study.max_samples, S)))},
         "raw_only": bool(options.raw_only),
         "assumptions": assumptions(loaded),
         "warnings": [str(w) for w in loaded.warnings] + [w for sc in scenarios for w in sc["warnings"]],

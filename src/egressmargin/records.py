@@ -15,7 +15,7 @@ import numpy as np
 
 from .egress import summary as egress_summary
 from .stats import rounded as _t, share, summarise
-from .verdict import CI_METHOD, Verdict
+from .verdict import Verdict
 
 __all__ = ["RouteResult", "route_json", "VERDICT_BASIS"]
 
@@ -160,7 +160,7 @@ def route_json(r: RouteResult) -> dict:
         entry["share_not_detected"] = round(share(undetected), 4)
     entry["criteria_assessed"] = r.criteria_assessed
     entry.update(r.verdict.as_results())
-    entry["p_fail_method"] = CI_METHOD
+    entry["p_fail_method"] = r.verdict.method
     entry["share_undecided"] = round(r.verdict.share_unknown, 4)
     entry["verdict_basis"] = VERDICT_BASIS
     if r.location_aware_verdict is not None:
