@@ -17,7 +17,7 @@ import numpy as np
 from . import __version__, aset, assess, outputs
 from .clock import shift_to_ignition
 from .egress import summary as egress_summary
-from .credibility import flag_change, grid_convergence
+from .credibility import GCI_THRESHOLD, grid_convergence, grid_flags
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
 from .stats import rounded as _t, share, summarise
@@ -540,6 +540,7 @@ def credibility(loaded: Loaded, index: int, crit):
     if len(runs) < 2:
         return None, {}
     threshold = loaded.study.max_grid_change
+    max_gci = getattr(loaded.study, "max_gci", GCI_THRESHOLD)
     per_run = []
     for cell, d in runs:
         p = aset.prepare(d, crit, spec.ambient_temperature_c, spec.ambient_o2)
@@ -553,41 +554,35 @@ def credibility(loaded: Loaded, index: int, crit):
             if not all(res[cid].assessed[li] for _, res, _ in per_run):
                 continue
             vals = [_t(res[cid].times[li, 0]) for _, res, _ in per_run]
-            entry["criteria"][cid] = _gci_entry(cells, vals, threshold)
+            entry["criteria"][cid] = _gci_entry(cells, vals, threshold, max_gci)
             plot[cid] = {"cells": cells, "values_s": vals, "extrapolated_s": entry["criteria"][cid]["extrapolated_s"]}
         vals = [_t(a[li]) for _, _, a in per_run]
-        entry["aset"] = _gci_entry(cells, vals, threshold)
+        entry["aset"] = _gci_entry(cells, vals, threshold, max_gci)
         plot["aset"] = {"cells": cells, "values_s": vals, "extrapolated_s": entry["aset"]["extrapolated_s"]}
         locs.append(entry)
         plots[lid] = plot
-    return {"resolutions": cells, "threshold": threshold, "locations": locs,
+    return {"resolutions": cells, "threshold": threshold, "max_gci": max_gci, "locations": locs,
             "method": "Celik et al. (2008), J. Fluids Eng. 130, 078001; Roache (1994)"}, plots
 
 
-def _gci_entry(cells, vals, threshold) -> dict:
+def _gci_entry(cells, vals, threshold, max_gci=None) -> dict:
     """One results.json grid-sensitivity entry (Celik et al. 2008, Steps 1-5) and whether to flag it.
 
-    Flagged: a divergent or oscillatory triple (whatever the size of the change), a limit reached
-    on some grids but not on others, or a change between the two finest grids above ``threshold``.
-    A limit reached on no grid is not flagged: there is no time to be grid sensitive.
+    Flagged (``credibility.grid_flags``, every reason listed in ``flag_reason``): a divergent or
+    oscillatory triple (whatever the size of the change), a limit reached on some grids but not on
+    others, a change between the two finest grids above ``threshold``, and for a monotone triple a
+    fine-grid GCI above ``max_gci``, an apparent order outside 0.5-4 or an extrapolated time more
+    than ``max_gci`` from the fine-grid time. A limit reached on no grid is not flagged: there is
+    no time to be grid sensitive.
     """
     g = grid_convergence(cells, vals)
     rc = g.get("relative_change")
     reached_any = any(v is not None for v in g["values"])
-    reasons = []
-    if g["convergence"] == "divergent":
-        reasons.append("divergent: the change does not shrink as the grid is refined")
-    elif g["convergence"] == "oscillatory":
-        lo, hi = g["oscillation_range"]
-        reasons.append(f"oscillatory: the value lies between {lo:.4g} s and {hi:.4g} s on these grids")
-    elif g["convergence"] == "incomplete" and reached_any:
-        reasons.append("the limit is reached on some grids but not on others")
-    if rc is not None and flag_change(rc, threshold):
-        reasons.append(f"the two finest grids differ by {rc:.1%}, above {threshold:.0%}")
+    reasons = grid_flags(g, threshold, GCI_THRESHOLD if max_gci is None else max_gci)
     osc = g.get("oscillation_range")
     return {"cells_m": g.get("h"), "values_s": g.get("values"),
             "relative_change": None if rc is None else round(rc, 4), "flagged": bool(reasons),
-            "flag_reason": "; ".join(reasons) or None, "reached_on_any_grid": reached_any,
+            "flag_reason": "; ".join(reasons) or None, "flag_reasons": reasons, "reached_on_any_grid": reached_any,
             "convergence": g.get("convergence") if reached_any else "not reached",
             "convergence_ratio": _r(g.get("convergence_ratio")),
             "r21": _r(g.get("r21")), "r32": _r(g.get("r32")), "order": _r(g.get("p")),

@@ -680,7 +680,8 @@ def _credibility(scenarios_in, plotdata, figs) -> list[dict[str, Any]]:
                     "values_s": values, "relative_change": c.get("relative_change"),
                     "flagged": bool(c.get("flagged")), "convergence": c.get("convergence"),
                     "order": c.get("order"), "extrapolated_s": c.get("extrapolated_s"),
-                    "gci": c.get("gci"), "note": _sentence(c.get("note"))})
+                    "gci": c.get("gci"), "note": _sentence(c.get("note")),
+                    "flag_reason": c.get("flag_reason")})
         pd_cred = {lid: v for lid, v in ((plotdata.get(sid) or {}).get("credibility") or {}).items()
                    if lid not in skip}
         figures = []
@@ -700,7 +701,7 @@ def _credibility(scenarios_in, plotdata, figs) -> list[dict[str, Any]]:
                 uid=f"fig-cred-{sid}-{start}"))
         out.append({"scenario": sid, "name": _named(sc), "end_s": sc.get("end_s"),
                     "resolutions": resolutions, "threshold": cred.get("threshold"),
-                    "method": cred.get("method"), "rows": rows, "not_reached": not_reached,
+                    "max_gci": cred.get("max_gci"), "method": cred.get("method"), "rows": rows, "not_reached": not_reached,
                     "n_flagged": sum(1 for r in rows if r["flagged"]),
                     "figures": figures, "anchor": f"cred{i + 1}"})
     return out
