@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 
 from .egress import summary as egress_summary
+from .probability_text import percent
 from .stats import rounded as _t, share, summarise
 from .verdict import Verdict
 
@@ -81,7 +82,7 @@ def verdict_text(r: RouteResult) -> str:
                   "understated): " + "; ".join(r.partial) + ".")
     undetected = ~np.isfinite(r.outcome.components["detection"])
     if undetected.any():
-        words += (f" In {undetected.mean():.0%} of draws the detector does not respond before the histories end"
+        words += (f" In {percent(float(undetected.mean()))} of draws the detector does not respond before the histories end"
                   " (such draws fail where a limit is reached and are undecided otherwise).")
     return words
 

@@ -87,6 +87,7 @@ def _route_rows(comparison: Mapping[str, Any], sc: Mapping[str, Any]) -> list[di
                          "cells": [_cell(k, values[k], sc["end_s"].get(label), change.get(k), extras,
                                          rt["values"][base][k]) for k in ROUTE_HEADS],
                          "bounds": extras.get("p_fail_bounds"), "ci95": extras.get("p_fail_ci95"),
+                         "p_fail": values.get("p_fail"),
                          "samples_used": extras.get("samples_used"), "reason": extras.get("verdict_reason")})
         if not rt["changed"]:            # one row for all runs keeps the page short
             runs = [{**runs[0], "label": "all"}]
