@@ -33,8 +33,10 @@ guarantee hold exactly, not asymptotically. The union bound needs no independenc
 between looks. In this project the draws of a larger look are neither independent of
 nor an extension of the smaller one: :func:`egressmargin.pipeline.draw_scenario_factors`
 and :func:`egressmargin.assess.egress_uniforms` draw fresh arrays of the larger size from
-the same seeded streams, so the first input's draws are a prefix of the larger look's
-and the others are shifted parts of the same stream; the bound holds either way.
+the same seeded generators, so an array drawn first from its generator is a prefix of the
+larger look's, while one drawn after another array of the same generator is a shifted
+part of its stream (the looks are partly nested, partly overlapping, neither independent
+nor a plain extension); the union bound holds whatever the dependence.
 Stopping early is only ever to pass or fail with the look's own corrected interval, or
 to say "indeterminate" (never an error). The operating characteristic is measured in
 ``bench/operating_characteristic.py`` and checked in ``tests/test_sequential.py``.
