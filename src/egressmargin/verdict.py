@@ -311,9 +311,13 @@ class Verdict:
     method: str = CI_METHOD           # how ci95 was computed, in words (results' p_fail_method)
 
     def as_results(self) -> dict:
-        return {"p_fail": round(self.p_fail, 4),
-                "p_fail_bounds": {"low": round(self.p_fail_low, 4), "high": round(self.p_fail, 4)},
-                "p_fail_ci95": [round(self.ci95[0], 4), round(self.ci95[1], 4)],
+        # Six decimals (project choice): p_fail = k/n with n up to 16000 draws is a multiple of
+        # 1/16000 = 0.0000625, and the report writes these numbers with as many significant
+        # figures as it takes to tell them apart, so four decimals would blur both. The
+        # interval's ends are rounded outward, never narrowing it.
+        return {"p_fail": round(self.p_fail, 6),
+                "p_fail_bounds": {"low": round(self.p_fail_low, 6), "high": round(self.p_fail, 6)},
+                "p_fail_ci95": [math.floor(self.ci95[0] * 1e6) / 1e6, math.ceil(self.ci95[1] * 1e6) / 1e6],
                 "samples_used": int(self.samples_used), "verdict": self.verdict,
                 "verdict_reason": self.reason}
 
