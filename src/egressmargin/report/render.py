@@ -702,7 +702,8 @@ def _credibility(scenarios_in, plotdata, figs) -> list[dict[str, Any]]:
                 uid=f"fig-cred-{sid}-{start}"))
         out.append({"scenario": sid, "name": _named(sc), "end_s": sc.get("end_s"),
                     "resolutions": resolutions, "threshold": cred.get("threshold"),
-                    "max_gci": cred.get("max_gci"), "method": cred.get("method"), "rows": rows, "not_reached": not_reached,
+                    "max_gci": cred.get("max_gci"),
+                    "method": cred.get("method"), "rows": rows, "not_reached": not_reached,
                     "n_flagged": sum(1 for r in rows if r["flagged"]),
                     "figures": figures, "anchor": f"cred{i + 1}"})
     return out
