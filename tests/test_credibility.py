@@ -327,3 +327,74 @@ def test_limit_reached_on_no_grid_is_not_flagged():
     # reached on some grids only: the result depends on the grid, flagged
     e = _gci_entry([0.1, 0.15, 0.225], [None, 310.0, 320.0], 0.10)
     assert e["flagged"] is True and "some grids" in e["flag_reason"]
+
+
+def test_low_order_triple_is_flagged_for_every_reason():
+    """Issue 21's case: 200 / 209 / 219 s on cells 0.05 / 0.10 / 0.20 m.
+
+    Celik et al. (2008) written out here independently of the module: r21 = r32 = 2, so
+    Eq. 3 has q = 0 and p = ln(eps32/eps21)/ln r = ln(10/9)/ln 2 = 0.152; Eq. 4
+    phi_ext = (r^p phi1 - phi2)/(r^p - 1) = (10/9 * 200 - 209)/(1/9) = 119 s; Eq. 5a
+    e_a = 9/200 = 4.5 %; Eq. 5c GCI_fine = 1.25 e_a/(r^p - 1) = 1.25 * 0.045 * 9 = 50.6 %.
+    The fine pair differs by only 4.5 % (below 10 %), but the GCI (50.6 % > 10 %), the
+    order (0.15 < 0.5) and the extrapolated shift (|119 - 200|/200 = 40.5 % > 10 %) each flag it.
+    """
+    from egressmargin.credibility import GCI_THRESHOLD, ORDER_HIGH, ORDER_LOW, grid_flags
+    from egressmargin.pipeline import _gci_entry
+
+    cells, vals = [0.05, 0.10, 0.20], [200.0, 209.0, 219.0]
+    eps21, eps32, r = 209.0 - 200.0, 219.0 - 209.0, 2.0
+    p = math.log(eps32 / eps21) / math.log(r)
+    rp = r ** p
+    ext = (rp * 200.0 - 209.0) / (rp - 1.0)
+    gci = 1.25 * (eps21 / 200.0) / (rp - 1.0)
+    assert p == pytest.approx(0.152, abs=5e-4) and ext == pytest.approx(119.0, abs=1e-9)
+    assert gci == pytest.approx(0.50625, abs=1e-12)
+
+    e = _gci_entry(cells, vals, CHANGE_THRESHOLD)
+    assert e["order"] == pytest.approx(p, abs=1e-4) and e["extrapolated_s"] == pytest.approx(ext, abs=1e-4)
+    assert e["gci_fine21"] == pytest.approx(gci, abs=1e-6) and e["relative_change"] == pytest.approx(0.045)
+    assert e["flagged"] is True
+    assert len(e["flag_reasons"]) == 3
+    assert "GCI 50.6%" in e["flag_reason"] and "apparent order 0.15" in e["flag_reason"]
+    assert "extrapolated value 119 s" in e["flag_reason"]
+    assert (GCI_THRESHOLD, ORDER_LOW, ORDER_HIGH) == (0.10, 0.5, 4.0)
+    # a looser GCI limit (60 %) leaves only the order as a reason
+    only = grid_flags(grid_convergence(cells, vals), 0.10, 0.60)
+    assert len(only) == 1 and "apparent order" in only[0]
+
+
+def test_high_apparent_order_is_flagged():
+    """Closed form t = 100 + 50 h^5 on h = 0.1, 0.2, 0.4: p = 5 > 4, GCI tiny, still flagged."""
+    from egressmargin.pipeline import _gci_entry
+
+    cells = [0.1, 0.2, 0.4]
+    vals = [100.0 + 50.0 * h ** 5 for h in cells]
+    e = _gci_entry(cells, vals, CHANGE_THRESHOLD)
+    assert e["order"] == pytest.approx(5.0, abs=1e-6) and e["gci_fine21"] < 0.10
+    assert e["flagged"] is True and e["flag_reasons"] == [r for r in e["flag_reasons"] if "apparent order" in r]
+
+
+def test_second_order_triple_within_limits_is_not_flagged():
+    """Closed form t = 300 + 200 h^2 on 0.05 / 0.1 / 0.2 m: p = 2, GCI 1.25*0.02/3 = 0.83 % -> clean."""
+    from egressmargin.pipeline import _gci_entry
+
+    cells = [0.05, 0.10, 0.20]
+    e = _gci_entry(cells, [300.0 + 200.0 * h ** 2 for h in cells], CHANGE_THRESHOLD)
+    assert e["order"] == pytest.approx(2.0, abs=1e-6) and e["flagged"] is False and e["flag_reasons"] == []
+
+
+def test_max_gci_is_a_study_key(tmp_path):
+    """credibility: {max_gci: 60 percent} is read into Study.max_gci (a fraction)."""
+    import numpy as np
+    import yaml
+
+    from egressmargin.study import load_study
+    from engine_helpers import write_study
+
+    t = np.arange(0.0, 61.0, 10.0)
+    path = write_study(tmp_path, t, {"T": ("degC", 20 + t)}, [{"id": "a", "temperature": "T"}])
+    doc = yaml.safe_load(path.read_text())
+    doc["credibility"] = {"max_gci": "60 percent"}
+    path.write_text(yaml.safe_dump(doc))
+    assert load_study(path).max_gci == pytest.approx(0.60)

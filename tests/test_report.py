@@ -83,11 +83,12 @@ def test_fmt_time_rounding_and_sign():
 
 
 def test_fmt_prob_never_prints_a_small_risk_as_zero():
-    assert fmt.fmt_prob(0.0312) == "0.031"
-    assert fmt.fmt_prob(0.0) == "0.000"
-    assert fmt.fmt_prob(1.0) == "1.000"
-    assert fmt.fmt_prob(0.0004) == "<\u00a00.001"
-    assert fmt.fmt_prob(0.9996) == ">\u00a00.999"
+    """One way to write a probability (probability_text): a percentage, significant figures."""
+    assert fmt.fmt_prob(0.0312) == "3.1\u00a0%"
+    assert fmt.fmt_prob(0.0) == "0\u00a0%"
+    assert fmt.fmt_prob(1.0) == "100\u00a0%"
+    assert fmt.fmt_prob(0.0004) == "0.040\u00a0%"
+    assert fmt.fmt_prob(0.9996) == "99.96\u00a0%"
     assert fmt.fmt_prob(None) == "n/a"
     with pytest.raises(ValueError):
         fmt.fmt_prob(1.2)
@@ -153,10 +154,9 @@ def test_summary_rows_print_the_results_numbers(rendered, fixture_data):
     for sc in results["scenarios"]:
         end = sc["end_s"]
         for rt in sc["routes"]:
-            lo, hi = rt["p_fail_ci95"]
             row = "".join([
-                sc["id"], rt["id"], marks[rt["verdict"]], fmt.fmt_prob(rt["p_fail"]),
-                "(", fmt.fmt_prob(lo), "–", fmt.fmt_prob(hi), ")",
+                sc["id"], rt["id"], marks[rt["verdict"]],
+                fmt.fmt_prob_ci(rt["p_fail"], rt["p_fail_ci95"], results["acceptance"]["max_p_fail"]),
                 fmt.fmt_time(rt["rset_s"]["p95"]), fmt.fmt_time(rt["aset_s"]["p05"], end),
                 fmt.fmt_route_margin(route_margin(rt)),
             ])

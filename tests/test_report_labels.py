@@ -72,7 +72,10 @@ def test_route_id_is_printed_once_in_the_egress_table():
 def test_histogram_title_names_the_limit_and_the_verdict():
     txt = plots.histogram_title(1.0, 0.05, "fail")
     assert "acceptable" not in txt
-    assert "acceptance limit 0.050" in txt and "verdict FAIL" in txt
+    assert "acceptance limit 5.0\u00a0%" in txt and "verdict FAIL" in txt
+    # the interval beside the estimate, written by the one probability function
+    assert "= 0.15\u00a0% (0.020\u20130.52\u00a0%)" in plots.histogram_title(0.0015, 0.05, "pass",
+                                                                            p_fail_ci95=[0.0002, 0.0052])
     two = plots.histogram_title(0.0, 0.05, "pass", n_open=1992, n_draws=2000)
     assert two.count("\n") == 1 and "1992 of 2000 draws" in two.splitlines()[1]
 

@@ -2,8 +2,9 @@
 
 Histories are synthetic ramps written in each test (invented numbers with closed-form
 crossing times, not measurements). The interval on p_fail is checked against
-scipy.stats.binomtest(...).proportion_ci(method="wilson"), an implementation outside
-the project of Wilson (1927).
+scipy.stats.binomtest(...).proportion_ci(method="exact"), an implementation outside
+the project of Clopper & Pearson (1934); ``wilson_interval`` (kept as a helper) against
+method="wilson" (Wilson 1927).
 """
 
 from __future__ import annotations
@@ -12,7 +13,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from egressmargin.verdict import FAIL, PASS, UNKNOWN, Z_95, decide, draw_outcomes, needs_more_samples, wilson_interval
+from egressmargin.verdict import (FAIL, PASS, UNKNOWN, Z_95, decide, draw_outcomes, look_level, needs_more_samples,
+                                  planned_looks, wilson_interval)
 from engine_helpers import results_for, write_study
 
 
@@ -131,7 +133,7 @@ def test_ignition_outside_the_data_is_an_input_error(tmp_path, capsys):
 
 
 def test_sampling_error_is_reported_and_more_draws_settle_it():
-    """p_fail near the limit: the Wilson interval straddles it, so more draws are asked for."""
+    """p_fail near the limit: the interval straddles it, so more draws are asked for."""
     rng = np.random.default_rng(0)
     n = 2000
     aset = np.full(n, 200.0)
@@ -139,8 +141,13 @@ def test_sampling_error_is_reported_and_more_draws_settle_it():
     assert needs_more_samples(aset, rset, 600.0, 0.05)
     v = decide(aset, rset, 600.0, 0.05, max_samples=n)
     assert v.verdict == "indeterminate" and "raise max_samples" in v.reason
-    ref = stats.binomtest(int((rset > aset).sum()), n).proportion_ci(method="wilson")
+    # one look: the Clopper-Pearson 95 % interval (scipy's "exact", Clopper & Pearson 1934)
+    ref = stats.binomtest(int((rset > aset).sum()), n).proportion_ci(method="exact")
     assert v.ci95 == pytest.approx((ref.low, ref.high))
+    # four planned looks: each at 1 - 0.05/4 = 98.75 % (Bonferroni over the looks)
+    v4 = decide(aset, rset, 600.0, 0.05, looks=4)
+    ref4 = stats.binomtest(int((rset > aset).sum()), n).proportion_ci(confidence_level=0.9875, method="exact")
+    assert v4.ci95 == pytest.approx((ref4.low, ref4.high)) and "98.75 % interval" in v4.reason
 
 
 def test_pipeline_draws_more_samples_where_the_interval_straddles(tmp_path):
@@ -162,8 +169,11 @@ def test_pipeline_draws_more_samples_where_the_interval_straddles(tmp_path):
     # uniform premovement above 200 - 10 - 5 - 10/0.91 s (closed form), within 4 binomial sd
     p = (177.9 - (200.0 - 10.0 - 5.0 - 10 / 0.91)) / 77.9
     assert r["p_fail"] == pytest.approx(p, abs=4 * np.sqrt(p * (1 - p) / n))
-    ref = stats.binomtest(round(r["p_fail"] * n), n).proportion_ci(confidence_level=0.95, method="wilson")
-    assert r["p_fail_ci95"] == pytest.approx([ref.low, ref.high], abs=1e-4)   # scipy's Wilson interval
+    looks = planned_looks(500, 4000)                  # 500, 1000, 2000, 4000: four planned looks
+    assert n in looks and look_level(len(looks)) == pytest.approx(1 - 0.05 / 4)
+    ref = stats.binomtest(round(r["p_fail"] * n), n).proportion_ci(confidence_level=1 - 0.05 / 4, method="exact")
+    assert r["p_fail_ci95"] == pytest.approx([ref.low, ref.high], abs=1e-4)   # scipy's Clopper-Pearson interval
+    assert "4 planned looks" in r["p_fail_method"] and "Clopper-Pearson" in r["p_fail_method"]
 
 
 def test_fixed_inputs_give_a_point_interval(tmp_path):

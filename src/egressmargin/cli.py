@@ -17,6 +17,7 @@ from pathlib import Path
 
 from . import __version__
 from .errors import InputError
+from .probability_text import probability
 
 
 def _positive_int(text: str) -> int:
@@ -243,7 +244,7 @@ def _summary(out: Path, res: dict) -> None:
             rset_text = ("not detected" if rset_p50 is None and (r.get("share_not_detected") or 0) >= 0.5
                          else t(rset_p50))
             rows.append((sc["id"], r["id"], rset_text, t(r["aset_s"]["p50"]),
-                         margin_text, f"{r['p_fail']:.3f}",
+                         margin_text, probability(r["p_fail"], r.get("p_fail_ci95")),
                          r["verdict"].upper() + ("" if r.get("criteria_assessed", True) else " (nothing assessed)")))
         if not sc["routes"]:
             for loc in sc["locations"]:

@@ -45,7 +45,11 @@ __all__ = [
     "MIN_REFINEMENT_RATIO",
     "RECOMMENDED_REFINEMENT_RATIO",
     "SAFETY_FACTOR_THREE_GRIDS",
+    "GCI_THRESHOLD",
+    "ORDER_LOW",
+    "ORDER_HIGH",
     "flag_change",
+    "grid_flags",
     "grid_convergence",
     "refinement_problems",
     "refinement_ratio",
@@ -68,6 +72,23 @@ RECOMMENDED_REFINEMENT_RATIO: float = 1.3
 #: Relative change of a time to limit between the two finest grids above which the
 #: result is flagged as grid sensitive: 10 % (common practice, no single source).
 CHANGE_THRESHOLD: float = 0.10
+
+#: Fine-grid GCI above which a result is flagged as grid sensitive, and the largest
+#: relative change from the fine-grid value to the extrapolated one: 10 % (project
+#: choice, the same figure as CHANGE_THRESHOLD; configurable as credibility.max_gci).
+GCI_THRESHOLD: float = 0.10
+
+#: Apparent orders outside [ORDER_LOW, ORDER_HIGH] are flagged. The schemes of the fire
+#: models in use are usually second order in space (formal order 2, common practice), and
+#: an apparent order far from the formal one says the grids are not in the asymptotic
+#: range, where Richardson extrapolation and the GCI hold (Celik et al. 2008, Step 3 and
+#: the discussion of Table 1; Roache 1994). Below 0.5 (a quarter of 2) the change barely
+#: shrinks with refinement and extrapolation moves the value far (order 0.15 moves a
+#: 200 s time to 119 s); above 4 (twice 2) the change shrinks faster than any scheme in
+#: use can explain, so the small GCI is not to be trusted either. The bounds 0.5 and 4
+#: are a project choice.
+ORDER_LOW: float = 0.5
+ORDER_HIGH: float = 4.0
 
 # Differences smaller than this fraction of the values' magnitude count as zero
 # (round-off), and the fixed-point iteration for p stops when a step is below _P_TOL.
@@ -548,3 +569,61 @@ def flag_change(relative_change: float | None, threshold: float = CHANGE_THRESHO
     if _is_missing(relative_change):
         return True
     return abs(float(relative_change)) > float(threshold)  # type: ignore[arg-type]
+
+
+def grid_flags(g: dict[str, Any], max_change: float = CHANGE_THRESHOLD,
+               max_gci: float = GCI_THRESHOLD) -> list[str]:
+    """Every reason, in words, to flag one grid-sensitivity result (empty when there is none).
+
+    Parameters
+    ----------
+    g : dict
+        The output of :func:`grid_convergence`.
+    max_change : float
+        Largest relative change between the two finest grids [-] (0.10 = 10 %).
+    max_gci : float
+        Largest fine-grid GCI [-], and largest relative change |phi_ext21 - phi1| / |phi1|
+        from the fine-grid value to the extrapolated one [-].
+
+    Returns
+    -------
+    list of str
+        One sentence per reason: a divergent or oscillatory triple; a value missing on
+        some grids but not all; the fine-pair change above ``max_change``; for monotone
+        convergence, GCI_fine above ``max_gci`` (Celik et al. 2008, Eq. 5c), an apparent
+        order outside [ORDER_LOW, ORDER_HIGH] (Celik et al. 2008, Eq. 3; see the
+        constants), or an extrapolated value (Eq. 4) more than ``max_gci`` from the
+        fine-grid value. A value reached on no grid gives no reason (nothing to be grid
+        sensitive).
+
+    Examples
+    --------
+    >>> g = grid_convergence([0.05, 0.10, 0.20], [200.0, 209.0, 219.0])
+    >>> len(grid_flags(g))
+    3
+    """
+    reached_any = any(v is not None for v in g["values"])
+    reasons: list[str] = []
+    conv = g.get("convergence")
+    if conv == "divergent":
+        reasons.append("divergent: the change does not shrink as the grid is refined")
+    elif conv == "oscillatory":
+        lo, hi = g["oscillation_range"]
+        reasons.append(f"oscillatory: the value lies between {lo:.4g} s and {hi:.4g} s on these grids")
+    elif conv == "incomplete" and reached_any:
+        reasons.append("the limit is reached on some grids but not on others")
+    rc = g.get("relative_change")
+    if rc is not None and flag_change(rc, max_change):
+        reasons.append(f"the two finest grids differ by {rc:.1%}, above {max_change:.0%}")
+    gci, p, ext, phi1 = g.get("gci_fine21"), g.get("p"), g.get("phi_ext21"), g["values"][0]
+    if not _is_missing(gci) and gci > max_gci:
+        reasons.append(f"fine-grid GCI {gci:.1%}, above {max_gci:.0%}")
+    if not _is_missing(p) and not ORDER_LOW <= p <= ORDER_HIGH:
+        reasons.append(f"apparent order {p:.2f}, outside {ORDER_LOW:g} to {ORDER_HIGH:g} (formal order of "
+                       "the usual schemes: 2), so the grids are not in the asymptotic range")
+    if not _is_missing(ext) and phi1 not in (None, 0.0):
+        shift = abs(ext - phi1) / abs(phi1)
+        if shift > max_gci:
+            reasons.append(f"the extrapolated value {ext:.4g} s differs from the fine-grid {phi1:.4g} s "
+                           f"by {shift:.1%}, above {max_gci:.0%}")
+    return reasons

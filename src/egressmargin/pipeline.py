@@ -18,7 +18,7 @@ from . import __version__, aset, assess, outputs, plausibility
 from .plausibility import Finding
 from .clock import shift_to_ignition
 from .egress import summary as egress_summary
-from .credibility import flag_change, grid_convergence
+from .credibility import GCI_THRESHOLD, grid_convergence, grid_flags
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
 from .stats import rounded as _t, share, summarise
@@ -27,7 +27,7 @@ from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
 from .yamlfile import load_located
 from .records import RouteResult, route_json
-from .verdict import CI_METHOD, decide, draw_outcomes, needs_more_samples, worst_outcome
+from .verdict import ci_method, decide, draw_outcomes, planned_looks, sequential, worst_outcome
 
 #: Samples used to draw the corrected p05-p95 band on the report's time plots.
 BAND_SAMPLES = 200
@@ -408,27 +408,35 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                                         study.elements) if routes_here else None
     more = _MoreSamples(table, prep, crit, seed, index, raw)
     s_max = max(study.max_samples, S)
+    schedule = planned_looks(S, s_max)      # the sequential rule's planned looks (verdict.py)
     bigger: dict[int, object] = {}
     sensitivities = None
     for ri, route in routes_here:
-        eg, fac_r, s_used = egress, factors, S
-        out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, eg.routes[route.id])
         # Settle the statistics by sampling more where the interval straddles the limit: the
-        # scenario's ASET and its (shared) egress again with twice the draws, same seed streams.
-        while s_used < s_max and needs_more_samples(out.aset, out.rset, end, study.max_p_fail):
-            s_used = min(2 * s_used, s_max)
-            fac_r, loc_big = more.at(s_used)
-            if s_used not in bigger:
-                bigger = {s_used: egress_at(s_used, fac_r)}        # keep one count: memory
-            eg = bigger[s_used]
-            out = assess.outcome(route, prep, loc_big, raw_aset, governing_raw, eg.routes[route.id])
+        # scenario's ASET and its (shared) egress again at the next planned look (twice the
+        # draws, same seed streams); each look's interval is corrected for the number of looks.
+        def draw_at(n: int, route=route):
+            if n == S:
+                fac_n, loc_n, eg_n = factors, loc_aset, egress
+            else:
+                fac_n, loc_n = more.at(n)
+                if n not in bigger:
+                    bigger.clear()                                   # keep one count: memory
+                    bigger[n] = egress_at(n, fac_n)
+                eg_n = bigger[n]
+            o = assess.outcome(route, prep, loc_n, raw_aset, governing_raw, eg_n.routes[route.id])
+            return o.aset, o.rset, None, o, eg_n, fac_n
+
+        s_used, (_, _, _, out, eg, fac_r) = sequential(schedule, draw_at, end, study.max_p_fail)
         margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
         route_locs = [locations[prep.ids.index(loc)] for loc in route.exposed_at]
         assessed_any = any(c.get("status") == "assessed" for loc in route_locs for c in loc["criteria"].values())
-        v = decide(out.aset, out.rset, end, study.max_p_fail, assessed=assessed_any, max_samples=s_max)
+        v = decide(out.aset, out.rset, end, study.max_p_fail, assessed=assessed_any, max_samples=s_max,
+                   looks=len(schedule), schedule=schedule)
         la = out.extras.get("location_aware")
         v_la = None if la is None else decide(la.aset_s, la.leave_s, end, study.max_p_fail, assessed=assessed_any,
-                                              outcomes=worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end)))
+                                              outcomes=worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end)),
+                                              looks=len(schedule), schedule=schedule)
         if sensitivities is None:          # every route's sweep in one flow run of the scenario
             sf, si, sa = sweep
             sensitivities = assess.scenario_sensitivity(specs_here, prep, sf, si, sa,
@@ -630,6 +638,7 @@ def credibility(loaded: Loaded, index: int, crit):
     if len(runs) < 2:
         return None, {}
     threshold = loaded.study.max_grid_change
+    max_gci = getattr(loaded.study, "max_gci", GCI_THRESHOLD)
     per_run = []
     for cell, d in runs:
         p = aset.prepare(d, crit, spec.ambient_temperature_c, spec.ambient_o2)
@@ -643,41 +652,35 @@ def credibility(loaded: Loaded, index: int, crit):
             if not all(res[cid].assessed[li] for _, res, _ in per_run):
                 continue
             vals = [_t(res[cid].times[li, 0]) for _, res, _ in per_run]
-            entry["criteria"][cid] = _gci_entry(cells, vals, threshold)
+            entry["criteria"][cid] = _gci_entry(cells, vals, threshold, max_gci)
             plot[cid] = {"cells": cells, "values_s": vals, "extrapolated_s": entry["criteria"][cid]["extrapolated_s"]}
         vals = [_t(a[li]) for _, _, a in per_run]
-        entry["aset"] = _gci_entry(cells, vals, threshold)
+        entry["aset"] = _gci_entry(cells, vals, threshold, max_gci)
         plot["aset"] = {"cells": cells, "values_s": vals, "extrapolated_s": entry["aset"]["extrapolated_s"]}
         locs.append(entry)
         plots[lid] = plot
-    return {"resolutions": cells, "threshold": threshold, "locations": locs,
+    return {"resolutions": cells, "threshold": threshold, "max_gci": max_gci, "locations": locs,
             "method": "Celik et al. (2008), J. Fluids Eng. 130, 078001; Roache (1994)"}, plots
 
 
-def _gci_entry(cells, vals, threshold) -> dict:
+def _gci_entry(cells, vals, threshold, max_gci=None) -> dict:
     """One results.json grid-sensitivity entry (Celik et al. 2008, Steps 1-5) and whether to flag it.
 
-    Flagged: a divergent or oscillatory triple (whatever the size of the change), a limit reached
-    on some grids but not on others, or a change between the two finest grids above ``threshold``.
-    A limit reached on no grid is not flagged: there is no time to be grid sensitive.
+    Flagged (``credibility.grid_flags``, every reason listed in ``flag_reason``): a divergent or
+    oscillatory triple (whatever the size of the change), a limit reached on some grids but not on
+    others, a change between the two finest grids above ``threshold``, and for a monotone triple a
+    fine-grid GCI above ``max_gci``, an apparent order outside 0.5-4 or an extrapolated time more
+    than ``max_gci`` from the fine-grid time. A limit reached on no grid is not flagged: there is
+    no time to be grid sensitive.
     """
     g = grid_convergence(cells, vals)
     rc = g.get("relative_change")
     reached_any = any(v is not None for v in g["values"])
-    reasons = []
-    if g["convergence"] == "divergent":
-        reasons.append("divergent: the change does not shrink as the grid is refined")
-    elif g["convergence"] == "oscillatory":
-        lo, hi = g["oscillation_range"]
-        reasons.append(f"oscillatory: the value lies between {lo:.4g} s and {hi:.4g} s on these grids")
-    elif g["convergence"] == "incomplete" and reached_any:
-        reasons.append("the limit is reached on some grids but not on others")
-    if rc is not None and flag_change(rc, threshold):
-        reasons.append(f"the two finest grids differ by {rc:.1%}, above {threshold:.0%}")
+    reasons = grid_flags(g, threshold, GCI_THRESHOLD if max_gci is None else max_gci)
     osc = g.get("oscillation_range")
     return {"cells_m": g.get("h"), "values_s": g.get("values"),
             "relative_change": None if rc is None else round(rc, 4), "flagged": bool(reasons),
-            "flag_reason": "; ".join(reasons) or None, "reached_on_any_grid": reached_any,
+            "flag_reason": "; ".join(reasons) or None, "flag_reasons": reasons, "reached_on_any_grid": reached_any,
             "convergence": g.get("convergence") if reached_any else "not reached",
             "convergence_ratio": _r(g.get("convergence_ratio")),
             "r21": _r(g.get("r21")), "r32": _r(g.get("r32")), "order": _r(g.get("p")),
@@ -741,7 +744,8 @@ def build_results(loaded: Loaded, options: RunOptions):
         "uncertainty": loaded.table.as_results() if loaded.table else None,
         "egress_method": egress_method(),
         "acceptance": {"max_p_fail": study.max_p_fail, "max_samples": study.max_samples,
-                       "interval_method": CI_METHOD},
+                       "interval_method": ci_method(len(planned_looks(S, max(study.max_samples, S))),
+                                                    planned_looks(S, max(study.max_samples, S)))},
         "raw_only": bool(options.raw_only),
         "assumptions": assumptions(loaded),
         "warnings": [str(w) for w in loaded.warnings] + [w for sc in scenarios for w in sc["warnings"]],

@@ -14,8 +14,9 @@ from typing import Any
 import numpy as np
 
 from .egress import summary as egress_summary
+from .probability_text import percent
 from .stats import rounded as _t, share, summarise
-from .verdict import CI_METHOD, Verdict
+from .verdict import Verdict
 
 __all__ = ["RouteResult", "route_json", "VERDICT_BASIS"]
 
@@ -81,7 +82,7 @@ def verdict_text(r: RouteResult) -> str:
                   "understated): " + "; ".join(r.partial) + ".")
     undetected = ~np.isfinite(r.outcome.components["detection"])
     if undetected.any():
-        words += (f" In {undetected.mean():.0%} of draws the detector does not respond before the histories end"
+        words += (f" In {percent(float(undetected.mean()))} of draws the detector does not respond before the histories end"
                   " (such draws fail where a limit is reached and are undecided otherwise).")
     return words
 
@@ -160,7 +161,7 @@ def route_json(r: RouteResult) -> dict:
         entry["share_not_detected"] = round(share(undetected), 4)
     entry["criteria_assessed"] = r.criteria_assessed
     entry.update(r.verdict.as_results())
-    entry["p_fail_method"] = CI_METHOD
+    entry["p_fail_method"] = r.verdict.method
     entry["share_undecided"] = round(r.verdict.share_unknown, 4)
     entry["verdict_basis"] = VERDICT_BASIS
     if r.location_aware_verdict is not None:

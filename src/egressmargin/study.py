@@ -208,6 +208,10 @@ class Study:
     #: Relative change of a time to limit between the two finest grids above which it is
     #: flagged (10 %: common practice, no single source).
     max_grid_change: float = 0.10
+    #: Fine-grid GCI (Celik et al. 2008, Eq. 5c) above which a time to limit is flagged, and
+    #: the largest change from the fine-grid time to the extrapolated one (10 %: project
+    #: choice, the same figure as max_grid_change).
+    max_gci: float = 0.10
     warnings: list[Problem] = field(default_factory=list)
     #: Named path elements (top-level `elements:`), by id.
     elements: dict[str, "NamedElement"] = field(default_factory=dict)
@@ -397,14 +401,20 @@ def check_study(path: str | Path, criteria_override: str | None = None
                 else:
                     max_p_fail = float(v)
     max_grid_change = 0.10
+    max_gci = 0.10
     if "credibility" in data:
         cred = data["credibility"]
-        if ck.keys(cred, ("credibility",), {"max_grid_change"}, "credibility"):
+        if ck.keys(cred, ("credibility",), {"max_grid_change", "max_gci"}, "credibility"):
             if "max_grid_change" in cred:
                 v = ck.quantity(cred["max_grid_change"], ("credibility", "max_grid_change"), "fraction",
                                 positive=True, default_unit="dimensionless")
                 if v is not None:
                     max_grid_change = v
+            if "max_gci" in cred:
+                v = ck.quantity(cred["max_gci"], ("credibility", "max_gci"), "fraction",
+                                positive=True, default_unit="dimensionless")
+                if v is not None:
+                    max_gci = v
     report = _report_options(ck, data.get("report"))
     paper = ck.text(data.get("paper"), ("paper",), default="A4")
     if paper.lower() not in ("a4", "letter"):
@@ -430,7 +440,7 @@ def check_study(path: str | Path, criteria_override: str | None = None
                  prepared_by=ck.text(data.get("prepared_by"), ("prepared_by",)),
                  prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),
                  paper="letter" if paper.lower() == "letter" else "A4", max_grid_change=max_grid_change,
-                 warnings=[p for p in ck.problems if p.warning], elements=named,
+                 max_gci=max_gci, warnings=[p for p in ck.problems if p.warning], elements=named,
                  report=report), scenarios, ck.problems
 
 

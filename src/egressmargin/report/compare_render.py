@@ -17,7 +17,7 @@ from typing import Any, Mapping
 
 from .. import outputs
 from ..errors import InputError, Problem
-from .format import MINUS, NBSP, fmt_num, fmt_prob, fmt_time, fmt_verdict
+from .format import MINUS, NBSP, fmt_num, fmt_prob, fmt_prob_ci, fmt_time, fmt_verdict
 from .render import CRITERION_LABELS, _environment, page_size, templates_dir, write_pdf
 
 #: Column heads of the route table, in the order of ``compare.ROUTE_VALUES``.
@@ -99,7 +99,7 @@ def _run_note(r: Mapping[str, Any]) -> str | None:
         parts.append(f"p_fail bounds {fmt_prob(r['bounds'].get('low'))}\u2013{fmt_prob(r['bounds'].get('high'))}.")
     if r.get("ci95"):
         used = f" ({r['samples_used']} samples)" if r.get("samples_used") else ""
-        parts.append(f"95 % interval {fmt_prob(r['ci95'][0])}\u2013{fmt_prob(r['ci95'][1])}{used}.")
+        parts.append(f"p_fail {fmt_prob_ci(r.get('p_fail'), r['ci95'])}{used}.")
     if r.get("reason"):
         parts.append(str(r["reason"]))
     return f"{r['label']}: " + " ".join(parts) if parts else None
@@ -118,6 +118,7 @@ def _route_rows(comparison: Mapping[str, Any], sc: Mapping[str, Any]) -> list[di
                          "cells": [_cell(k, values[k], sc["end_s"].get(label), change.get(k), extras,
                                          rt["values"][base][k]) for k in ROUTE_HEADS],
                          "bounds": extras.get("p_fail_bounds"), "ci95": extras.get("p_fail_ci95"),
+                         "p_fail": values.get("p_fail"),
                          "samples_used": extras.get("samples_used"), "reason": extras.get("verdict_reason")})
         if not rt["changed"]:            # one row for all runs keeps the page short
             runs = [{**runs[0], "label": "all"}]

@@ -21,6 +21,8 @@ import math
 from datetime import datetime
 from typing import Any, Mapping
 
+from ..probability_text import percent, probability
+
 NBSP = "\u00a0"
 MINUS = "\u2212"
 DASH = "\u2013"
@@ -227,26 +229,34 @@ def fmt_trio(trio: Any, end_s: Any = None, keys: tuple[str, ...] = ("p05", "p50"
     return " / ".join(f(trio.get(k), end_s) for k in keys)
 
 
-def fmt_prob(p: Any) -> str:
-    """A probability (share of Monte Carlo samples) to three decimals.
+def fmt_prob(p: Any, distinct_from: Any = None) -> str:
+    """A probability as the project writes one everywhere: a percentage, significant figures.
 
-    Shares that are not 0 or 1 but would round to them are written ``< 0.001`` and
-    ``> 0.999`` so a small risk is never printed as zero.
+    :func:`egressmargin.probability_text.percent` with a no-break space: at least two
+    significant figures (0.0015 is "0.15 %", never "0.002"), exactly 0 and 1 as "0 %" and
+    "100 %", anything strictly between never as either. ``distinct_from`` (a number or a
+    list) adds figures until the text reads differently from those probabilities.
 
-    >>> fmt_prob(0.0312), fmt_prob(0), fmt_prob(0.0004), fmt_prob(1.0)
-    ('0.031', '0.000', '<\\xa00.001', '1.000')
+    >>> fmt_prob(0.0312), fmt_prob(0), fmt_prob(0.0004), fmt_prob(1.0), fmt_prob(0.9996)
+    ('3.1\xa0%', '0\xa0%', '0.040\xa0%', '100\xa0%', '99.96\xa0%')
     """
     if _is_missing(p):
         return NOT_AVAILABLE
-    x = float(p)
-    if x < 0.0 or x > 1.0:
-        raise ValueError(f"probability out of [0, 1]: {p!r}")
-    text = f"{x:.3f}"
-    if x > 0.0 and text == "0.000":
-        return f"<{NBSP}0.001"
-    if x < 1.0 and text == "1.000":
-        return f">{NBSP}0.999"
-    return text
+    others = [] if distinct_from is None else (
+        list(distinct_from) if isinstance(distinct_from, (list, tuple)) else [distinct_from])
+    return percent(float(p), distinct_from=[o for o in others if not _is_missing(o)], space=NBSP)
+
+
+def fmt_prob_ci(p: Any, interval: Any = None, limit: Any = None) -> str:
+    """A probability with its interval beside it (:func:`egressmargin.probability_text.probability`).
+
+    >>> fmt_prob_ci(0.0015, [0.0002, 0.0052])
+    '0.15\xa0% (0.020–0.52\xa0%)'
+    """
+    if _is_missing(p):
+        return NOT_AVAILABLE
+    ci = interval if isinstance(interval, (list, tuple)) and len(interval) == 2 else None
+    return probability(float(p), ci, limit=None if _is_missing(limit) else float(limit), space=NBSP, dash=DASH)
 
 
 def fmt_pct(fraction: Any, sig: int = 2) -> str:
@@ -336,6 +346,7 @@ FILTERS = {
     "route_margin": fmt_route_margin,
     "trio": fmt_trio,
     "prob": fmt_prob,
+    "prob_ci": fmt_prob_ci,
     "pct": fmt_pct,
     "span": fmt_span,
     "verdict": fmt_verdict,

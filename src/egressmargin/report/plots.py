@@ -23,7 +23,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-from .format import fmt_num, fmt_prob, fmt_time, fmt_unit, fmt_verdict
+from .format import fmt_num, fmt_prob, fmt_prob_ci, fmt_time, fmt_unit, fmt_verdict
 
 # The report's own palette (chosen for this project; reads in greyscale because each
 # colour pairs with a distinct line style, marker or grey value).
@@ -290,13 +290,13 @@ def _timeline(ax, components_s, rset_s, aset_s, aset_raw_s, end_s) -> list:
 
 
 def histogram_title(p_fail: Any, max_p_fail: Any = None, verdict: Any = None,
-                    n_open: int = 0, n_draws: int = 0) -> str:
+                    n_open: int = 0, n_draws: int = 0, p_fail_ci95: Any = None) -> str:
     """The histogram's title: p_fail, the acceptance limit, the verdict word, open draws.
 
     The limit is named as a limit (never "acceptable" beside a failing value) and the
     verdict is printed as its word, so the line cannot be misread.
     """
-    txt = f"P(ASET < RSET) = {fmt_prob(p_fail)}"
+    txt = f"P(ASET < RSET) = {fmt_prob_ci(p_fail, p_fail_ci95, max_p_fail)}"
     if max_p_fail is not None:
         txt += f"; acceptance limit {fmt_prob(max_p_fail)}"
     if verdict is not None:
@@ -314,7 +314,7 @@ def wrap_label(text: Any, width: int = TICK_LABEL_CHARS) -> str:
     return "\n".join(lines)
 
 
-def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05, verdict=None) -> list:
+def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05, verdict=None, p_fail_ci95=None) -> list:
     m = np.asarray(margin_samples_s, dtype=float).ravel()
     fin = m[np.isfinite(m)]
     n_open = int(m.size - fin.size)
@@ -339,7 +339,7 @@ def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05, verdict=Non
     if margin_p05 is not None and np.isfinite(margin_p05):
         ax.axvline(float(margin_p05), color=INK, lw=1.0, ls=(0, (4, 2)),
                    label=f"margin p05 {fmt_time(margin_p05, signed=True)}")
-    txt = histogram_title(p_fail, max_p_fail, verdict, n_open, m.size)
+    txt = histogram_title(p_fail, max_p_fail, verdict, n_open, m.size, p_fail_ci95)
     ax.set_title(txt, loc="left", fontsize=6.8, pad=4)
     ax.set_xlabel("Margin ASET − RSET per draw [s]")
     ax.set_ylabel("Draws")
@@ -399,7 +399,7 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
                  max_p_fail: Any = None, margin_p05_s: Any = None,
                  sensitivity: Sequence[Mapping[str, Any]] = (), base_margin_s: Any = None,
                  uid: str = "rt", verdict: Any = None,
-                 panels: Sequence[str] | None = None):
+                 panels: Sequence[str] | None = None, p_fail_ci95: Any = None):
     """One route in one scenario: timeline, margin histogram and sensitivity, stacked.
 
     Parameters
@@ -454,7 +454,7 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
             if kind == "timeline":
                 entries = _timeline(ax, components_s, rset_s, aset_s, aset_raw_s, end_s)
             elif kind == "histogram":
-                entries = _histogram(ax, m, p_fail, max_p_fail, margin_p05_s, verdict)
+                entries = _histogram(ax, m, p_fail, max_p_fail, margin_p05_s, verdict, p_fail_ci95)
             else:
                 entries = _tornado(ax, rows, base_margin_s)
             if entries:

@@ -108,7 +108,8 @@ STANDING_LIMITATIONS: tuple[str, ...] = (
     "A limit not reached by the end of the histories is written \u201c> end\u201d; the "
     "true time may be any later time, and conditions after the end are unknown.",
     "Percentiles and p_fail are Monte Carlo estimates and carry sampling error; the "
-    "verdict takes it into account through the 95\u00a0% interval on p_fail.",
+    "verdict takes it into account through the sampling interval on p_fail, widened for "
+    "the number of looks where more draws were taken (section 2.5).",
     "The design fires, scenarios and egress inputs are the engineer's choice; the tool "
     "checks their form, not their suitability.",
 )
@@ -188,7 +189,7 @@ def _location_aware_view(v: Any) -> dict | None:
     if not isinstance(v, Mapping):
         return None
     return {"verdict": _verdict_word(v.get("verdict")) or "n/a", "p_fail": v.get("p_fail"),
-            "reason": _sentence(v.get("verdict_reason"))}
+            "p_fail_ci95": v.get("p_fail_ci95"), "reason": _sentence(v.get("verdict_reason"))}
 
 
 def _given(value: Any) -> str:
@@ -462,7 +463,7 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
             margin_samples_s=samples.get("margin_samples"), p_fail=rt.get("p_fail"),
             max_p_fail=acceptance, margin_p05_s=m05["value"] if not m05["at_least"] else None,
             sensitivity=sens[:10], base_margin_s=base_margin, uid=f"fig-{anchor}",
-            verdict=rt.get("verdict"),
+            verdict=rt.get("verdict"), p_fail_ci95=rt.get("p_fail_ci95"),
             panels=plots.route_panels(samples.get("margin_samples"), sens[:10]))
     along = rt.get("along_route") if isinstance(rt.get("along_route"), Mapping) else {}
     mv = rt.get("movement") or {}
@@ -683,7 +684,8 @@ def _credibility(scenarios_in, plotdata, figs) -> list[dict[str, Any]]:
                     "values_s": values, "relative_change": c.get("relative_change"),
                     "flagged": bool(c.get("flagged")), "convergence": c.get("convergence"),
                     "order": c.get("order"), "extrapolated_s": c.get("extrapolated_s"),
-                    "gci": c.get("gci"), "note": _sentence(c.get("note"))})
+                    "gci": c.get("gci"), "note": _sentence(c.get("note")),
+                    "flag_reason": c.get("flag_reason")})
         pd_cred = {lid: v for lid, v in ((plotdata.get(sid) or {}).get("credibility") or {}).items()
                    if lid not in skip}
         figures = []
@@ -703,6 +705,7 @@ def _credibility(scenarios_in, plotdata, figs) -> list[dict[str, Any]]:
                 uid=f"fig-cred-{sid}-{start}"))
         out.append({"scenario": sid, "name": _named(sc), "end_s": sc.get("end_s"),
                     "resolutions": resolutions, "threshold": cred.get("threshold"),
+                    "max_gci": cred.get("max_gci"),
                     "method": cred.get("method"), "rows": rows, "not_reached": not_reached,
                     "n_flagged": sum(1 for r in rows if r["flagged"]),
                     "figures": figures, "anchor": f"cred{i + 1}"})
