@@ -347,14 +347,24 @@ def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05, verdict=Non
 
 
 def _tornado(ax, rows, base_margin_s) -> list:
+    """Swing bars: filled for a distribution's p05-p95, open and dashed for a what-if range."""
+    from matplotlib.patches import Patch
+
     n = len(rows)
+    what_if = spread = False
     for i, r in enumerate(rows):
         y = n - 1 - i
         a, b = _val(r, "margin_low_s"), _val(r, "margin_high_s")
         if a is None or b is None:
             continue
-        ax.barh(y, abs(b - a), left=min(a, b), height=0.55, color=BAND_FILL, edgecolor=BAND,
-                linewidth=0.6)
+        if r.get("kind") == "what-if":     # a declared range on a fixed value: open bar, dashed edge
+            ax.barh(y, abs(b - a), left=min(a, b), height=0.55, color="white", edgecolor=BAND,
+                    linewidth=0.8, linestyle=(0, (3, 1.5)))
+            what_if = True
+        else:
+            ax.barh(y, abs(b - a), left=min(a, b), height=0.55, color=BAND_FILL, edgecolor=BAND,
+                    linewidth=0.6)
+            spread = True
         ax.plot([a], [y], marker="o", color=INK, ms=4.5, ls="none")
         ax.plot([b], [y], marker="s", color=INK, ms=4.5, mfc="white", ls="none")
     ax.plot([], [], marker="o", color=INK, ls="none", label="input at low value")
@@ -374,7 +384,13 @@ def _tornado(ax, rows, base_margin_s) -> list:
     ax.set_ylim(-0.7, n - 0.3)
     ax.set_xlabel("Margin ASET − RSET [s], one input at a time")
     ax.grid(axis="y", visible=False)
-    return list(zip(*ax.get_legend_handles_labels()))
+    keys = []
+    if spread:
+        keys.append((Patch(facecolor=BAND_FILL, edgecolor=BAND), "p05–p95 of a declared distribution"))
+    if what_if:
+        keys.append((Patch(facecolor="white", edgecolor=BAND, linestyle=(0, (3, 1.5))),
+                     "what-if ±20 % or ±10 % (a fixed\nvalue, not a measured spread)"))
+    return list(zip(*ax.get_legend_handles_labels())) + keys
 
 
 def route_panels(margin_samples_s: np.ndarray | None = None,
@@ -442,7 +458,7 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
     # x label (0.32) and its legend.
     sizes = {"timeline": (0.0, 1.45, 0.62),
              "histogram": (0.28, 1.3, 0.34),   # room for a two-line title
-             "tornado": (0.0, 0.24 * len(rows) + 0.3, 0.34)}
+             "tornado": (0.0, 0.24 * len(rows) + 0.3, 0.5)}
     layout = [(kind, *sizes[kind]) for kind in wanted]
     total = 0.1 + sum(pre + h + 0.32 + leg for _, pre, h, leg in layout)
     with matplotlib.rc_context(_RC):
@@ -459,7 +475,8 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
                 entries = _tornado(ax, rows, base_margin_s)
             if entries:
                 fig.legend([e[0] for e in entries], [e[1] for e in entries], loc="upper center",
-                           bbox_to_anchor=(0.55, bottom - 0.30 / total), ncol=4, fontsize=6.5)
+                           bbox_to_anchor=(0.55, bottom - 0.30 / total), ncol=4 if len(entries) <= 4 else 3,
+                           fontsize=6.5)
             top = bottom - (0.32 + leg) / total
         return finish(fig)
 

@@ -524,9 +524,10 @@ def _what_would_change(rt: Mapping[str, Any], acceptance: Any) -> str:
     sens = [s for s in rt["sensitivity"] if float(s.get("swing_s") or 0.0) > 0]
     if sens and v in ("fail", "indeterminate"):
         s = sens[0]
+        what_if = " (a what-if range on a fixed value, not a measured spread)" if s.get("kind") == "what-if" else ""
         words.append(f"the input with the largest effect is {s.get('input')} (margin "
                      f"{fmt_time(s.get('margin_low_s'), signed=True)} at {fmt_value(s.get('low'))}, "
-                     f"{fmt_time(s.get('margin_high_s'), signed=True)} at {fmt_value(s.get('high'))})")
+                     f"{fmt_time(s.get('margin_high_s'), signed=True)} at {fmt_value(s.get('high'))}){what_if}")
     text = "; ".join(words)
     if v == "indeterminate" and not rt["verdict_reason"]:
         text = "The evidence does not settle the verdict" + (f"; {text}" if text else "")
