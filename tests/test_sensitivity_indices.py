@@ -46,6 +46,8 @@ def test_base_samples_are_halved_to_bound_the_cost():
     assert si.base_samples(6) == 512                       # 512 x 8 = 4096 evaluations
     assert si.base_samples(40) == 256                      # 512 x 42 > 16384; 256 x 42 = 10752
     assert si.base_samples(10_000) == si.MIN_BASE_SAMPLES
+    assert si.base_samples(6, samples=300) == 256          # not more base samples than the verdict's draws
+    assert si.base_samples(6, samples=10) == si.MIN_BASE_SAMPLES
 
 
 def test_additive_margin_through_the_route_machinery(tmp_path):
@@ -59,7 +61,7 @@ def test_additive_margin_through_the_route_machinery(tmp_path):
              "alarm": {"uniform": {"low": "0 s", "high": "60 s"}}, "premovement": "60 s",
              "path": [{"door": {"width": "1.0 m"}}], "exposed_at": ["a"]}
     path = write_study(tmp_path, t, {"T": ("degC", np.full_like(t, 25.0))}, [{"id": "a", "temperature": "T"}],
-                       routes=[route], criteria={"base": "general-2m", "only": ["temperature"]}, samples=100)
+                       routes=[route], criteria={"base": "general-2m", "only": ["temperature"]}, samples=512)
     res, _ = results_for(path)
     r = res["scenarios"][0]["routes"][0]
     rows = {x["input"]: x for x in r["sensitivity_indices"]}

@@ -336,7 +336,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             sensitivities = assess.scenario_sensitivity(specs_here, prep, sf, si, sa,
                                                         {k: _label(k) for k in si_keys(si)}, study.elements)
             indices = sensitivity_indices.scenario_indices(specs_here, prep, crit, ppfs, {k: _label(k) for k in ppfs},
-                                                           study.elements, end, seed, index)
+                                                           study.elements, end, seed, index, samples=S)
         result = RouteResult(
             route=route, outcome=out, flow=eg.routes[route.id], nodes=eg.nodes, end_s=end, margin_raw_s=margin_raw,
             not_assessed=[{"location": loc["id"], "criterion": cid} for loc in route_locs

@@ -54,8 +54,8 @@ __all__ = ["BASE_SAMPLES", "MAX_EVALUATIONS", "UncertainInput", "base_samples", 
 #: are a few hundredths).
 BASE_SAMPLES = 512
 #: At most this many evaluations per scenario: N is halved (down to MIN_BASE_SAMPLES)
-#: until N (D + 2) fits (project choice: the cost of a few verdict runs at the default
-#: 2000 samples).
+#: until N (D + 2) fits, and until N is at most the verdict's samples (project choice:
+#: about the cost of the verdict's own run at its largest default, max_samples 16000).
 MAX_EVALUATIONS = 16384
 MIN_BASE_SAMPLES = 64
 #: The failure indicator's indices are given only when at least this many of the 2N
@@ -140,9 +140,12 @@ def input_names(inputs: list[UncertainInput], routes, route_index: int) -> list[
             for x in inputs]
 
 
-def base_samples(D: int, N: int = BASE_SAMPLES, max_evaluations: int = MAX_EVALUATIONS) -> int:
-    """N, halved until N (D + 2) <= ``max_evaluations`` (not below :data:`MIN_BASE_SAMPLES`)."""
-    while N > MIN_BASE_SAMPLES and N * (D + 2) > max_evaluations:
+def base_samples(D: int, N: int = BASE_SAMPLES, max_evaluations: int = MAX_EVALUATIONS,
+                 samples: int | None = None) -> int:
+    """N, halved until N (D + 2) <= ``max_evaluations`` and N <= ``samples`` (the verdict's
+    draws: a run asked for with few samples gets quick indices too), not below
+    :data:`MIN_BASE_SAMPLES`."""
+    while N > MIN_BASE_SAMPLES and (N * (D + 2) > max_evaluations or (samples is not None and N > samples)):
         N //= 2
     return N
 
@@ -222,7 +225,8 @@ def _sharing_groups(routes) -> list[set[int]]:
 
 
 def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, named, end_s: float, seed: int,
-                     scenario_index: int, chunk: int = 4096, N: int = BASE_SAMPLES) -> dict[str, dict]:
+                     scenario_index: int, chunk: int = 4096, N: int = BASE_SAMPLES,
+                     samples: int | None = None) -> dict[str, dict]:
     """Sobol' indices of every route's margin and failure indicator in one scenario.
 
     Parameters
@@ -243,6 +247,8 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
         Rows per ASET evaluation (bounds memory at the verdict's own level).
     N : int
         Base samples (reduced by :func:`base_samples`).
+    samples : int, optional
+        The verdict's sample count: N is not larger (:func:`base_samples`).
 
     Returns
     -------
@@ -277,7 +283,7 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
     if D == 0:
         return {r.id: {"sensitivity_indices": [], "sensitivity_indices_fail": [],
                        "sensitivity_indices_method": method} for r in routes}
-    N = base_samples(D, N)
+    N = base_samples(D, N, samples=samples)
     U = saltelli_uniforms(D, N, [seed, SOBOL_STREAM_TAG, scenario_index])
     R = U.shape[0]
     method.update(base_samples=N, evaluations=R)
