@@ -179,7 +179,11 @@ def test_sensitivity_puts_all_distribution_swing_on_the_one_uncertain_input(tmp_
     pre = stats.lognorm(s=sigma, scale=60.0)
     assert sens["premovement time"]["swing_s"] == pytest.approx(pre.ppf(0.95) - pre.ppf(0.05), abs=0.02)
     assert not any(k.startswith("model error") for k in sens)     # no model uncertainty given
-    assert "detection time" not in sens and "alarm time" not in sens  # fixed inputs
+    assert sens["premovement time"]["kind"] == "distribution"
+    # fixed detection (30 s) and alarm (10 s): a what-if range of +/-20 %, swings 0.4 x value
+    assert sens["detection time"]["kind"] == sens["alarm time"]["kind"] == "what-if"
+    assert sens["detection time"]["swing_s"] == pytest.approx(12.0, abs=0.02)
+    assert sens["alarm time"]["swing_s"] == pytest.approx(4.0, abs=0.02)
     ranked = [s["input"] for s in res["scenarios"][0]["routes"][0]["sensitivity"]]
     assert ranked[0] == "premovement time"
 

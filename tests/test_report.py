@@ -649,3 +649,28 @@ def test_pdf_engine_fetches_nothing_but_inline_data(tmp_path):
     with pytest.raises(RuntimeError) as err:
         write_pdf(bad, tmp_path / "bad.pdf")
     assert "self-contained" in str(err.value) and "file:///etc/hostname" in str(err.value)
+
+
+def test_route_figure_draws_sobol_indices_with_their_method(tmp_path, fixture_data):
+    """The indices panel is one more panel of the route figure; its caption states N, the
+    estimators and the intervals (issue 21)."""
+    rows = [{"input": "premovement time", "first_order": 0.7, "first_order_ci95": [0.6, 0.8],
+             "total": 0.75, "total_ci95": [0.7, 0.8]},
+            {"input": "walking speed", "first_order": 0.001, "first_order_ci95": [0.0, 0.002],
+             "total": 0.002, "total_ci95": [0.0, 0.004]}]
+    assert plots.route_panels(np.full(5, 3.0), [], rows) == ["timeline", "indices"]
+    assert [r["input"] for r in plots.shown_indices(rows)] == ["premovement time"]     # below 0.01 not drawn
+    text = _drawn_text(plots.route_figure, {"detection": {"p50": 60.0}}, {"p05": 60, "p50": 60, "p95": 60},
+                       {"p05": 100, "p50": 100, "p95": 100}, indices=rows, panels=["indices"], uid="i")
+    assert "premovement time" in text and "walking speed" not in text and "total index" in text
+    import copy
+
+    results, plotdata = copy.deepcopy(fixture_data)
+    route = results["scenarios"][0]["routes"][0]
+    route.update({"sensitivity_indices": rows, "sensitivity_indices_method": {"base_samples": 512, "evaluations": 3072},
+                  "sensitivity_indices_fail": [dict(rows[0], total=0.9, total_ci95=[0.85, 0.95])]})
+    html = render_report(results, plotdata, tmp_path, pdf=False)["html"].read_text(encoding="utf-8")
+    assert "Sobol\u2019 indices of the margin" in html
+    assert "indices of the failure indicator" in html and "premovement time 0.9" in html
+    assert re.search(r"N\u00a0=\u00a0\d+ base samples \(\d+ evaluations", html)
+    assert "Saltelli (2010) and Jansen (1999) estimators via SALib" in html

@@ -53,11 +53,18 @@ def _one_at_a_time(route, routes, prep, sweep_factors, sweep_index, sweep_loc_as
         eg = assess.scenario_egress(routes, prep, base_f, draws, named, sc, width)
         return a0 - float(eg.routes[route.id].rset[0])
 
-    low, high, frac = assess.SWEEP_LOW, assess.SWEEP_HIGH, assess.SWEEP_FRACTION
+    low, high, frac, wf = assess.SWEEP_LOW, assess.SWEEP_HIGH, assess.SWEEP_FRACTION, assess.WHAT_IF_FRACTION
+    what_if = []            # (label, key) of fixed RSET phases, swept +/-20 % as a what-if
     sweeps = []
     for name, spec in (("detection", route.detection), ("alarm", route.alarm)):
-        if not (isinstance(spec, DetectorRule) or dist.is_fixed(spec)):
+        if isinstance(spec, DetectorRule):
+            what_if.append(("smoke detector threshold (extinction coefficient)" if spec.kind == "smoke" else
+                            "heat detector activation (temperature rise above ambient)", name))
+        elif dist.is_fixed(spec):
+            what_if.append((f"{name} time", name))
+        else:
             sweeps.append((f"{name} time", {name: low}, {name: high}))
+    n_before = len(sweeps)
     pre_plain = dist.with_parameters(route.premovement, {p: dist.median(sub) for p, sub in
                                                          dist.parameter_specs(route.premovement).items()})
     if not route.premovement_across and not dist.is_fixed(pre_plain):
@@ -65,20 +72,27 @@ def _one_at_a_time(route, routes, prep, sweep_factors, sweep_index, sweep_loc_as
     for p, sub in dist.parameter_specs(route.premovement).items():
         if not dist.is_fixed(sub):
             sweeps.append((f"premovement {p}", {f"premovement.{p}": low}, {f"premovement.{p}": high}))
+    if len(sweeps) == n_before:
+        what_if.append(("premovement across occupants (scaled)" if route.premovement_across else
+                        "premovement time", "premovement"))
     for label, key, spec in (("occupant count", "occupants", route.occupants_dist or {"fixed": 1.0}),
                              ("walking speed", "speed_factor", route.speed_factor),
                              ("flow capacity", "flow_factor", route.flow_factor)):
         if dist.is_fixed(spec):
             rows.append(assess._swing(label, "-10 %", "+10 %", margin_with(scale={key: 1 - frac}),
-                                      margin_with(scale={key: 1 + frac})))
+                                      margin_with(scale={key: 1 + frac}), "what-if"))
         else:
             sweeps.append((label, {key: low}, {key: high}))
+    for label, key in what_if:
+        rows.append(assess._swing(label, "-20 %", "+20 %", margin_with(scale={key: 1 - wf}),
+                                  margin_with(scale={key: 1 + wf}), "what-if"))
     for label, lo_q, hi_q in sweeps:
         rows.append(assess._swing(label, "p05", "p95", margin_with(quantiles=lo_q), margin_with(quantiles=hi_q)))
     ctrl = int(np.argmin([element_properties(e)["capacity_p_s"] for e in route.path]))
     node = assess._node(route, ctrl, route.path[ctrl])
     rows.append(assess._swing(f"effective width of element {ctrl + 1} ({route.path[ctrl]['type']})", "-10 %",
-                              "+10 %", margin_with(width={node: 1 - frac}), margin_with(width={node: 1 + frac})))
+                              "+10 %", margin_with(width={node: 1 - frac}), margin_with(width={node: 1 + frac}),
+                              "what-if"))
     rows.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
     return [dict(r, base_margin_s=rounded(base, 2), lower_bound=bool(censored.any())) for r in rows]
 
@@ -149,6 +163,13 @@ def test_batched_sensitivity_equals_one_setting_at_a_time(tmp_path, monkeypatch)
     assert "occupant count" in names["lower"] and "flow capacity" in names["lower"]
     assert "effective width of element 1 (corridor)" in names["upper"]
     assert any(s["swing_s"] for r in routes for s in r["sensitivity"] if s["input"].startswith("effective width"))
+    # every RSET phase is in every table (issue 21): fixed ones as what-if rows
+    assert "alarm time" in names["lower"] and "premovement across occupants (scaled)" in names["lower"]
+    assert {"detection time", "alarm time", "premovement time"} <= set(names["side"])
+    assert "smoke detector threshold (extinction coefficient)" in names["upper"]
+    kinds = {s["input"]: s["kind"] for s in routes[2]["sensitivity"]}
+    assert kinds["detection time"] == "what-if" and kinds["effective width of element 1 (door)"] == "what-if"
+    assert {s["kind"] for s in routes[0]["sensitivity"] if s["input"].startswith("model error")} == {"distribution"}
 
 
 def test_per_draw_width_moves_the_controlling_element():

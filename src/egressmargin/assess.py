@@ -27,6 +27,14 @@ from .tenability.crossing import crossing_times_for_levels
 SWEEP_FRACTION = 0.10
 #: Percentiles between which each uncertain input is swept (5th and 95th).
 SWEEP_LOW, SWEEP_HIGH = 0.05, 0.95
+#: Detection, alarm and pre-movement given as fixed values are swept by +/-20 % of their
+#: value (a detector rule: its threshold, see :func:`sweep_settings`) as a declared
+#: what-if range, not a measured spread (project choice, issue 21: the RSET phases that
+#: carry the largest assumptions are never left out of the one-at-a-time chart).
+WHAT_IF_FRACTION = 0.20
+#: The ``kind`` of a sensitivity row: a declared distribution (or model-error table row)
+#: swept between its p05 and p95, or a what-if range on a fixed value.
+DISTRIBUTION, WHAT_IF = "distribution", "what-if"
 
 
 #: Uncertain parameters of a distribution that can have their own draws (each a stream).
@@ -72,26 +80,30 @@ def egress_uniforms(seed: int, route_index: int, S: int) -> EgressDraws:
     return EgressDraws(*base, *more, parameters=params)
 
 
-def detection_times(rule, prep: aset.Prepared, factors: dict[str, np.ndarray], u: np.ndarray) -> np.ndarray:
+def detection_times(rule, prep: aset.Prepared, factors: dict[str, np.ndarray], u: np.ndarray,
+                    scale=1.0) -> np.ndarray:
     """Detection time [s] per sample: fixed, a distribution, or a rule on a location's series.
 
     A rule uses the same temperature or smoke factor of the sample as the ASET, since the
-    detector sees the same (corrected) fire. Not activated by the end: +inf.
+    detector sees the same (corrected) fire. Not activated by the end: +inf. ``scale``
+    (a number or one per sample) multiplies a time, or a rule's threshold: the heat
+    detector's activation temperature rise above ambient, the smoke detector's
+    extinction coefficient (a what-if sweep).
     """
     S = len(u)
     if not isinstance(rule, DetectorRule):
-        return dist.ppf(rule, u)
+        return dist.ppf(rule, u) * scale
     li = prep.ids.index(rule.location)
     with np.errstate(divide="ignore", invalid="ignore"):
         if rule.kind == "heat":
             has_series = prep.velocity is not None and bool(prep.present["velocity"][li])
             vel = prep.velocity[li] if has_series else rule.velocity_m_s   # the series wins
             link = rti_response(prep.t_s, prep.rise[li], vel, rule.rti)
-            levels = (rule.activation_c - prep.amb_c[li]) / factors.get("temperature", np.ones(S))
+            levels = (rule.activation_c - prep.amb_c[li]) * scale / factors.get("temperature", np.ones(S))
             t = crossing_times_for_levels(prep.t_s, link, levels, "above")
         else:
             key = aset.smoke_factor_key(prep.smoke_kind[li])
-            levels = rule.extinction_per_m / factors.get(key, np.ones(S))
+            levels = rule.extinction_per_m * scale / factors.get(key, np.ones(S))
             t = crossing_times_for_levels(prep.t_s, prep.extinction[li], levels, "above")
     return np.where(np.isnan(t), np.inf, t)
 
@@ -135,7 +147,9 @@ def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, scale: dic
     """Detection, alarm, occupants, start times and movement factors of a route, per draw.
 
     An input set by the uniform of its stream in ``draws`` (None: the median); ``scale``
-    multiplies ``occupants``, ``flow_factor`` or ``speed_factor`` (a +/-10 % sweep), by a
+    multiplies ``occupants``, ``flow_factor`` or ``speed_factor`` (a +/-10 % sweep), or
+    ``detection`` (a time, or a detector rule's threshold), ``alarm`` or ``premovement``
+    (every person's pre-movement: the whole distribution scaled) (a what-if sweep), by a
     number or by one per draw (shape (S,)).
 
     Notes
@@ -147,8 +161,9 @@ def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, scale: dic
     """
     sc = scale or {}
     S = len(draws.detection)
-    det = detection_times(route.detection, prep, factors, _u(draws.detection, S))
-    alarm = dist.ppf(route.alarm, _u(draws.alarm, S))
+    det = detection_times(route.detection, prep, factors, _u(draws.detection, S), sc.get("detection", 1.0))
+    alarm = dist.ppf(route.alarm, _u(draws.alarm, S)) * sc.get("alarm", 1.0)
+    pre_scale = np.asarray(sc.get("premovement", 1.0), float)
     occ_spec = route.occupants_dist or {"fixed": float(route.occupants)}
     occ = dist.ppf(occ_spec, _u(draws.occupants, S)) * sc.get("occupants", 1.0)
     counts = np.maximum(np.rint(occ), 1).astype(int)
@@ -158,12 +173,13 @@ def route_inputs(route: RouteSpec, prep, factors, draws: EgressDraws, scale: dic
     params = {name: _u(draws.parameters.get(name), S)
               for name in dist.parameter_specs(route.premovement)}
     if route.premovement_across:
-        pre = dist.ppf_varying(route.premovement, quantile_positions(counts), params)
+        pre = dist.ppf_varying(route.premovement, quantile_positions(counts), params) \
+            * (pre_scale[:, None] if pre_scale.ndim else pre_scale)
         with np.errstate(invalid="ignore"):
             starts = (det + alarm)[:, None] + pre
         starts = np.where(np.isnan(starts), np.inf, starts)
     else:
-        one = dist.ppf_varying(route.premovement, _u(draws.premovement, S), params)
+        one = dist.ppf_varying(route.premovement, _u(draws.premovement, S), params) * pre_scale
         present = np.arange(counts.max())[None, :] < counts[:, None]
         pre = np.where(present, one[:, None], np.nan)
         with np.errstate(invalid="ignore"):
@@ -483,9 +499,12 @@ class SweepSetting:
     kind : str
         "quantile": ``key`` is an input of :func:`route_inputs` (or
         ``premovement.<parameter>``) and ``low``/``high`` its uniforms [-]; "scale":
-        ``key`` is occupants, flow_factor or speed_factor and ``low``/``high``
-        multipliers [-]; "width": ``key`` is a path node and ``low``/``high``
-        multipliers of its effective width [-].
+        ``key`` is occupants, flow_factor, speed_factor, detection, alarm or premovement
+        and ``low``/``high`` multipliers [-]; "width": ``key`` is a path node and
+        ``low``/``high`` multipliers of its effective width [-].
+    basis : str
+        :data:`DISTRIBUTION` (a declared distribution swept p05-p95) or :data:`WHAT_IF`
+        (a fixed value swept by a declared what-if range: not a measured spread).
     """
 
     label: str
@@ -495,43 +514,66 @@ class SweepSetting:
     key: str
     low: float
     high: float
+    basis: str = DISTRIBUTION
+
+
+def _what_if(label: str, key: str, fraction: float, kind: str = "scale") -> SweepSetting:
+    pct = f"{fraction * 100:.0f} %"
+    return SweepSetting(label, f"-{pct}", f"+{pct}", kind, key, 1 - fraction, 1 + fraction, WHAT_IF)
 
 
 def sweep_settings(route: RouteSpec) -> list[SweepSetting]:
     """The route's egress inputs swept one at a time, in the table's order before sorting.
 
-    Uncertain inputs are swept between their 5th and 95th percentiles; occupant count,
-    walking speed and flow capacity, when certain, and the effective width of the
-    route's controlling element by +/-10 % (:data:`SWEEP_FRACTION`).
+    Every RSET phase is swept, whether uncertain or not. Uncertain inputs (a declared
+    distribution, or an uncertain parameter of one) are swept between their 5th and
+    95th percentiles. Fixed values are swept by a what-if range: detection, alarm and
+    pre-movement by +/-20 % (:data:`WHAT_IF_FRACTION`; a smoke detector rule by its
+    extinction-coefficient threshold, a heat detector rule by its activation
+    temperature rise above ambient; pre-movement spread across the occupants with fixed
+    parameters by the whole distribution scaled); occupant count, walking speed and flow
+    capacity, and the effective width of the route's controlling element, by +/-10 %
+    (:data:`SWEEP_FRACTION`).
     """
-    down, up = 1 - SWEEP_FRACTION, 1 + SWEEP_FRACTION
-    scaled, swept = [], []
+    scaled, swept, what_if = [], [], []
     for name, spec in (("detection", route.detection), ("alarm", route.alarm)):
-        if not (isinstance(spec, DetectorRule) or dist.is_fixed(spec)):
+        if isinstance(spec, DetectorRule):
+            what_if.append(_what_if("smoke detector threshold (extinction coefficient)" if spec.kind == "smoke"
+                                    else "heat detector activation (temperature rise above ambient)",
+                                    name, WHAT_IF_FRACTION))
+        elif dist.is_fixed(spec):
+            what_if.append(_what_if(f"{name} time", name, WHAT_IF_FRACTION))
+        else:
             swept.append((f"{name} time", name))
     pre_plain = dist.with_parameters(route.premovement, {p: dist.median(sub) for p, sub in
                                                          dist.parameter_specs(route.premovement).items()})
+    n_pre = len(swept)
     if not route.premovement_across and not dist.is_fixed(pre_plain):
         swept.append(("premovement time", "premovement"))
     for p, sub in dist.parameter_specs(route.premovement).items():
         if not dist.is_fixed(sub):
             swept.append((f"premovement {p}", f"premovement.{p}"))
+    if len(swept) == n_pre:          # no uncertain pre-movement: the what-if range
+        what_if.append(_what_if("premovement across occupants (scaled)" if route.premovement_across
+                                else "premovement time", "premovement", WHAT_IF_FRACTION))
     for label, key, spec in (("occupant count", "occupants", route.occupants_dist or {"fixed": 1.0}),
                              ("walking speed", "speed_factor", route.speed_factor),
                              ("flow capacity", "flow_factor", route.flow_factor)):
         if dist.is_fixed(spec):
-            scaled.append(SweepSetting(label, "-10 %", "+10 %", "scale", key, down, up))
+            scaled.append(_what_if(label, key, SWEEP_FRACTION))
         else:
             swept.append((label, key))
     ctrl = int(np.argmin([element_properties(e)["capacity_p_s"] for e in route.path]))
-    width = SweepSetting(f"effective width of element {ctrl + 1} ({route.path[ctrl]['type']})", "-10 %", "+10 %",
-                         "width", _node(route, ctrl, route.path[ctrl]), down, up)
-    return [*scaled, *(SweepSetting(label, "p05", "p95", "quantile", key, SWEEP_LOW, SWEEP_HIGH)
-                       for label, key in swept), width]
+    width = _what_if(f"effective width of element {ctrl + 1} ({route.path[ctrl]['type']})",
+                     _node(route, ctrl, route.path[ctrl]), SWEEP_FRACTION, "width")
+    return [*scaled, *what_if, *(SweepSetting(label, "p05", "p95", "quantile", key, SWEEP_LOW, SWEEP_HIGH)
+                                 for label, key in swept), width]
 
 
 #: The uniform streams of :class:`EgressDraws` a sweep can set (besides the parameters).
 _STREAMS = ("detection", "alarm", "premovement", "occupants", "flow_factor", "speed_factor")
+#: The inputs of :func:`route_inputs` a sweep can multiply.
+_SCALED = ("occupants", "flow_factor", "speed_factor", "detection", "alarm", "premovement")
 
 
 def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_index, sweep_loc_aset, labels: dict,
@@ -572,7 +614,7 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
     factors = {key: np.concatenate([v, np.full(R - R0, v[0])]) for key, v in sweep_factors.items()}
     streams = [{name: np.full(R, 0.5) for name in (*_STREAMS, *(f"premovement.{p}" for p in _PARAMETER_NAMES))}
                for _ in routes]
-    scales = [{key: np.ones(R) for key in ("occupants", "flow_factor", "speed_factor")} for _ in routes]
+    scales = [{key: np.ones(R) for key in _SCALED} for _ in routes]
     widths: dict[str, np.ndarray] = {}
     first_row: dict[int, list[int]] = {}
     row = R0
@@ -597,14 +639,16 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
         margin = a - rset[:R0]
         rows = [_swing(labels.get(key, key), "p05", "p95", margin[lo], margin[hi]) for key, lo, hi in sweep_index]
         a0 = float(a[0])
-        rows += [_swing(st.label, st.low_name, st.high_name, a0 - float(rset[r]), a0 - float(rset[r + 1]))
+        rows += [_swing(st.label, st.low_name, st.high_name, a0 - float(rset[r]), a0 - float(rset[r + 1]), st.basis)
                  for st, r in zip(settings[k], first_row[k])]
         rows.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
         out[route.id] = [dict(r, base_margin_s=rounded(margin[0], 2), lower_bound=bool(censored.any())) for r in rows]
     return out
 
 
-def _swing(name, low, high, m_low, m_high) -> dict:
+def _swing(name, low, high, m_low, m_high, kind: str = DISTRIBUTION) -> dict:
+    """A row of the sensitivity table; ``kind`` :data:`DISTRIBUTION` or :data:`WHAT_IF`."""
     lo, hi = rounded(m_low, 2), rounded(m_high, 2)
     swing = None if lo is None or hi is None else round(abs(hi - lo), 2)
-    return {"input": name, "low": low, "high": high, "margin_low_s": lo, "margin_high_s": hi, "swing_s": swing}
+    return {"input": name, "low": low, "high": high, "margin_low_s": lo, "margin_high_s": hi, "swing_s": swing,
+            "kind": kind}

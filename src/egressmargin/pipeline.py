@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__, aset, assess, outputs, plausibility
+from . import __version__, aset, assess, outputs, plausibility, sensitivity_indices
 from .plausibility import Finding
 from .clock import shift_to_ignition
 from .egress import summary as egress_summary
@@ -291,8 +291,8 @@ def factor_ppfs(table, prep) -> dict:
         if sk is None:
             continue
         if sk not in out:
-            out[sk] = ((lambda u, sk=sk, fk=fk: _engine_factor(fk, sk, factor_ppf(table, sk, np.atleast_1d(u))[0])),
-                       [])
+            out[sk] = ((lambda u, sk=sk, fk=fk: _engine_factor(fk, sk, factor_ppf(table, sk, np.atleast_1d(u))
+                                                               .reshape(np.shape(u)))), [])
         out[sk][1].append(fk)
     return out
 
@@ -441,6 +441,8 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             sf, si, sa = sweep
             sensitivities = assess.scenario_sensitivity(specs_here, prep, sf, si, sa,
                                                         {k: _label(k) for k in si_keys(si)}, study.elements)
+            indices = sensitivity_indices.scenario_indices(specs_here, prep, crit, ppfs, {k: _label(k) for k in ppfs},
+                                                           study.elements, end, seed, index, samples=S)
         result = RouteResult(
             route=route, outcome=out, flow=eg.routes[route.id], nodes=eg.nodes, end_s=end, margin_raw_s=margin_raw,
             not_assessed=[{"location": loc["id"], "criterion": cid} for loc in route_locs
@@ -450,7 +452,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             criteria_assessed=assessed_any, verdict=v, location_aware_verdict=v_la,
             along_route=(assess.along_route_dose(route, prep, crit, fac_r, s_used, eg.routes[route.id])
                          if route.along_route else None),
-            sensitivity=sensitivities[route.id])
+            sensitivity=sensitivities[route.id], sensitivity_indices=indices[route.id])
         entry = route_json(result)
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}

@@ -54,6 +54,10 @@ class RouteResult:
         The along-route dose, already in results form.
     sensitivity : list of dict
         The one-at-a-time sweep, already in results form.
+    sensitivity_indices : dict or None
+        The Sobol' indices of the margin and of the failure indicator and how they were
+        estimated (:func:`egressmargin.sensitivity_indices.scenario_indices`), already in
+        results form.
     """
 
     route: Any
@@ -69,6 +73,7 @@ class RouteResult:
     location_aware_verdict: Verdict | None = None
     along_route: dict | None = None
     sensitivity: list[dict] = field(default_factory=list)
+    sensitivity_indices: dict | None = None
 
 
 def verdict_text(r: RouteResult) -> str:
@@ -170,4 +175,5 @@ def route_json(r: RouteResult) -> dict:
     if r.along_route is not None:
         entry["along_route"] = r.along_route
     entry["sensitivity"] = r.sensitivity
+    entry.update(r.sensitivity_indices or {})
     return entry

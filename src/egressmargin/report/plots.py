@@ -347,14 +347,24 @@ def _histogram(ax, margin_samples_s, p_fail, max_p_fail, margin_p05, verdict=Non
 
 
 def _tornado(ax, rows, base_margin_s) -> list:
+    """Swing bars: filled for a distribution's p05-p95, open and dashed for a what-if range."""
+    from matplotlib.patches import Patch
+
     n = len(rows)
+    what_if = spread = False
     for i, r in enumerate(rows):
         y = n - 1 - i
         a, b = _val(r, "margin_low_s"), _val(r, "margin_high_s")
         if a is None or b is None:
             continue
-        ax.barh(y, abs(b - a), left=min(a, b), height=0.55, color=BAND_FILL, edgecolor=BAND,
-                linewidth=0.6)
+        if r.get("kind") == "what-if":     # a declared range on a fixed value: open bar, dashed edge
+            ax.barh(y, abs(b - a), left=min(a, b), height=0.55, color="white", edgecolor=BAND,
+                    linewidth=0.8, linestyle=(0, (3, 1.5)))
+            what_if = True
+        else:
+            ax.barh(y, abs(b - a), left=min(a, b), height=0.55, color=BAND_FILL, edgecolor=BAND,
+                    linewidth=0.6)
+            spread = True
         ax.plot([a], [y], marker="o", color=INK, ms=4.5, ls="none")
         ax.plot([b], [y], marker="s", color=INK, ms=4.5, mfc="white", ls="none")
     ax.plot([], [], marker="o", color=INK, ls="none", label="input at low value")
@@ -374,15 +384,60 @@ def _tornado(ax, rows, base_margin_s) -> list:
     ax.set_ylim(-0.7, n - 0.3)
     ax.set_xlabel("Margin ASET − RSET [s], one input at a time")
     ax.grid(axis="y", visible=False)
-    return list(zip(*ax.get_legend_handles_labels()))
+    keys = []
+    if spread:
+        keys.append((Patch(facecolor=BAND_FILL, edgecolor=BAND), "p05–p95 of a declared distribution"))
+    if what_if:
+        keys.append((Patch(facecolor="white", edgecolor=BAND, linestyle=(0, (3, 1.5))),
+                     "what-if ±20 % or ±10 % (a fixed\nvalue, not a measured spread)"))
+    return list(zip(*ax.get_legend_handles_labels())) + keys
+
+
+#: Sobol' indices below this total index are not drawn (named in the caption instead;
+#: project choice: one hundredth of the margin's variance).
+INDEX_SHOWN_MIN = 0.01
+
+
+def _indices(ax, rows) -> list:
+    """First-order and total Sobol' indices per input, largest total on top, with their intervals."""
+    from matplotlib.patches import Patch
+
+    n = len(rows)
+    for i, r in enumerate(rows):
+        y = n - 1 - i
+        for dy, key, face, edge in ((0.17, "total", BAND_FILL, BAND), (-0.17, "first_order", BAND, INK)):
+            v = _val(r, key)
+            if v is None:
+                continue
+            ax.barh(y + dy, max(v, 0.0), height=0.32, color=face, edgecolor=edge, linewidth=0.6)
+            ci = r.get(f"{key}_ci95")
+            if isinstance(ci, (list, tuple)) and len(ci) == 2 and None not in ci:
+                ax.plot([max(ci[0], -0.04), min(ci[1], 1.14)], [y + dy, y + dy], color=INK, lw=0.9)
+    ax.set_yticks(range(n), [wrap_label(r.get("input", "?")) for r in reversed(rows)],
+                  fontsize=6.5, linespacing=0.95)
+    ax.set_xlim(-0.04, 1.15)
+    ax.set_ylim(-0.6, n - 0.4)
+    ax.set_xlabel("Sobol' index of the margin: share of its variance (Saltelli design, SALib)")
+    ax.grid(axis="y", visible=False)
+    (ci,) = ax.plot([], [], color=INK, lw=0.9)
+    return [(Patch(facecolor=BAND_FILL, edgecolor=BAND), "total index"),
+            (Patch(facecolor=BAND, edgecolor=INK), "first-order index"), (ci, "bootstrap 95 % interval")]
+
+
+def shown_indices(indices: Sequence[Mapping[str, Any]] | None, limit: int = 8) -> list:
+    """The index rows drawn: total at least :data:`INDEX_SHOWN_MIN`, largest first, at most ``limit``."""
+    rows = [r for r in indices or [] if (_val(r, "total") or 0.0) >= INDEX_SHOWN_MIN]
+    return sorted(rows, key=lambda r: -(_val(r, "total") or 0.0))[:limit]
 
 
 def route_panels(margin_samples_s: np.ndarray | None = None,
-                 sensitivity: Sequence[Mapping[str, Any]] = ()) -> list[str]:
+                 sensitivity: Sequence[Mapping[str, Any]] = (),
+                 indices: Sequence[Mapping[str, Any]] | None = None) -> list[str]:
     """The panels :func:`route_figure` draws, top to bottom.
 
     ``"timeline"`` always; ``"histogram"`` when the finite margins per draw differ (a
-    single value shows nothing); ``"tornado"`` when any sensitivity swing is non-zero.
+    single value shows nothing); ``"tornado"`` when any sensitivity swing is non-zero;
+    ``"indices"`` when any Sobol' index row is drawn (:func:`shown_indices`).
     """
     m = None if margin_samples_s is None else np.asarray(margin_samples_s, float).ravel()
     kinds = ["timeline"]
@@ -390,6 +445,8 @@ def route_panels(margin_samples_s: np.ndarray | None = None,
         kinds.append("histogram")
     if any(abs(float(r.get("swing_s") or 0.0)) > 0 for r in sensitivity or []):
         kinds.append("tornado")
+    if shown_indices(indices):
+        kinds.append("indices")
     return kinds
 
 
@@ -399,7 +456,8 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
                  max_p_fail: Any = None, margin_p05_s: Any = None,
                  sensitivity: Sequence[Mapping[str, Any]] = (), base_margin_s: Any = None,
                  uid: str = "rt", verdict: Any = None,
-                 panels: Sequence[str] | None = None, p_fail_ci95: Any = None):
+                 panels: Sequence[str] | None = None, p_fail_ci95: Any = None,
+                 indices: Sequence[Mapping[str, Any]] | None = None):
     """One route in one scenario: timeline, margin histogram and sensitivity, stacked.
 
     Parameters
@@ -432,17 +490,23 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
     panels : sequence of str, optional
         Draw only these of :func:`route_panels` (e.g. ``["histogram"]``, one image a
         panel, so that a page may break between panels); default all of them.
+    indices : sequence of mapping, optional
+        Sobol' indices of the margin, ``{"input", "first_order", "first_order_ci95",
+        "total", "total_ci95"}``; those of :func:`shown_indices` are drawn as paired
+        bars with their intervals.
     """
     matplotlib, plt = _plt()
     m = None if margin_samples_s is None else np.asarray(margin_samples_s, float).ravel()
     rows = sorted(sensitivity or [], key=lambda r: -abs(float(r.get("swing_s") or 0.0)))
-    shown = route_panels(m, rows)
+    shown = route_panels(m, rows, indices)
+    idx = shown_indices(indices)
     wanted = [k for k in shown if panels is None or k in panels]
     # Heights in inches: room for a title above each panel, the panel, then below it its
     # x label (0.32) and its legend.
     sizes = {"timeline": (0.0, 1.45, 0.62),
              "histogram": (0.28, 1.3, 0.34),   # room for a two-line title
-             "tornado": (0.0, 0.24 * len(rows) + 0.3, 0.34)}
+             "tornado": (0.0, 0.24 * len(rows) + 0.3, 0.5),
+             "indices": (0.0, 0.26 * len(idx) + 0.25, 0.2)}
     layout = [(kind, *sizes[kind]) for kind in wanted]
     total = 0.1 + sum(pre + h + 0.32 + leg for _, pre, h, leg in layout)
     with matplotlib.rc_context(_RC):
@@ -455,11 +519,14 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
                 entries = _timeline(ax, components_s, rset_s, aset_s, aset_raw_s, end_s)
             elif kind == "histogram":
                 entries = _histogram(ax, m, p_fail, max_p_fail, margin_p05_s, verdict, p_fail_ci95)
-            else:
+            elif kind == "tornado":
                 entries = _tornado(ax, rows, base_margin_s)
+            else:
+                entries = _indices(ax, idx)
             if entries:
                 fig.legend([e[0] for e in entries], [e[1] for e in entries], loc="upper center",
-                           bbox_to_anchor=(0.55, bottom - 0.30 / total), ncol=4, fontsize=6.5)
+                           bbox_to_anchor=(0.55, bottom - 0.30 / total), ncol=4 if len(entries) <= 4 else 3,
+                           fontsize=6.5)
             top = bottom - (0.32 + leg) / total
         return finish(fig)
 
@@ -551,5 +618,6 @@ __all__ = [
     "location_figure",
     "route_figure",
     "route_panels",
+    "shown_indices",
     "credibility_figure",
 ]

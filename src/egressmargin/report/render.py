@@ -448,6 +448,10 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
     sens = [r for r in sens_all if abs(float(r.get("swing_s") or 0.0)) >= 0.5]
     no_effect = [str(r.get("input")) for r in sens_all if r not in sens]
     m05, m50 = route_margin(rt, "p05"), route_margin(rt, "p50")
+    idx_all = [r for r in rt.get("sensitivity_indices") or [] if isinstance(r, Mapping)]
+    idx_shown = plots.shown_indices(idx_all)
+    idx_method = rt.get("sensitivity_indices_method") if isinstance(rt.get("sensitivity_indices_method"),
+                                                                    Mapping) else {}
     gl = rt.get("governing_location")
     figure = None
     if comps or rt.get("rset_s"):
@@ -457,6 +461,13 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
             "need not equal the RSET median), the RSET and ASET p05\u2013p95 intervals"
             + ("; the margin per Monte Carlo draw" if samples.get("margin_samples") is not None else "")
             + ("; the margin with one input at a time at its low and high value" if sens else "")
+            + (f"; the first-order and total Sobol\u2019 indices of the margin (its share of variance due to "
+               f"each uncertain input alone, and with its interactions; ASET beyond the end taken as the end "
+               f"time), from N\u00a0=\u00a0{idx_method.get('base_samples')} base samples "
+               f"({idx_method.get('evaluations')} evaluations, apart from the verdict\u2019s draws), "
+               f"Saltelli (2010) and Jansen (1999) estimators via SALib, lines their bootstrap 95\u00a0% "
+               f"intervals; inputs whose total index is below {plots.INDEX_SHOWN_MIN:g} are not drawn"
+               if idx_shown else "")
             + ".",
             components_s=comps, rset_s=_trio(rt.get("rset_s")), aset_s=_trio(rt.get("aset_s")),
             aset_raw_s=rt.get("aset_raw_s"), end_s=end_s,
@@ -464,7 +475,7 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
             max_p_fail=acceptance, margin_p05_s=m05["value"] if not m05["at_least"] else None,
             sensitivity=sens[:10], base_margin_s=base_margin, uid=f"fig-{anchor}",
             verdict=rt.get("verdict"), p_fail_ci95=rt.get("p_fail_ci95"),
-            panels=plots.route_panels(samples.get("margin_samples"), sens[:10]))
+            panels=plots.route_panels(samples.get("margin_samples"), sens[:10], idx_all), indices=idx_all)
     along = rt.get("along_route") if isinstance(rt.get("along_route"), Mapping) else {}
     mv = rt.get("movement") or {}
     ci = rt.get("p_fail_ci95")
@@ -501,6 +512,8 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
         "figure": figure,
         "sensitivity": sens,
         "no_effect": no_effect,
+        "indices_fail": [r for r in rt.get("sensitivity_indices_fail") or []
+                         if isinstance(r, Mapping) and float(r.get("total") or 0.0) >= plots.INDEX_SHOWN_MIN][:3],
         "sensitivity_bound": any(r.get("lower_bound") for r in sens),
         "base_margin_s": base_margin,
         "along_rows": [{"label": _label(cid), **_trio(a), "limit": a.get("limit"),
@@ -528,9 +541,10 @@ def _what_would_change(rt: Mapping[str, Any], acceptance: Any) -> str:
     sens = [s for s in rt["sensitivity"] if float(s.get("swing_s") or 0.0) > 0]
     if sens and v in ("fail", "indeterminate"):
         s = sens[0]
+        what_if = " (a what-if range on a fixed value, not a measured spread)" if s.get("kind") == "what-if" else ""
         words.append(f"the input with the largest effect is {s.get('input')} (margin "
                      f"{fmt_time(s.get('margin_low_s'), signed=True)} at {fmt_value(s.get('low'))}, "
-                     f"{fmt_time(s.get('margin_high_s'), signed=True)} at {fmt_value(s.get('high'))})")
+                     f"{fmt_time(s.get('margin_high_s'), signed=True)} at {fmt_value(s.get('high'))}){what_if}")
     text = "; ".join(words)
     if v == "indeterminate" and not rt["verdict_reason"]:
         text = "The evidence does not settle the verdict" + (f"; {text}" if text else "")
