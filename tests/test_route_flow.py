@@ -48,6 +48,9 @@ def test_along_route_dose_with_the_queue_at_its_location(tmp_path):
     assert r["elements"][1]["clearing_s"]["p50"] == pytest.approx(leave_door, abs=0.05)
     # the queue at the door: the last person waits from reaching it to passing it
     assert r["elements"][1]["queue_s"]["p50"] > 60.0
+    # people wait for the exit corridor in the location before it (the door's)
+    assert [(e["at"], e["queue_at"]) for e in r["elements"]] == [("corridor", "corridor"), ("corridor", "corridor"),
+                                                                 ("exit", "corridor")]
     dose = r["along_route"]["criteria"]["fed_toxic"]["p50"]
     assert dose == pytest.approx(leave_door / 60 * 2000 / 35000, rel=2e-3)       # 0.1713
     where = [(h["location"], h["what"]) for h in r["along_route"]["history"]]
