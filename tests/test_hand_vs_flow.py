@@ -264,6 +264,8 @@ def test_per_person_times_are_kept_in_start_order_and_share_memory():
             assert e.arrive_each_s is r.elements[i - 1].leave_each_s        # no copy
     assert r.elements[1].leave_each_s is r.elements[1].pass_each_s          # a door has no length
     np.testing.assert_array_equal(r.elements[0].arrive_each_s, starts)
-    kept_not, _ = flow.simulate([flow.NetRoute("r", starts, np.array([3, 2]), (
-        flow.NetElement("d", 0.0, 1.4, 0.7, 0.91),), np.ones(2), np.ones(2))], per_person=False)
-    assert kept_not["r"].elements[0].pass_each_s is None
+    one = [flow.NetRoute("r", starts, np.array([3, 2]), (flow.NetElement("d", 0.0, 1.4, 0.7, 0.91),),
+                         np.ones(2), np.ones(2))]
+    for keep, kept in ((False, False), ({"x"}, False), ({"r"}, True)):
+        got, _ = flow.simulate(one, per_person=keep)
+        assert (got["r"].elements[0].pass_each_s is not None) == kept

@@ -197,12 +197,16 @@ def _node(route: RouteSpec, i: int, element: dict) -> str:
 
 def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDraws], named: dict | None = None,
                     scale: list[dict] | None = None,
-                    width_scale: dict[str, float] | None = None) -> ScenarioEgress:
+                    width_scale: dict[str, float] | None = None,
+                    per_person: bool | None = None) -> ScenarioEgress:
     """RSET of every route of a scenario, routes that share named elements merged.
 
     ``scale`` is per route (see :func:`route_inputs`); ``width_scale``
     multiplies the effective width (hence capacity) of the named nodes given, by a
-    number or by one per draw (shape (S,)).
+    number or by one per draw (shape (S,)). ``per_person``: keep every occupant's
+    times in the flow's :class:`egressmargin.egress.flow.ElementPass` (True: every
+    route; False: none; None: the routes with ``exposure: along-route``); they cost
+    up to S x N x 16 bytes per element (see ElementPass).
 
     Notes
     -----
@@ -226,7 +230,8 @@ def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDr
                              inp.speed_factor))
         inputs.append(inp)
         props.append(pr)
-    flows, nodes = simulate(nets, {eid: el.upstream for eid, el in named.items()})
+    keep = {r.id for r in routes if r.along_route} if per_person is None else per_person
+    flows, nodes = simulate(nets, {eid: el.upstream for eid, el in named.items()}, per_person=keep)
     out = {}
     for route, inp, pr in zip(routes, inputs, props):
         fl = flows[route.id]

@@ -45,6 +45,7 @@ ch. 2 (the deterministic fluid queue: departures = arrivals delayed by the backl
 
 from __future__ import annotations
 
+from collections.abc import Collection
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -133,11 +134,13 @@ def fifo_departures(arrivals_s, capacity_p_s, spans_s=None) -> np.ndarray:
         np.maximum.accumulate(d, axis=1, out=d)
         d += (j + 1.0) / c
         return d
-    s = np.asarray(spans_s, dtype=float)
-    d = a + np.maximum(1.0 / c - s, 0.0)
-    d -= j / c
+    d = np.subtract(1.0 / c, np.asarray(spans_s, dtype=float))     # one (S, N) array, worked in place
+    np.maximum(d, 0.0, out=d)
+    d += a
+    jc = j / c
+    d -= jc
     np.maximum.accumulate(d, axis=1, out=d)
-    d += j / c
+    d += jc
     return d
 
 
@@ -174,13 +177,12 @@ def passing_spans(arrivals_s, spans_s, departures_s) -> np.ndarray:
     """
     a = np.asarray(arrivals_s, dtype=float)
     d = np.asarray(departures_s, dtype=float)
-    begin = a if spans_s is None else a - np.asarray(spans_s, dtype=float)
-    prev = np.empty_like(d)
-    prev[:, :1] = -np.inf
-    prev[:, 1:] = d[:, :-1]
+    out = a.copy() if spans_s is None else np.subtract(a, np.asarray(spans_s, dtype=float))   # begin
+    np.maximum(out[:, 1:], d[:, :-1], out=out[:, 1:])          # t0 = max(begin, pass of the one ahead)
     with np.errstate(invalid="ignore"):
-        out = d - np.maximum(begin, prev)
-    return np.where(np.isfinite(out), out, 0.0)
+        np.subtract(d, out, out=out)
+    out[~np.isfinite(out)] = 0.0
+    return out
 
 
 def _merged(streams: list[np.ndarray], spans: list[np.ndarray] | None = None
@@ -197,8 +199,16 @@ def _merged(streams: list[np.ndarray], spans: list[np.ndarray] | None = None
     rank = np.concatenate([np.broadcast_to((np.arange(s.shape[1]) + 0.5) / max(s.shape[1], 1), s.shape)
                            for s in streams], axis=1)
     order = np.lexsort((rank, joined), axis=1)
-    sp = None if spans is None else np.take_along_axis(np.concatenate(spans, axis=1), order, axis=1)
+    spans = _joined_spans(streams, spans)
+    sp = None if spans is None else np.take_along_axis(spans, order, axis=1)
     return np.take_along_axis(joined, order, axis=1), sp, order, [s.shape[1] for s in streams]
+
+
+def _joined_spans(streams, spans) -> np.ndarray | None:
+    """The streams' spans side by side (None: every span 0; a None stream's spans are 0)."""
+    if spans is None or all(x is None for x in spans):
+        return None
+    return np.concatenate([np.zeros(st.shape) if x is None else x for st, x in zip(streams, spans)], axis=1)
 
 
 def _unmerged(departures: np.ndarray, order: np.ndarray, sizes: list[int]) -> list[np.ndarray]:
@@ -245,7 +255,8 @@ def _spans_any_order(streams, spans, deps):
     a = np.concatenate(streams, axis=1)
     d = np.concatenate(deps, axis=1)
     order = np.argsort(d, axis=1, kind="stable")
-    sp = None if spans is None else np.take_along_axis(np.concatenate(spans, axis=1), order, axis=1)
+    spans = _joined_spans(streams, spans)
+    sp = None if spans is None else np.take_along_axis(spans, order, axis=1)
     out = passing_spans(np.take_along_axis(a, order, axis=1), sp, np.take_along_axis(d, order, axis=1))
     return _unmerged(out, order, [x.shape[1] for x in streams])
 
@@ -604,8 +615,8 @@ def _last(x: np.ndarray, counts: np.ndarray) -> np.ndarray:
     return x[np.arange(x.shape[0]), counts - 1]
 
 
-def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = None, per_person: bool = True
-             ) -> tuple[dict[str, RouteFlow], dict[str, NodeFlow]]:
+def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = None,
+             per_person: bool | Collection[str] = True) -> tuple[dict[str, RouteFlow], dict[str, NodeFlow]]:
     """Pass every route's occupants through its path, sharing named elements.
 
     Parameters
@@ -616,10 +627,11 @@ def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = Non
         For a shared element id, the routes whose stream is already in it (merge rule
         of :func:`merge_priority`); other shared elements merge first come, first
         served (:func:`merge_fifo`).
-    per_person : bool
+    per_person : bool or collection of str
         Keep every occupant's times in :class:`ElementPass` (``arrive_each_s``,
-        ``pass_each_s``, ``leave_each_s``; see its memory note). False: only the
-        last occupant's (S,) times.
+        ``pass_each_s``, ``leave_each_s``; see its memory note): True for every
+        route, or the ids of the routes to keep them for. False: only the last
+        occupant's (S,) times.
 
     Returns
     -------
@@ -659,7 +671,7 @@ def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = Non
     pos = [0] * len(routes)
     ctrls = [route.controlling for route in routes]
     arrivals = [route.starts_s for route in routes]
-    spans = [np.zeros_like(route.starts_s, dtype=float) for route in routes]
+    spans: list[np.ndarray | None] = [None] * len(routes)         # None: 0, people start as points
     passes: list[list[ElementPass]] = [[] for _ in routes]
     nodes: dict[str, NodeFlow] = {}
     while any(pos[r] < len(route.elements) for r, route in enumerate(routes)):
@@ -725,14 +737,21 @@ def _pass_node(node, us, routes, ctrls, arrivals, spans, passes, nodes, first_id
         # a + max(0, 1/c - span); an absent person (a = d = +inf) gives NaN, which fmax
         # skips, so the queue is the longest wait of the persons present (or 0)
         with np.errstate(invalid="ignore"):
-            wait = d - a
-            wait -= np.maximum((1.0 / cap)[:, None] - sp, 0.0)
+            if sp is None:
+                wait = d - a
+                wait -= (1.0 / cap)[:, None]
+            else:
+                wait = np.subtract(sp, (1.0 / cap)[:, None])     # -max(0, 1/c - span), in place
+                np.minimum(wait, 0.0, out=wait)
+                wait += d
+                wait -= a
+        keep = per_person is True or (per_person is not False and route.id in per_person)
         passes[u].append(ElementPass(
             arrive_s=_last(a, route.counts), pass_s=_last(d, route.counts), leave_s=_last(leave, route.counts),
             queue_s=np.fmax(np.fmax.reduce(wait, axis=1), 0.0), speed_m_s=v, capacity_p_s=cap,
             density_p_m2=np.broadcast_to(dens, (S,)).copy(),
-            arrive_each_s=a if per_person else None, pass_each_s=d if per_person else None,
-            leave_each_s=leave if per_person else None))
+            arrive_each_s=a if keep else None, pass_each_s=d if keep else None,
+            leave_each_s=leave if keep else None))
         arrivals[u] = leave
         spans[u] = sp_out
         leaves.append(_last(leave, route.counts))
