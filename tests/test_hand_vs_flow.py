@@ -248,6 +248,27 @@ def test_merged_routes_clear_when_the_merged_fluid_clears():
     assert nodes["door"].clearing_s[0] == pytest.approx(when_passed(t, door_curve, 100)[-1], abs=0.05)
 
 
+@pytest.mark.parametrize("seed", [3, 4, 5])
+def test_both_merge_rules_with_spans_clear_with_the_fluid(seed):
+    """Two streams whose persons arrive spread over their spans (as they leave an
+    upstream element) share a bottleneck of 1 person/s. The fluid of the summed
+    arrivals (each person's unit spread evenly over [a - s, a]) clears at one time
+    whatever the order: both merge rules clear within 0.2 s of it and never before it
+    (spreading each passage evenly over its span is the model's approximation)."""
+    rng = np.random.default_rng(seed)
+    a, b = np.sort(rng.uniform(0, 40, 30))[None, :], np.sort(rng.uniform(0, 40, 25))[None, :]
+    sa, sb = np.full_like(a, rng.uniform(0.2, 1.5)), np.full_like(b, rng.uniform(0.2, 1.5))
+    t = np.arange(-5.0, 120.0, 0.005)
+    arrived = sum(np.clip((t - (x - w)) / w, 0.0, 1.0) for arr, sp in ((a[0], sa[0]), (b[0], sb[0]))
+                  for x, w in zip(arr, sp))
+    (passed,), _ = fluid_curves(t, arrived, [1.0], [0.0])
+    clear = when_passed(t, passed, 55)[-1]
+    fifo = flow.merge_fifo([a, b], 1.0, spans=[sa, sb])
+    (p,), (o,) = flow.merge_priority([a], [b], 1.0, spans_priority=[sa], spans_others=[sb])
+    for got in (max(fifo[0].max(), fifo[1].max()), max(p.max(), o.max())):
+        assert clear - 0.01 <= got <= clear + 0.2
+
+
 # ----------------------------------------------------------------- per-person times
 
 def test_per_person_times_are_kept_in_start_order_and_share_memory():

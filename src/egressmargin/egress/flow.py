@@ -298,7 +298,8 @@ def merge_priority(priority: list[np.ndarray], others: list[np.ndarray], capacit
     slot [p_i - 1/c, p_i]. Free time phi(t) = t - (time in slots before t) is
     nondecreasing; in free time the joining stream meets a plain FIFO bottleneck of
     capacity c: f_k = (k + 1)/c + max_(j <= k) (phi(a_j) - j/c) (with spans, the
-    rule of :func:`fifo_departures`). Its pass time is the clock time at which free
+    rule of :func:`fifo_departures` with each span measured in free time,
+    phi(a_j) - phi(a_j - s_j)). Its pass time is the clock time at which free
     time f_k is reached: t = f_k + n(f_k)/c, where n(f) is the number of slots whose
     start lies at free time below f (slot i starts at free time g_i = p_i - (i +
     1)/c). The rule is preemptive, as in the fluid model: a joining person whose
@@ -316,18 +317,28 @@ def merge_priority(priority: list[np.ndarray], others: list[np.ndarray], capacit
     with np.errstate(invalid="ignore"):
         slot_start = p - slot
         g = slot_start - np.arange(n_p, dtype=float)[None, :] * slot   # free time at slot starts
-    phi = np.empty_like(o_sorted)
     step = max(1, chunk_elements // max(1, n_p * n_o))
-    for lo in range(0, S, step):            # chunks of draws bound the memory; not a per-draw loop
-        sl = slice(lo, lo + step)
-        a = o_sorted[sl][:, :, None]
-        w = slot[sl][:, :, None]
+
+    def free_time(x):
+        phi = np.empty_like(x)
+        for lo in range(0, S, step):        # chunks of draws bound the memory; not a per-draw loop
+            sl = slice(lo, lo + step)
+            a = x[sl][:, :, None]
+            w = slot[sl][:, :, None]
+            with np.errstate(invalid="ignore"):
+                done = (p[sl][:, None, :] <= a).sum(axis=2)
+                inside = np.where(p[sl][:, None, :] > a,
+                                  np.clip(a - slot_start[sl][:, None, :], 0.0, w), 0.0).sum(axis=2)
+                phi[sl] = x[sl] - done * slot[sl] - inside
+        return phi
+
+    phi = free_time(o_sorted)
+    if o_spans is None:
+        f = fifo_departures(phi, c)
+    else:                                   # a joining person's span measured in free time
         with np.errstate(invalid="ignore"):
-            done = (p[sl][:, None, :] <= a).sum(axis=2)
-            inside = np.where(p[sl][:, None, :] > a,
-                              np.clip(a - slot_start[sl][:, None, :], 0.0, w), 0.0).sum(axis=2)
-            phi[sl] = o_sorted[sl] - done * slot[sl] - inside
-    f = fifo_departures(phi, c, o_spans)
+            free_span = phi - free_time(o_sorted - o_spans)
+        f = fifo_departures(phi, c, np.where(np.isfinite(free_span), free_span, 0.0))
     out = np.empty_like(o_sorted)
     for lo in range(0, S, step):
         sl = slice(lo, lo + step)
