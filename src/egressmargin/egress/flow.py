@@ -11,9 +11,11 @@ Rules of the hydraulic hand method (Gwynne & Rosenbaum 2016, SFPE Handbook 5th e
 ch. 59; from memory, the handbook text was not at hand) and how the model keeps them:
 
 * **N/Fc through the controlling element.** A person is one unit of a fluid stream:
-  passing a point takes them a *span* of time. People who start together are a point
-  (span 0) and a bottleneck of capacity c gives each a span of at least 1/c, so N
-  persons who arrive together pass in N/c (:func:`fifo_departures`).
+  passing a point takes them a *span* of time (the span is this model's device for
+  keeping the hand method's rules with discrete persons: project choice; for one route
+  it reproduces the fluid model of Newell 1982 ch. 2 exactly). People who start
+  together are a point (span 0) and a bottleneck of capacity c gives each a span of at
+  least 1/c, so N persons who arrive together pass in N/c (:func:`fifo_departures`).
 * **Transitions: flow in = flow out.** An element with spare capacity passes a stream
   as it arrives and adds no time: a person whose span is at least 1/c is not delayed
   (:func:`fifo_departures` with ``spans_s``). A route on which everyone starts together
