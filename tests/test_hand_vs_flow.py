@@ -290,3 +290,29 @@ def test_per_person_times_are_kept_in_start_order_and_share_memory():
     for keep, kept in ((False, False), ({"x"}, False), ({"r"}, True)):
         got, _ = flow.simulate(one, per_person=keep)
         assert (got["r"].elements[0].pass_each_s is not None) == kept
+
+
+def test_report_hand_calculation_equals_the_runs_movement(tmp_path):
+    """Through the whole run: with fixed inputs and everyone starting together, the
+    movement component of the RSET equals the report's hand calculation (results.json
+    `movement`: travel_s + flow_s). Hand: corridor 25 m (unimpeded, 21.01 s), door
+    0.9 m (0.78 p/s, controls: 150/0.78 = 192.31 s), stair 14 m (0.909 p/s carrying
+    0.78: D = (1 - sqrt(1 - 0.78/0.909))/(2a) = 1.172, S = 1.08 (1 - 0.266 x 1.172) =
+    0.743 m/s, 18.83 s): 232.15 s."""
+    from engine_helpers import results_for, write_study
+
+    t = np.arange(0.0, 1201.0, 10.0)
+    route = {"id": "r", "occupants": 150, "detection": "30 s", "alarm": "15 s", "premovement": "45 s",
+             "path": [{"corridor": {"length": "25 m", "width": "2 m"}}, {"door": {"width": "0.9 m"}},
+                      {"stair": {"length": "14 m", "width": "1.2 m", "riser": "178 mm", "tread": "279 mm"}}],
+             "exposed_at": ["a"]}
+    res, _ = results_for(write_study(tmp_path, t, {"T": ("degC", np.full_like(t, 20.0))},
+                                     [{"id": "a", "temperature": "T"}], routes=[route],
+                                     criteria={"base": "general-2m", "only": ["temperature"]}))
+    r = res["scenarios"][0]["routes"][0]
+    d = (1 - np.sqrt(1 - 0.78 / 0.909)) / (2 * A)
+    hand = 25 / 1.19 + 150 / 0.78 + 14 / (1.08 * (1 - A * d))
+    assert hand == pytest.approx(232.15, abs=0.01)
+    assert r["movement"]["travel_s"] + r["movement"]["flow_s"] == pytest.approx(hand, abs=0.01)
+    assert r["rset_components_s"]["movement"]["p50"] == pytest.approx(hand, abs=0.01)
+    assert r["rset_s"]["p50"] == pytest.approx(90 + hand, abs=0.01)
