@@ -144,10 +144,13 @@ def test_at_and_start_at_must_be_locations_and_every_problem_is_reported(kit, ma
 def test_validate_explain_prints_the_hand_calculation(kit, make_study, cli):
     """Hand (SFPE Handbook ch. 59 constants, from memory): corridor 2.0 m -> We 1.6 m,
     Fc 1.3 x 1.6 = 2.08 persons/s; door 1.0 m -> We 0.7 m, Fc 0.910; stair 1.2 m ->
-    We 0.9 m, Fc 1.01 x 0.9 = 0.909 persons/s: the stair controls. At its own flow
-    Fs = 1.01: D = (1 - sqrt(1 - 4 x 0.266 x 1.01/1.08))/(2 x 0.266) = 1.747 persons/m^2,
-    S = 1.08 (1 - 0.266 x 1.747) = 0.578 m/s. Hand movement: 20/1.19 + 12/0.578 =
-    37.6 s travel + 120/0.909 = 132.0 s -> 169.6 s."""
+    We 0.9 m, Fc 1.01 x 0.9 = 0.909 persons/s: the stair controls and discharges at
+    capacity, so it has the density of maximum flow D = 1/(2 x 0.266) = 1.880
+    persons/m^2 and speed S = 1.08 (1 - 0.266 x 1.880) = 1.08/2 = 0.540 m/s (120 persons
+    over 12 m x 0.9 m = 11.1 persons/m^2 do not bound it). Hand movement: 20/1.19 +
+    12/0.540 = 16.81 + 22.22 = 39.0 s travel + 120/0.909 = 132.0 s -> 171.0 s.
+    No element says `at`: the three are spread over exposed_at [hall-l1, stair-l1] by
+    distance (midpoints 10, 20, 26 m of 32 m: indices 0, 1, 1)."""
     status, out, err = cli(["validate", make_study(), "--explain"])
     assert status == 0, err
     rows = {line.split()[0]: line for line in out.splitlines() if line.strip()[:1].isdigit()}
@@ -156,9 +159,11 @@ def test_validate_explain_prints_the_hand_calculation(kit, make_study, cli):
     stair = rows["3"].split()
     assert stair[-1] == "controlling"
     assert stair[3:7] == ["0.900", "1.08", "1.01", "0.909"]     # We, k, Fsm, Fc
-    assert stair[8:11] == ["1.010", "1.747", "0.578"]            # Fs, D, S
-    assert "travel 37.6 s + 120 / 0.909 = 132.0 s -> 169.6 s" in out
+    assert stair[8:11] == ["1.010", "1.880", "0.540"]            # Fs, D, S
+    assert "travel 39.0 s + 120 / 0.909 = 132.0 s -> 171.0 s" in out
     assert "stair length: length along the slope, as given" in out
+    assert "element 1 (corridor) at hall-l1: assigned by distance along exposed_at; waiting to enter it at hall-l1" in out
+    assert "element 2 (door) at stair-l1: assigned by distance along exposed_at; waiting to enter it at hall-l1" in out
 
 
 def test_shared_elements_in_contradicting_orders_and_unused_elements(kit, make_study, cli):

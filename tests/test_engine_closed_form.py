@@ -146,10 +146,11 @@ def test_same_seed_gives_byte_identical_results(tmp_path):
 def test_along_route_dose_of_constant_co_equals_closed_form(tmp_path):
     """One location, constant 1000 ppm CO: the last occupant's dose is stay[min] * 1000/35000
     (ISO 13571:2012 CO term). Stay by hand with the flow model (SFPE Handbook ch. 59
-    constants, from memory): everyone starts at 120 s; the corridor entry passes 100
-    persons at 1.3 x (2 - 0.4) = 2.08 persons/s, the first walks 20/1.19 = 16.81 s and
-    the door (1.3 x 0.7 = 0.91 persons/s) controls, so the last occupant leaves at
-    120 + 1/2.08 + 16.81 + 100/0.91 s: stay = 0.48 + 16.81 + 109.89 = 127.18 s."""
+    constants, from memory): everyone starts at 120 s; they walk the corridor
+    unimpeded, 20/1.19 = 16.81 s, and the door (1.3 x 0.7 = 0.91 persons/s) controls,
+    so the last occupant leaves at 120 + 16.81 + 100/0.91 s: travel + N/Fc, stay =
+    16.81 + 109.89 = 126.70 s (the corridor's entry, with spare capacity, adds nothing:
+    flow in = flow out)."""
     t = np.arange(0.0, 3601.0, 5.0)
     route = {"id": "r", "occupants": 100, "detection": "30 s", "alarm": "30 s", "premovement": "60 s",
              "path": [{"corridor": {"length": "20 m", "width": "2 m"}}, {"door": {"width": "1.0 m"}}],
@@ -158,7 +159,7 @@ def test_along_route_dose_of_constant_co_equals_closed_form(tmp_path):
                        routes=[route], criteria={"base": "general-2m", "only": ["fed_toxic"]})
     res, _ = results_for(path)
     r = res["scenarios"][0]["routes"][0]
-    stay = 1 / 2.08 + 20 / (0.85 * 1.40) + 100 / (1.3 * 0.7)
+    stay = 20 / (0.85 * 1.40) + 100 / (1.3 * 0.7)
     assert r["along_route"]["last_occupant_exit_s"]["p50"] == pytest.approx(120 + stay, abs=0.05)
     expected = stay / 60.0 * 1000.0 / 35000.0
     got = r["along_route"]["criteria"]["fed_toxic"]

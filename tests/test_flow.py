@@ -58,22 +58,25 @@ def test_bottleneck_with_starts_uniform_over_60_to_160_s():
     # Hand: N = 100 persons start at the quantiles (i - 1/2)/N of U(60 s, 160 s), i.e.
     # 60.5, 61.5, ..., 159.5 s. Door then an 11.9 m corridor (unimpeded 1.19 m/s: 10 s).
     # Narrow door, c = 0.5 persons/s: flow-limited, the door clears at
-    # 60.5 + 100/0.5 = 260.5 s (about 60 + N/c); the last person then passes the
-    # corridor's entry (2.08 persons/s: 0.48 s) and walks it: 260.5 + 0.48 + 10 = 270.98 s.
+    # 60.5 + 100/0.5 = 260.5 s (about 60 + N/c); the stream leaves it one person per
+    # 2 s, which the corridor (2.08 persons/s) passes as it comes (flow in = flow out,
+    # SFPE Handbook ch. 59): the route clears at 260.5 + 10 = 270.5 s.
     # Wide door, c = 10 persons/s: pre-movement-limited, the last person passes at
-    # 159.5 + 0.1 = 159.6 s (about 160 s), the route clears at 159.6 + 0.48 + 10 =
-    # 170.08 s (160 s + travel).
+    # 159.5 + 0.1 = 159.6 s (about 160 s); alone, their passage past a point takes
+    # 1/c of the narrowest element met, here the corridor's 1/2.08 = 0.48 s in all
+    # (0.1 s at the door, 0.38 s more at the corridor): the route clears at
+    # 159.5 + 0.48 + 10 = 169.98 s (160 s + travel).
     q = flow.quantile_positions([100])
     starts = dist.ppf({"uniform": {"low": 60.0, "high": 160.0}}, q)
     np.testing.assert_allclose(starts[0, [0, -1]], [60.5, 159.5])
     corridor = net({"type": "corridor", "length_m": 11.9, "width_m": 2.0}, "c")
-    for capacity, door_clear, route_clear in ((0.5, 260.5, 260.5 + 1 / 2.08 + 10), (10.0, 159.6, 159.6 + 1 / 2.08 + 10)):
+    for capacity, door_clear, route_clear in ((0.5, 260.5, 260.5 + 10), (10.0, 159.6, 159.5 + 1 / 2.08 + 10)):
         door = flow.NetElement("door", 0.0, 1.40, 1.0, capacity)
         flows, _ = flow.simulate([route("r", starts, [door, corridor])])
         r = flows["r"]
         assert r.elements[0].pass_s[0] == pytest.approx(door_clear, abs=1e-9)
-        # corridor downstream carries at most 1 person/s over 1.6 m: Fs <= 0.63,
-        # D = (1 - sqrt(1 - 4 x 0.266 x 0.625/1.40))/(2 x 0.266) = 0.518 < 0.54: unimpeded
+        # corridor downstream carries at most 1 person/s of its 2.08: F/Fc <= 0.48,
+        # D = (1 - sqrt(1 - 0.48))/(2 x 0.266) = 0.525 < 0.54: unimpeded
         assert r.elements[1].speed_m_s[0] == pytest.approx(1.19)
         assert r.exit_s[0] == pytest.approx(route_clear, abs=1e-6)
 
@@ -82,52 +85,59 @@ def test_crowd_speed_on_a_long_stair():
     # Hand: 300 persons start together at t = 0 on a 60 m stair, 1.2 m wide,
     # 178/279 mm: We = 1.2 - 2 x 0.15 = 0.9 m, c = 1.01 x 0.9 = 0.909 persons/s,
     # flow time 300/0.909 = 330.03 s.
-    # Unimpeded (old hand form): 60/(0.85 x 1.08) = 60/0.918 = 65.36 s -> 395.4 s.
-    # Crowd speed at the transferred flow Fs = 1.01: D = (1 - sqrt(1 - 4 x 0.266 x
-    # 1.01/1.08))/(2 x 0.266) = 1.747 persons/m^2, S = 1.08 (1 - 0.266 x 1.747) = 0.578
-    # m/s, 60/0.578 = 103.80 s -> 433.8 s (the 38.4 s increase of the case).
+    # The stair discharges at capacity: density of maximum flow D = 1/(2a) = 1.880
+    # persons/m^2 (the peak of Fs = (1 - aD) k D, SFPE Handbook ch. 59, from memory),
+    # S = 1.08 (1 - 0.266 x 1.880) = 1.08/2 = 0.540 m/s, 60/0.540 = 111.11 s -> 441.14 s.
+    # (Inverting the rounded Fsm = 1.01 on the unscaled curve gave D = 1.747 and
+    # 0.578 m/s, faster than the speed at maximum flow: 433.8 s.)
     stair = net({**STAIR, "length_m": 60.0}, "s")
     assert stair.capacity_p_s == pytest.approx(0.909)
-    assert flow.density_for_flow(1.08, 1.01) == pytest.approx(1.747, abs=1e-3)
-    assert flow.crowd_speed(1.08, 1.01) == pytest.approx(0.578, abs=1e-3)
+    assert flow.density_for_flow(1.08, 1.01) == pytest.approx(1.747, abs=1e-3)       # unscaled curve
+    assert flow.density_for_flow(1.08, 1.01, 1.01) == pytest.approx(1 / (2 * 0.266))
+    assert flow.crowd_speed(1.08, 1.01, 1.01) == pytest.approx(0.540, abs=1e-3)
     flows, _ = flow.simulate([route("r", np.zeros((1, 300)), [stair])])
     r = flows["r"]
-    assert r.elements[0].speed_m_s[0] == pytest.approx(0.578, abs=1e-3)
-    assert r.exit_s[0] == pytest.approx(300 / 0.909 + 60 / 0.5780, abs=0.2)
-    assert r.exit_s[0] == pytest.approx(433.8, abs=0.2)
+    assert r.elements[0].speed_m_s[0] == pytest.approx(0.540, abs=1e-6)
+    assert r.exit_s[0] == pytest.approx(300 / 0.909 + 60 / 0.540, abs=1e-6)
+    assert r.exit_s[0] == pytest.approx(441.14, abs=0.01)
 
 
 def test_density_for_flow_inverts_the_specific_flow_of_movement_py():
     # Closed form: on the crowded branch 0.54 <= D <= 1/(2a) = 1.8797 persons/m^2,
     # Fs = (1 - a D) k D is increasing, so D -> Fs -> D returns D (SFPE Handbook ch. 59,
-    # from memory). Above the peak k/(4a) the density is held at 1/(2a).
+    # from memory). Above the peak the density is held at 1/(2a). With the maximum
+    # given, the curve is scaled to peak at it: Fs = Fsm 4 a D (1 - a D).
     from egressmargin.egress.movement import specific_flow
     for k in (1.40, 1.08):
         d = np.array([0.54, 1.0, 1.5, 1.8])
         np.testing.assert_allclose(flow.density_for_flow(k, specific_flow(k, d)), d, atol=1e-9)
+        fsm = 1.3 if k == 1.40 else 1.01
+        np.testing.assert_allclose(flow.density_for_flow(k, fsm * 4 * 0.266 * d * (1 - 0.266 * d), fsm), d,
+                                   atol=1e-9)
     assert flow.density_for_flow(1.23, 1.16) == pytest.approx(1 / (2 * 0.266))
 
 
 def test_two_floors_of_150_on_one_shared_stair():
     # Hand: each floor: 10 m corridor 2.0 m wide (We 1.6 m, 2.08 persons/s, unimpeded
-    # 1.19 m/s, 8.40 s) to a shared 20 m stair of c = 0.909 persons/s.
-    # Alone, a floor clears the stair entry at about 8.40 + 0.48 + 150/0.909 = 173.9 s
-    # and leaves it 20/0.578 = 34.6 s later: 208.5 s.
-    # Shared, the stair must pass 300 persons: combined clearing >= 300/0.909 + 8.4 +
-    # 34.6 = 373.0 s; the first arrival is at 8.88 s, so about 8.88 + 330.03 + 34.60 =
-    # 373.5 s.
+    # 1.19 m/s, 8.40 s) to a shared 20 m stair of c = 0.909 persons/s, which
+    # discharges at capacity: 1.08/2 = 0.540 m/s, 20/0.540 = 37.04 s.
+    # Alone, a floor clears the stair entry at 8.40 + 150/0.909 = 173.42 s (the
+    # corridor's entry adds nothing: the stair controls, N/Fc) and leaves it at
+    # 210.46 s. Shared, the stair passes 300 persons: 8.40 + 300/0.909 + 37.04 =
+    # 375.47 s.
     corridor_a, corridor_b = net(CORRIDOR, "a"), net(CORRIDOR, "b")
     stair = net(STAIR, "east-stair")
     starts = np.zeros((1, 150))
+    walk = 20 / flow.crowd_speed(1.08, 1.01, 1.01)
     alone, _ = flow.simulate([route("l2", starts, [corridor_a, stair])])
-    assert alone["l2"].exit_s[0] == pytest.approx(208.5, abs=0.3)
+    assert alone["l2"].exit_s[0] == pytest.approx(10 / 1.19 + 150 / 0.909 + walk, abs=1e-6)
+    assert alone["l2"].exit_s[0] == pytest.approx(210.46, abs=0.01)
     flows, nodes = flow.simulate([route("l2", starts, [corridor_a, stair]),
                                   route("l3", starts, [corridor_b, stair])])
     shared = nodes["east-stair"]
     assert shared.routes == ["l2", "l3"] and shared.occupants[0] == 300
-    walk = 20 / flow.crowd_speed(1.08, 1.01)
-    assert shared.clearing_s[0] >= 300 / 0.909 + 10 / 1.19 + walk - 1e-6
-    assert shared.clearing_s[0] == pytest.approx(373.5, abs=0.3)
+    assert shared.clearing_s[0] == pytest.approx(300 / 0.909 + 10 / 1.19 + walk, abs=1e-6)
+    assert shared.clearing_s[0] == pytest.approx(375.47, abs=0.01)
     assert max(flows["l2"].exit_s[0], flows["l3"].exit_s[0]) == pytest.approx(shared.clearing_s[0])
 
 

@@ -93,10 +93,12 @@ def test_worked_example_door_limited_route():
     #   door:     We = 0.9 - 2 x 0.15 = 0.6 m, Fc = 1.3 x 0.6 = 0.78 p/s  <- controls
     #   flow = 200 / 0.78 = 256.41 s
     #   sum: 25.21 + 256.41 = 281.62 s
+    #   (the door, at capacity, has the speed at the density of maximum flow,
+    #   1.40/2 = 0.70 m/s, over its zero length)
     res = mv.movement_time([CORRIDOR, DOOR_09], 200)
     assert res.controlling == 1
     np.testing.assert_allclose(res.capacities_p_s, [2.08, 0.78])
-    np.testing.assert_allclose(res.speeds_m_s, [1.19, 1.19])
+    np.testing.assert_allclose(res.speeds_m_s, [1.19, 0.70])
     assert res.travel_s == pytest.approx(25.21, abs=0.005)
     assert res.flow_s == pytest.approx(256.41, abs=0.005)
     assert res.total_s == pytest.approx(281.62, abs=0.005)
@@ -107,23 +109,24 @@ def test_worked_example_stair_limited_route():
     # the line of travel, 1.2 m wide, riser 178 mm / tread 279 mm (k = 1.08, Fsm = 1.01).
     #   door:  We = 0.9 m, Fc = 1.3 x 0.9 = 1.17 p/s
     #   stair: We = 1.2 - 2 x 0.15 = 0.9 m, Fc = 1.01 x 0.9 = 0.909 p/s  <- controls
-    #          v = 0.85 x 1.08 = 0.918 m/s, travel 15 / 0.918 = 16.34 s
-    #   travel = 25.21 + 16.34 = 41.55 s; flow = 200 / 0.909 = 220.02 s; sum 261.57 s
+    #          at capacity: D = 1/(2 x 0.266) = 1.880 p/m^2 (density of maximum flow),
+    #          v = 1.08 (1 - 0.266 x 1.880) = 0.540 m/s, travel 15 / 0.540 = 27.78 s
+    #          (200 persons over 15 m x 0.9 m = 14.8 p/m^2: no area bound)
+    #   travel = 25.21 + 27.78 = 52.99 s; flow = 200 / 0.909 = 220.02 s; sum 273.01 s
     stair = {"type": "stair", "length_m": 15.0, "width_m": 1.2, "riser_m": 0.178, "tread_m": 0.279}
     res = mv.movement_time([CORRIDOR, {"type": "door", "width_m": 1.2}, stair], 200)
     assert res.controlling == 2
-    assert res.travel_s == pytest.approx(41.55, abs=0.005)
+    assert res.travel_s == pytest.approx(52.99, abs=0.005)
     assert res.flow_s == pytest.approx(220.02, abs=0.005)
-    assert res.total_s == pytest.approx(261.57, abs=0.005)
+    assert res.total_s == pytest.approx(273.01, abs=0.005)
     assert res.elements[2]["stair_row"] == (0.178, 0.279)
     assert res.notes == []
 
 
 def test_hand_sum_equals_the_flow_model_when_everyone_starts_together():
     # The flow model (egress/flow.py) reproduces travel + N / Fc when everyone starts
-    # together and the controlling element is the last one (its crowd speed then acts
-    # on a zero-length door). Hand: 30/1.19 + 1/2.08 (first person through the
-    # corridor entry) + 200/0.78 = 25.21 + 0.48 + 256.41 = 282.10 s.
+    # together. Hand: 30/1.19 + 200/0.78 = 25.21 + 256.41 = 281.62 s (the corridor's
+    # entry, with spare capacity, adds nothing: SFPE Handbook ch. 59, flow in = flow out).
     from egressmargin.egress import flow
 
     props = [mv.element_properties(e) for e in (CORRIDOR, DOOR_09)]
@@ -132,8 +135,8 @@ def test_hand_sum_equals_the_flow_model_when_everyone_starts_together():
     route = flow.NetRoute("r", np.zeros((1, 200)), np.array([200]), elements, np.ones(1), np.ones(1))
     flows, _ = flow.simulate([route])
     hand = mv.movement_time([CORRIDOR, DOOR_09], 200).total_s
-    assert flows["r"].exit_s[0] == pytest.approx(hand + 1 / 2.08, abs=1e-6)
-    assert flows["r"].exit_s[0] == pytest.approx(282.10, abs=0.01)
+    assert flows["r"].exit_s[0] == pytest.approx(hand, abs=1e-6)
+    assert flows["r"].exit_s[0] == pytest.approx(30 / 1.19 + 200 / 0.78, abs=1e-6)
 
 
 def test_vectorised_over_occupants_and_speed_factor():

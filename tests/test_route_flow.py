@@ -23,12 +23,14 @@ def test_along_route_dose_with_the_queue_at_its_location(tmp_path):
     """The queue for a door stands in the corridor before it, so it is charged there.
 
     Hand: 100 persons start at 60 s (detection 30 s + alarm 30 s, no pre-movement).
-    The corridor (at 'corridor', 2000 ppm CO) passes them at 2.08 persons/s; the
-    first reaches the door after 1/2.08 + 11.9/1.19 = 10.48 s, and the door (0.91
-    persons/s, controlling) passes the last at 60 + 10.48 + 100/0.91 = 180.37 s. The
-    door says `at: corridor`: the last occupant is in the corridor from 60 s (walking,
-    then queuing) to 180.37 s, and before that, with `start_at: corridor`, from 0 s.
-    FED = 180.37 s / 60 x 2000/35000 = 0.1718. The exit corridor (no CO) adds nothing.
+    They walk the corridor (at 'corridor', 2000 ppm CO; unimpeded, 11.9/1.19 = 10 s,
+    upstream of the controlling door) and the door (0.91 persons/s, controlling)
+    passes the last at 60 + 10 + 100/0.91 = 179.89 s: travel + N/Fc (the corridor's
+    entry, with spare capacity, adds nothing: SFPE Handbook ch. 59, flow in = flow
+    out). The door says `at: corridor`: the last occupant is in the corridor from
+    60 s (walking, then queuing) to 179.89 s, and before that, with `start_at:
+    corridor`, from 0 s. FED = 179.89 s / 60 x 2000/35000 = 0.1713. The exit corridor
+    (no CO) adds nothing; its entry's queue (none) is charged to the door's location.
     """
     t = np.arange(0.0, 1201.0, 5.0)
     cols = {"CO1": ("ppm", np.full_like(t, 2000.0)), "CO2x": ("ppm", np.zeros_like(t))}
@@ -42,14 +44,19 @@ def test_along_route_dose_with_the_queue_at_its_location(tmp_path):
     crit = {"base": "general-2m", "only": ["fed_toxic"]}
     res, _ = results_for(write_study(tmp_path, t, cols, locs, routes=[route], criteria=crit))
     r = res["scenarios"][0]["routes"][0]
-    leave_door = 60 + 1 / 2.08 + 11.9 / 1.19 + 100 / (1.3 * 0.7)
+    leave_door = 60 + 11.9 / 1.19 + 100 / (1.3 * 0.7)
     assert r["elements"][1]["clearing_s"]["p50"] == pytest.approx(leave_door, abs=0.05)
     # the queue at the door: the last person waits from reaching it to passing it
     assert r["elements"][1]["queue_s"]["p50"] > 60.0
+    # people wait for the exit corridor in the location before it (the door's)
+    assert [(e["at"], e["queue_at"]) for e in r["elements"]] == [("corridor", "corridor"), ("corridor", "corridor"),
+                                                                 ("exit", "corridor")]
     dose = r["along_route"]["criteria"]["fed_toxic"]["p50"]
-    assert dose == pytest.approx(leave_door / 60 * 2000 / 35000, rel=2e-3)       # 0.1718
-    where = [h["location"] for h in r["along_route"]["history"]]
-    assert where == ["corridor", "corridor", "corridor", "exit"]
+    assert dose == pytest.approx(leave_door / 60 * 2000 / 35000, rel=2e-3)       # 0.1713
+    where = [(h["location"], h["what"]) for h in r["along_route"]["history"]]
+    assert where == [("corridor", "before moving"), ("corridor", "path element 1 (corridor)"),
+                     ("corridor", "path element 2 (door)"), ("corridor", "waiting to enter path element 3 (corridor)"),
+                     ("exit", "path element 3 (corridor)")]
 
 
 def test_location_aware_comparison_counts_only_where_and_while_people_are(tmp_path):
@@ -57,13 +64,15 @@ def test_location_aware_comparison_counts_only_where_and_while_people_are(tmp_pa
 
     Hand: 100 persons, detection 30 s + alarm 30 s, pre-movement across occupants
     uniform over 0-100 s: the last starts at 60 + 99.5 = 159.5 s (quantile 0.995). The
-    2.4 m door (at the room) passes them without a queue (arrivals 1 person/s < 2.73):
-    the last leaves the room at 159.5 + 1/2.73 = 159.87 s. The 120 m corridor (2.08
-    persons/s, controlling; flow through it about 1 person/s, Fs 0.63, D 0.52 < 0.54:
-    unimpeded 1.19 m/s): RSET = 159.87 + 1/2.08 + 120/1.19 = 261.19 s.
+    2.4 m door (at the room) passes them without a queue (arrivals 1 person/s < 2.73).
+    Alone, a person's passage takes 1/c of the narrowest element met (N/Fc with N = 1):
+    the last passes the 120 m corridor's entry (2.08 persons/s, controlling) at
+    159.5 + 1/2.08 = 159.98 s, waiting for it in the room (the location before it), and
+    walks it unimpeded (flow about 1 person/s of 2.08, D = (1 - sqrt(1 - 0.48))/(2 x
+    0.266) = 0.52 < 0.54: 1.19 m/s): RSET = 159.98 + 120/1.19 = 260.82 s.
     Room temperature 20 + 0.16 t reaches 60 degC at 250 s; the corridor stays at 20 degC.
-    Classic: route ASET 250 s < RSET 261.2 s, margin -11.2 s. Location-aware: room 250 -
-    159.87 = +90.1 s; the corridor never: the route does not fail for its occupants.
+    Classic: route ASET 250 s < RSET 260.8 s, margin -10.8 s. Location-aware: room 250 -
+    159.98 = +90.0 s; the corridor never: the route does not fail for its occupants.
     """
     t = np.arange(0.0, 1201.0, 5.0)
     cols = {"Troom": ("degC", 20 + 0.16 * t), "Tcorr": ("degC", np.full_like(t, 20.0))}
@@ -79,11 +88,11 @@ def test_location_aware_comparison_counts_only_where_and_while_people_are(tmp_pa
                                                            "ambient": {"temperature": "20 degC"},
                                                            "locations": locs}]}))
     r = res["scenarios"][0]["routes"][0]
-    rset = 159.5 + 1 / (1.3 * 2.1) + 1 / 2.08 + 120 / 1.19
+    rset = 159.5 + 1 / 2.08 + 120 / 1.19
     assert r["rset_s"]["p50"] == pytest.approx(rset, abs=0.05)
     assert r["rset_components_s"]["premovement"]["p50"] == pytest.approx(99.5)
     assert r["margin_s"]["p50"] == pytest.approx(250.0 - rset, abs=0.1)          # classic: fails
-    assert r["location_aware_margin_s"]["p50"] == pytest.approx(250.0 - (159.5 + 1 / 2.73), abs=0.1)
+    assert r["location_aware_margin_s"]["p50"] == pytest.approx(250.0 - (159.5 + 1 / 2.08), abs=0.05)
     assert r["location_aware_binding"] == "room"
     assert r["premovement_meaning"].startswith("across occupants")
 
@@ -91,9 +100,10 @@ def test_location_aware_comparison_counts_only_where_and_while_people_are(tmp_pa
 def test_shared_element_in_results_and_common_random_numbers(tmp_path):
     """Two routes of 60 on one named door: the door passes 120 persons at 0.91 persons/s.
 
-    Hand: everyone starts at 30 s, each route walks 11.9 m (10 s after its corridor
-    entry, 1/2.08 s) to the shared door: combined clearing 30 + 10.48 + 120/0.91 =
-    172.35 s; each route alone would clear at 30 + 10.48 + 60/0.91 = 106.41 s.
+    Hand: everyone starts at 30 s, each route walks 11.9 m (10 s) to the shared door:
+    combined clearing 30 + 10 + 120/0.91 = 171.87 s; each route alone would clear at
+    30 + 10 + 60/0.91 = 105.93 s (the corridors' entries, with spare capacity, add
+    nothing: SFPE Handbook ch. 59, flow in = flow out).
     """
     t = np.arange(0.0, 601.0, 5.0)
     cols = {"T": ("degC", np.full_like(t, 20.0))}
@@ -110,12 +120,12 @@ def test_shared_element_in_results_and_common_random_numbers(tmp_path):
     (shared,) = sc["shared_elements"]
     assert shared["id"] == "exit-door" and shared["routes"] == ["x", "y"]
     assert shared["combined_occupants"]["p50"] == 120
-    combined = 30 + 1 / 2.08 + 10 + 120 / 0.91
+    combined = 30 + 10 + 120 / 0.91
     assert shared["combined_clearing_s"]["p50"] == pytest.approx(combined, abs=0.05)
     x = sc["routes"][0]
     assert x["elements"][1]["shared_with"] == ["y"] and x["elements"][1]["id"] == "exit-door"
     assert max(r["rset_s"]["p50"] for r in sc["routes"]) == pytest.approx(combined, abs=0.05)
-    assert min(r["rset_s"]["p50"] for r in sc["routes"]) > 30 + 1 / 2.08 + 10 + 60 / 0.91
+    assert min(r["rset_s"]["p50"] for r in sc["routes"]) > 30 + 10 + 60 / 0.91
 
 
 def test_detection_alarm_premovement_streams_are_unchanged():

@@ -17,6 +17,7 @@ from .egress import distributions as dist
 from .egress.detection import rti_response
 from .egress.flow import NetElement, NetRoute, NodeFlow, RouteFlow, quantile_positions, simulate
 from .egress.movement import element_properties, movement_time
+from .egress.placement import element_places
 from .egress.rset import compose_rset
 from .stats import rounded, share, summarise
 from .study import DetectorRule, RouteSpec
@@ -212,12 +213,16 @@ def _node(route: RouteSpec, i: int, element: dict) -> str:
 
 def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDraws], named: dict | None = None,
                     scale: list[dict] | None = None,
-                    width_scale: dict[str, float] | None = None) -> ScenarioEgress:
+                    width_scale: dict[str, float] | None = None,
+                    per_person: bool | None = None) -> ScenarioEgress:
     """RSET of every route of a scenario, routes that share named elements merged.
 
     ``scale`` is per route (see :func:`route_inputs`); ``width_scale``
     multiplies the effective width (hence capacity) of the named nodes given, by a
-    number or by one per draw (shape (S,)).
+    number or by one per draw (shape (S,)). ``per_person``: keep every occupant's
+    times in the flow's :class:`egressmargin.egress.flow.ElementPass` (True: every
+    route; False: none; None: the routes with ``exposure: along-route``); they cost
+    up to S x N x 16 bytes per element (see ElementPass).
 
     Notes
     -----
@@ -241,7 +246,8 @@ def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDr
                              inp.speed_factor))
         inputs.append(inp)
         props.append(pr)
-    flows, nodes = simulate(nets, {eid: el.upstream for eid, el in named.items()})
+    keep = {r.id for r in routes if r.along_route} if per_person is None else per_person
+    flows, nodes = simulate(nets, {eid: el.upstream for eid, el in named.items()}, per_person=keep)
     out = {}
     for route, inp, pr in zip(routes, inputs, props):
         fl = flows[route.id]
@@ -252,9 +258,10 @@ def scenario_egress(routes: list[RouteSpec], prep, factors, draws: list[EgressDr
         move = np.where(np.isfinite(start_last), move, np.inf)
         total, parts = compose_rset(inp.detection_s, inp.alarm_s, pre_last, move)
         mv = movement_time(route.path, route.occupants)
-        mv = replace(mv, notes=[*mv.notes, "travel and flow times here are the hand form for checking (unimpeded "
-                                "travel + nominal occupants / least capacity); the RSET uses the flow model "
-                                "(queues, crowd speed, shared elements, start times across occupants)"])
+        mv = replace(mv, notes=[*mv.notes, "travel and flow times here are the hand form for checking (travel at "
+                                "the hand method's speeds + nominal occupants / least capacity), which the flow "
+                                "model gives when everyone starts together; the RSET uses the flow model (queues, "
+                                "shared elements, start times across occupants)"])
         out[route.id] = RouteEgress(total, {"detection": parts["detection_s"], "alarm": parts["alarm_s"],
                                             "premovement": parts["premovement_s"],
                                             "movement": parts["movement_s"]}, fl, inp, pr, mv)
@@ -304,20 +311,11 @@ def outcome(route: RouteSpec, prep, loc_aset, loc_aset_raw, governing_raw, egres
 def element_locations(route: RouteSpec) -> list[tuple[str, str]]:
     """Location of each path element and how it was found ("at" or "assigned").
 
-    An element's own ``at`` wins. Otherwise elements are assigned to the ``exposed_at``
-    locations in order, in proportion to distance along the path (location
-    floor(midpoint / total length x n)); a zero-length door takes the location at its
-    position.
+    The walking location of :func:`egressmargin.egress.placement.element_places`
+    (given by the element's ``at``, else its nearest placed neighbour in path order,
+    else by distance along ``exposed_at``).
     """
-    lengths = np.array([e["length_m"] for e in route.path], float)
-    total_len = lengths.sum()
-    n_loc = len(route.exposed_at)
-    starts = np.concatenate([[0.0], np.cumsum(lengths)[:-1]])
-    mids = starts + lengths / 2
-    idx = np.minimum((mids / total_len * n_loc).astype(int) if total_len > 0 else
-                     np.zeros(len(lengths), int), n_loc - 1)
-    return [(e["at"], "at") if e.get("at") else (route.exposed_at[int(i)], "assigned")
-            for e, i in zip(route.path, idx)]
+    return [(p.walk, "at" if p.given else "assigned") for p in element_places(route)]
 
 
 @dataclass
@@ -334,16 +332,25 @@ def location_history(route: RouteSpec, egress: RouteEgress) -> list[Stay]:
     """The last occupant's location-time history: start_at, then each element.
 
     At ``start_at`` (if given) from ignition until the last occupant starts to move;
-    then at each element's location from reaching its entry (queue included) until
-    leaving it after walking its length (:class:`egressmargin.egress.flow.ElementPass`).
+    then, for each element, waiting at its entry in the location before it (from
+    reaching the entry to passing it) and walking it at its own location (from
+    passing the entry to leaving the element), as placed by
+    :func:`egressmargin.egress.placement.element_places`; where both locations are
+    the same, one stay from reaching the entry to leaving
+    (:class:`egressmargin.egress.flow.ElementPass`).
     """
     S = egress.rset.shape[0]
     out = []
     start = egress.inputs.detection_s + egress.inputs.alarm_s + egress.inputs.last_premovement_s
     if route.start_at:
         out.append(Stay(route.start_at, "before moving", np.zeros(S), start))
-    for i, ((loc, _), ep) in enumerate(zip(element_locations(route), egress.flow.elements)):
-        out.append(Stay(loc, f"path element {i + 1} ({route.path[i]['type']})", ep.arrive_s, ep.leave_s))
+    for i, (place, ep) in enumerate(zip(element_places(route), egress.flow.elements)):
+        what = f"path element {i + 1} ({route.path[i]['type']})"
+        if place.queue == place.walk:
+            out.append(Stay(place.walk, what, ep.arrive_s, ep.leave_s))
+        else:
+            out.append(Stay(place.queue, f"waiting to enter {what}", ep.arrive_s, ep.pass_s))
+            out.append(Stay(place.walk, what, ep.pass_s, ep.leave_s))
     return out
 
 
@@ -442,7 +449,7 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
                     "share_undetermined": share(undetermined),
                     "within_limit_at_p95": summary["p95"] is not None and summary["p95"] < c.limit}
     beyond = share(exit_t > end)
-    placed = element_locations(route)
+    placed = element_places(route)
     return {"criteria": out, "last_occupant_exit_s": summarise(exit_t, 1),
             "share_beyond_end": beyond,
             "history": [{"location": h.location, "what": h.what, "from_s": summarise(h.t_in, 1),
@@ -452,11 +459,11 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
                  "(detection + alarm + their pre-movement).") if route.start_at else
                 "No start_at location: no dose is counted before the last occupant starts moving.",
                 "At each path element the last occupant queues at its entry and then walks it, at the speed of the "
-                "flow model (crowd speed from the controlling element on); queue and walk are charged to the "
-                "element's location.",
+                "flow model (crowd speed from the controlling element on); the queue is charged to the location "
+                "before the element (start_at for the first), the walk to the element's own location.",
                 "Element locations: " + "; ".join(
-                    f"{i + 1} {route.path[i]['type']} at '{loc}' ({'given' if how == 'at' else 'assigned in order of distance along exposed_at'})"
-                    for i, (loc, how) in enumerate(placed)) + ".",
+                    f"{i + 1} {route.path[i]['type']} at '{p.walk}' ({p.how}), queue at '{p.queue}'"
+                    for i, p in enumerate(placed)) + ".",
                 "Doses accrue only while the occupant is at a location. Where the last occupant is still inside "
                 "when the histories end and the limit has not been reached, the dose is not determined: such "
                 "draws count as exceeding the limit and their percentiles are not given"

@@ -7,6 +7,30 @@ share its capacity draw by draw: their streams are merged at the element. Everyt
 vectorised over the Monte Carlo draws (axis 0) and over the persons (axis 1); the only
 Python loops are over routes and elements.
 
+Rules of the hydraulic hand method (Gwynne & Rosenbaum 2016, SFPE Handbook 5th ed.
+ch. 59; from memory, the handbook text was not at hand) and how the model keeps them:
+
+* **N/Fc through the controlling element.** A person is one unit of a fluid stream:
+  passing a point takes them a *span* of time (the span is this model's device for
+  keeping the hand method's rules with discrete persons: project choice; for one route
+  it reproduces the fluid model of Newell 1982 ch. 2 exactly). People who start
+  together are a point (span 0) and a bottleneck of capacity c gives each a span of at
+  least 1/c, so N persons who arrive together pass in N/c (:func:`fifo_departures`).
+* **Transitions: flow in = flow out.** An element with spare capacity passes a stream
+  as it arrives and adds no time: a person whose span is at least 1/c is not delayed
+  (:func:`fifo_departures` with ``spans_s``). A route on which everyone starts together
+  therefore takes its walking time plus N/Fc of the controlling element, exactly the
+  hand form :func:`egressmargin.egress.movement.movement_time`.
+* **Speed from density.** Upstream of a route's controlling element people walk at the
+  unimpeded speed (its queue absorbs the crowd); at and after it, at the speed of the
+  density with which the element carries the flow measured through it
+  (:func:`transferred_flow`, :func:`egressmargin.egress.movement.crowd_density`): an
+  element discharging at capacity has the density of maximum flow, 1/(2a) = 1.88
+  persons/m^2 (speed k/2); a group too small to reach 0.54 persons/m^2 (one person, a
+  few people on a long corridor) walks unimpeded.
+* **Merging at landings** (:func:`merge_priority`): the stream already in the element
+  keeps its flow, the joining stream gets what capacity is left (from memory).
+
 Time reference: seconds from ignition. A person who never starts (a fire never
 detected, or a person beyond the draw's occupant count) has start time +inf and stays at
 +inf through every element, after everyone else.
@@ -23,11 +47,12 @@ ch. 2 (the deterministic fluid queue: departures = arrivals delayed by the backl
 
 from __future__ import annotations
 
+from collections.abc import Collection
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from .movement import A_DENSITY_M2, DENSITY_UNIMPEDED_P_M2, speed
+from .movement import A_DENSITY_M2, DENSITY_UNIMPEDED_P_M2, crowd_density, density_at_flow, speed
 
 __all__ = [
     "ElementPass",
@@ -40,13 +65,14 @@ __all__ = [
     "fifo_departures",
     "merge_fifo",
     "merge_priority",
+    "passing_spans",
     "quantile_positions",
     "simulate",
     "transferred_flow",
 ]
 
 
-def fifo_departures(arrivals_s, capacity_p_s) -> np.ndarray:
+def fifo_departures(arrivals_s, capacity_p_s, spans_s=None) -> np.ndarray:
     """Times at which persons pass a first-in, first-out bottleneck.
 
     Parameters
@@ -55,32 +81,48 @@ def fifo_departures(arrivals_s, capacity_p_s) -> np.ndarray:
         Arrival times [s], shape (S, N), ascending along axis 1 (+inf last: absent).
     capacity_p_s : float or array_like
         Flow capacity [persons/s], > 0; scalar or shape (S,).
+    spans_s : array_like, optional
+        Each person's passing span [s], shape (S, N): the time their passage past a
+        point took upstream (:func:`passing_spans`). None: 0 for everyone (people who
+        start together, a point in the stream).
 
     Returns
     -------
     numpy.ndarray
-        Pass times [s], shape (S, N).
+        Pass times [s], shape (S, N): when each person has passed.
 
     Notes
     -----
-    Each person occupies the bottleneck for 1/c, so N persons who arrive together take
-    N/c (the hand method's flow time t = N/Fc). With persons k = 0..N-1:
+    A person is a unit of a fluid stream whose passage arrives spread evenly over
+    [a_k - s_k, a_k] (span s_k). The bottleneck passes at most c persons per second,
+    first in first out, so person k has passed at
 
-        d_k = max(a_k, d_(k-1)) + 1/c,   d_(-1) = -inf
+        d_k = max(a_k, a_k - s_k + 1/c, d_(k-1) + 1/c),   d_(-1) = -inf:
 
-    whose closed form (unrolling the recursion, Newell 1982 ch. 2) is
+    not before they have arrived, not faster than the capacity allows, and not before
+    the person ahead has passed plus 1/c. With b_k = a_k + max(0, 1/c - s_k) the
+    recursion is d_k = max(b_k, d_(k-1) + 1/c), whose closed form (unrolling it,
+    Newell 1982 ch. 2) is
 
-        d_k = (k + 1)/c + max_(j <= k) (a_j - j/c),
+        d_k = k/c + max_(j <= k) (b_j - j/c),
 
-    a running maximum (``numpy.maximum.accumulate``) over the persons. The last
-    person passes at max_j [a_j + (N - j)/c]: the fluid-queue clearing time
-    max over s of [s + (N - A(s))/c] for the arrival count A.
+    a running maximum (``numpy.maximum.accumulate``) over the persons.
+
+    * N persons who arrive together (span 0) pass at (k + 1)/c: the last at N/c, the
+      hand method's flow time t = N/Fc. Without spans this is the recursion
+      d_k = max(a_k, d_(k-1)) + 1/c.
+    * A stream that left a narrower element has spans >= 1/c' >= 1/c: it passes as it
+      arrives (d_k = a_k), the transition rule "flow in = flow out" (SFPE Handbook
+      ch. 59, from memory): an element with spare capacity adds no time.
 
     Examples
     --------
-    Three persons at t = 0 through a door of 1 person/s pass at 1, 2 and 3 s:
+    Three persons at t = 0 through a door of 1 person/s pass at 1, 2 and 3 s; that
+    stream (spans 1 s) then passes a door of 2 persons/s without delay:
 
     >>> fifo_departures([[0.0, 0.0, 0.0]], 1.0).tolist()
+    [[1.0, 2.0, 3.0]]
+    >>> fifo_departures([[1.0, 2.0, 3.0]], 2.0, [[1.0, 1.0, 1.0]]).tolist()
     [[1.0, 2.0, 3.0]]
     """
     a = np.asarray(arrivals_s, dtype=float)
@@ -89,14 +131,65 @@ def fifo_departures(arrivals_s, capacity_p_s) -> np.ndarray:
         c = c[:1]                            # one capacity in every draw: j/c once, not per draw
     c = c[:, None] if c.ndim == 1 else c
     j = np.arange(a.shape[1], dtype=float)[None, :]
-    d = a - j / c
+    if spans_s is None:
+        d = a - j / c
+        np.maximum.accumulate(d, axis=1, out=d)
+        d += (j + 1.0) / c
+        return d
+    d = np.subtract(1.0 / c, np.asarray(spans_s, dtype=float))     # one (S, N) array, worked in place
+    np.maximum(d, 0.0, out=d)
+    d += a
+    jc = j / c
+    d -= jc
     np.maximum.accumulate(d, axis=1, out=d)
-    d += (j + 1.0) / c
+    d += jc
     return d
 
 
-def _merged(streams: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray, list[int]]:
-    """Concatenate streams and sort each draw's arrivals; return sorted, order, sizes.
+def passing_spans(arrivals_s, spans_s, departures_s) -> np.ndarray:
+    """Passing span of each person leaving a first-in, first-out bottleneck.
+
+    Parameters
+    ----------
+    arrivals_s, spans_s, departures_s : numpy.ndarray
+        Arrival times [s], spans on arrival [s] (None: 0) and pass times [s], shape
+        (S, N), in the order in which the persons pass (ascending ``departures_s``).
+
+    Returns
+    -------
+    numpy.ndarray
+        Span [s] of each person's passage out of the bottleneck, shape (S, N); 0 for
+        absent persons.
+
+    Notes
+    -----
+    The bottleneck starts on person k when both their passage has begun to arrive
+    and the person ahead has passed, t0 = max(a_k - s_k, d_(k-1)), and finishes at
+    d_k: the span out is d_k - t0 (1/c for a queue discharging at capacity; the span
+    on arrival for a stream passing freely). Walking at one speed keeps the spans.
+    For the stream of a single route whose persons start as points this is exact for
+    the fluid model (the bottleneck passes each person at a constant rate); where
+    streams merge, spreading the passage evenly over the span is an approximation
+    (project choice).
+
+    Examples
+    --------
+    >>> passing_spans(np.array([[0.0, 0.0]]), None, np.array([[1.0, 2.0]])).tolist()
+    [[1.0, 1.0]]
+    """
+    a = np.asarray(arrivals_s, dtype=float)
+    d = np.asarray(departures_s, dtype=float)
+    out = a.copy() if spans_s is None else np.subtract(a, np.asarray(spans_s, dtype=float))   # begin
+    np.maximum(out[:, 1:], d[:, :-1], out=out[:, 1:])          # t0 = max(begin, pass of the one ahead)
+    with np.errstate(invalid="ignore"):
+        np.subtract(d, out, out=out)
+    out[~np.isfinite(out)] = 0.0
+    return out
+
+
+def _merged(streams: list[np.ndarray], spans: list[np.ndarray] | None = None
+            ) -> tuple[np.ndarray, np.ndarray | None, np.ndarray, list[int]]:
+    """Concatenate streams and sort each draw's arrivals; return sorted, spans, order, sizes.
 
     Arrivals at the same instant from different streams are interleaved in proportion
     to the streams' sizes (person j of N_r ranks by (j + 1/2)/N_r), so that two groups
@@ -108,7 +201,16 @@ def _merged(streams: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray, list[int
     rank = np.concatenate([np.broadcast_to((np.arange(s.shape[1]) + 0.5) / max(s.shape[1], 1), s.shape)
                            for s in streams], axis=1)
     order = np.lexsort((rank, joined), axis=1)
-    return np.take_along_axis(joined, order, axis=1), order, [s.shape[1] for s in streams]
+    spans = _joined_spans(streams, spans)
+    sp = None if spans is None else np.take_along_axis(spans, order, axis=1)
+    return np.take_along_axis(joined, order, axis=1), sp, order, [s.shape[1] for s in streams]
+
+
+def _joined_spans(streams, spans) -> np.ndarray | None:
+    """The streams' spans side by side (None: every span 0; a None stream's spans are 0)."""
+    if spans is None or all(x is None for x in spans):
+        return None
+    return np.concatenate([np.zeros(st.shape) if x is None else x for st, x in zip(streams, spans)], axis=1)
 
 
 def _unmerged(departures: np.ndarray, order: np.ndarray, sizes: list[int]) -> list[np.ndarray]:
@@ -117,7 +219,15 @@ def _unmerged(departures: np.ndarray, order: np.ndarray, sizes: list[int]) -> li
     return np.split(back, np.cumsum(sizes)[:-1], axis=1)
 
 
-def merge_fifo(streams: list[np.ndarray], capacity_p_s) -> list[np.ndarray]:
+def _fifo_merge(streams, spans, capacity_p_s):
+    """:func:`merge_fifo` that also returns each stream's spans out."""
+    joined, sp, order, sizes = _merged(streams, spans)
+    d = fifo_departures(joined, capacity_p_s, sp)
+    return _unmerged(d, order, sizes), _unmerged(passing_spans(joined, sp, d), order, sizes)
+
+
+def merge_fifo(streams: list[np.ndarray], capacity_p_s, spans: list[np.ndarray] | None = None
+               ) -> list[np.ndarray]:
     """Pass several arrival streams through one bottleneck, first come first served.
 
     Parameters
@@ -126,6 +236,8 @@ def merge_fifo(streams: list[np.ndarray], capacity_p_s) -> list[np.ndarray]:
         Arrival times [s] of each stream, shape (S, N_r), each ascending along axis 1.
     capacity_p_s : float or array_like
         Capacity of the shared bottleneck [persons/s]; scalar or (S,).
+    spans : list of numpy.ndarray, optional
+        Passing spans [s] of each stream's persons (:func:`fifo_departures`); None: 0.
 
     Returns
     -------
@@ -137,12 +249,23 @@ def merge_fifo(streams: list[np.ndarray], capacity_p_s) -> list[np.ndarray]:
     The streams are merged in order of arrival (per draw) and passed by
     :func:`fifo_departures`; each person keeps its stream.
     """
-    joined, order, sizes = _merged(streams)
-    return _unmerged(fifo_departures(joined, capacity_p_s), order, sizes)
+    return _fifo_merge(streams, spans, capacity_p_s)[0]
+
+
+def _spans_any_order(streams, spans, deps):
+    """:func:`passing_spans` of several streams through one element, in pass order."""
+    a = np.concatenate(streams, axis=1)
+    d = np.concatenate(deps, axis=1)
+    order = np.argsort(d, axis=1, kind="stable")
+    spans = _joined_spans(streams, spans)
+    sp = None if spans is None else np.take_along_axis(spans, order, axis=1)
+    out = passing_spans(np.take_along_axis(a, order, axis=1), sp, np.take_along_axis(d, order, axis=1))
+    return _unmerged(out, order, [x.shape[1] for x in streams])
 
 
 def merge_priority(priority: list[np.ndarray], others: list[np.ndarray], capacity_p_s,
-                   chunk_elements: int = 20_000_000) -> tuple[list[np.ndarray], list[np.ndarray]]:
+                   chunk_elements: int = 20_000_000, spans_priority: list[np.ndarray] | None = None,
+                   spans_others: list[np.ndarray] | None = None) -> tuple[list[np.ndarray], list[np.ndarray]]:
     """Merge streams where one is already in the element and keeps its flow.
 
     Parameters
@@ -157,6 +280,9 @@ def merge_priority(priority: list[np.ndarray], others: list[np.ndarray], capacit
         Capacity of the element [persons/s]; scalar or (S,).
     chunk_elements : int
         Largest number of (draw x person x person) comparisons held at once.
+    spans_priority, spans_others : list of numpy.ndarray, optional
+        Passing spans [s] of the persons of each stream (:func:`fifo_departures`);
+        None: 0.
 
     Returns
     -------
@@ -173,36 +299,48 @@ def merge_priority(priority: list[np.ndarray], others: list[np.ndarray], capacit
     The priority persons pass at p_i (:func:`fifo_departures`), each occupying the
     slot [p_i - 1/c, p_i]. Free time phi(t) = t - (time in slots before t) is
     nondecreasing; in free time the joining stream meets a plain FIFO bottleneck of
-    capacity c: f_k = (k + 1)/c + max_(j <= k) (phi(a_j) - j/c). Its pass time is the
-    clock time at which free time f_k is reached: t = f_k + n(f_k)/c, where n(f) is
-    the number of slots whose start lies at free time below f (slot i starts at
-    free time g_i = p_i - (i + 1)/c). The rule is preemptive, as in the fluid
-    model: a joining person whose passage is interrupted by the stream already in
-    the element finishes after it. Total work never exceeds the capacity, so the
-    element clears at the same time as under first come, first served.
+    capacity c: f_k = (k + 1)/c + max_(j <= k) (phi(a_j) - j/c) (with spans, the
+    rule of :func:`fifo_departures` with each span measured in free time,
+    phi(a_j) - phi(a_j - s_j)). Its pass time is the clock time at which free
+    time f_k is reached: t = f_k + n(f_k)/c, where n(f) is the number of slots whose
+    start lies at free time below f (slot i starts at free time g_i = p_i - (i +
+    1)/c). The rule is preemptive, as in the fluid model: a joining person whose
+    passage is interrupted by the stream already in the element finishes after it.
+    Total work never exceeds the capacity, so the element clears at the same time as
+    under first come, first served.
     """
-    p_sorted, p_order, p_sizes = _merged(priority)
-    o_sorted, o_order, o_sizes = _merged(others)
+    p_sorted, p_spans, p_order, p_sizes = _merged(priority, spans_priority)
+    o_sorted, o_spans, o_order, o_sizes = _merged(others, spans_others)
     S, n_p = p_sorted.shape
     n_o = o_sorted.shape[1]
     c = np.broadcast_to(np.asarray(capacity_p_s, dtype=float), (S,))
-    p = fifo_departures(p_sorted, c)
+    p = fifo_departures(p_sorted, c, p_spans)
     slot = (1.0 / c)[:, None]                                   # (S, 1)
     with np.errstate(invalid="ignore"):
         slot_start = p - slot
         g = slot_start - np.arange(n_p, dtype=float)[None, :] * slot   # free time at slot starts
-    phi = np.empty_like(o_sorted)
     step = max(1, chunk_elements // max(1, n_p * n_o))
-    for lo in range(0, S, step):            # chunks of draws bound the memory; not a per-draw loop
-        sl = slice(lo, lo + step)
-        a = o_sorted[sl][:, :, None]
-        w = slot[sl][:, :, None]
+
+    def free_time(x):
+        phi = np.empty_like(x)
+        for lo in range(0, S, step):        # chunks of draws bound the memory; not a per-draw loop
+            sl = slice(lo, lo + step)
+            a = x[sl][:, :, None]
+            w = slot[sl][:, :, None]
+            with np.errstate(invalid="ignore"):
+                done = (p[sl][:, None, :] <= a).sum(axis=2)
+                inside = np.where(p[sl][:, None, :] > a,
+                                  np.clip(a - slot_start[sl][:, None, :], 0.0, w), 0.0).sum(axis=2)
+                phi[sl] = x[sl] - done * slot[sl] - inside
+        return phi
+
+    phi = free_time(o_sorted)
+    if o_spans is None:
+        f = fifo_departures(phi, c)
+    else:                                   # a joining person's span measured in free time
         with np.errstate(invalid="ignore"):
-            done = (p[sl][:, None, :] <= a).sum(axis=2)
-            inside = np.where(p[sl][:, None, :] > a,
-                              np.clip(a - slot_start[sl][:, None, :], 0.0, w), 0.0).sum(axis=2)
-            phi[sl] = o_sorted[sl] - done * slot[sl] - inside
-    f = fifo_departures(phi, c)
+            free_span = phi - free_time(o_sorted - o_spans)
+        f = fifo_departures(phi, c, np.where(np.isfinite(free_span), free_span, 0.0))
     out = np.empty_like(o_sorted)
     for lo in range(0, S, step):
         sl = slice(lo, lo + step)
@@ -212,7 +350,7 @@ def merge_priority(priority: list[np.ndarray], others: list[np.ndarray], capacit
     return _unmerged(p, p_order, p_sizes), _unmerged(out, o_order, o_sizes)
 
 
-def density_for_flow(k, specific_flow_p_s_m) -> np.ndarray:
+def density_for_flow(k, specific_flow_p_s_m, max_specific_flow=None) -> np.ndarray:
     """Crowd density that carries a given specific flow, on the uncongested branch.
 
     Parameters
@@ -221,6 +359,11 @@ def density_for_flow(k, specific_flow_p_s_m) -> np.ndarray:
         Speed constant of the element [m/s].
     specific_flow_p_s_m : float or array_like
         Specific flow Fs [persons/(s m) of effective width], >= 0.
+    max_specific_flow : float or array_like, optional
+        The element's tabulated maximum specific flow Fsm [persons/(s m)]. Given, the
+        curve is scaled so that Fsm falls at the density of maximum flow
+        (:func:`egressmargin.egress.movement.density_at_flow` of Fs/Fsm, the rule
+        the flow model uses); None: the unscaled curve, whose peak is k/(4a).
 
     Returns
     -------
@@ -235,21 +378,27 @@ def density_for_flow(k, specific_flow_p_s_m) -> np.ndarray:
 
         D = (1 - sqrt(1 - 4 a Fs / k)) / (2 a),   a = 0.266 m^2/person.
 
-    A flow above the element's peak k/(4a) (a tabulated maximum that rounds up, e.g.
-    1.16 for k = 1.23) is held at the peak: D = 1/(2a).
+    A flow above the peak is held at the peak: D = 1/(2a).
 
     Examples
     --------
+    A 178/279 mm stair (k = 1.08 m/s) at its tabulated maximum 1.01 persons/(s m):
+    on the unscaled curve 1.747; at the density of maximum flow with the scaled one.
+
     >>> round(float(density_for_flow(1.08, 1.01)), 3)
     1.747
+    >>> round(float(density_for_flow(1.08, 1.01, 1.01)), 3)
+    1.88
     """
     k = np.asarray(k, dtype=float)
     fs = np.asarray(specific_flow_p_s_m, dtype=float)
+    if max_specific_flow is not None:
+        return np.asarray(density_at_flow(fs / np.asarray(max_specific_flow, dtype=float)), dtype=float)
     disc = np.clip(1.0 - 4.0 * A_DENSITY_M2 * fs / k, 0.0, 1.0)
     return (1.0 - np.sqrt(disc)) / (2.0 * A_DENSITY_M2)
 
 
-def crowd_speed(k, specific_flow_p_s_m) -> np.ndarray:
+def crowd_speed(k, specific_flow_p_s_m, max_specific_flow=None) -> np.ndarray:
     """Walking speed in the crowd that carries a given specific flow.
 
     Parameters
@@ -258,6 +407,8 @@ def crowd_speed(k, specific_flow_p_s_m) -> np.ndarray:
         Speed constant of the element [m/s].
     specific_flow_p_s_m : float or array_like
         Specific flow Fs [persons/(s m)].
+    max_specific_flow : float or array_like, optional
+        Tabulated maximum specific flow Fsm (see :func:`density_for_flow`).
 
     Returns
     -------
@@ -268,12 +419,12 @@ def crowd_speed(k, specific_flow_p_s_m) -> np.ndarray:
 
     Examples
     --------
-    A stair of 178/279 mm (k = 1.08 m/s) at its maximum specific flow 1.01:
+    A stair of 178/279 mm (k = 1.08 m/s) discharging at capacity walks at k/2:
 
-    >>> round(float(crowd_speed(1.08, 1.01)), 3)
-    0.578
+    >>> round(float(crowd_speed(1.08, 1.01, 1.01)), 3)
+    0.54
     """
-    return np.asarray(speed(k, density_for_flow(k, specific_flow_p_s_m)), dtype=float)
+    return np.asarray(speed(k, density_for_flow(k, specific_flow_p_s_m, max_specific_flow)), dtype=float)
 
 
 def transferred_flow(pass_s: np.ndarray, capacity_p_s) -> np.ndarray:
@@ -289,8 +440,8 @@ def transferred_flow(pass_s: np.ndarray, capacity_p_s) -> np.ndarray:
     Returns
     -------
     numpy.ndarray
-        F = (n - 1) / (last - first pass), at most the capacity; the capacity where
-        fewer than two persons pass.
+        F = (n - 1) / (last - first pass), at most the capacity; 0 where fewer than
+        two persons pass (one person makes no crowd).
 
     Notes
     -----
@@ -307,7 +458,7 @@ def transferred_flow(pass_s: np.ndarray, capacity_p_s) -> np.ndarray:
     last = np.max(pass_s, axis=1, where=finite, initial=-np.inf)
     with np.errstate(divide="ignore", invalid="ignore"):
         f = (n - 1) / (last - first)
-    return np.where((n >= 2) & (last > first), np.minimum(f, c), c)
+    return np.where(n < 2, 0.0, np.where(last > first, np.minimum(f, c), c))
 
 
 def quantile_positions(counts) -> np.ndarray:
@@ -406,22 +557,38 @@ class NetRoute:
 
 @dataclass
 class ElementPass:
-    """How a route's occupants pass one element, per draw (arrays of shape (S,)).
+    """How a route's occupants pass one element, per draw.
 
     Attributes
     ----------
     arrive_s, pass_s, leave_s : numpy.ndarray
         The last occupant reaches the element's entry, passes its bottleneck, and
-        leaves it after walking its length [s from ignition].
+        leaves it after walking its length [s from ignition], shape (S,).
     queue_s : numpy.ndarray
-        Longest wait of any of the route's occupants at the element's entry [s].
+        Longest wait of any of the route's occupants at the element's entry [s], (S,).
     speed_m_s : numpy.ndarray
-        Walking speed on the element [m/s] (crowd speed at and after the route's
+        Walking speed on the element [m/s], (S,) (crowd speed at and after the route's
         controlling element, unimpeded before it; times the speed factor).
     capacity_p_s : numpy.ndarray
-        Capacity used [persons/s] (times the flow factor).
+        Capacity used [persons/s], (S,) (times the flow factor).
     density_p_m2 : numpy.ndarray
-        Crowd density used for the speed [persons/m^2] (0 where unimpeded).
+        Crowd density used for the speed [persons/m^2], (S,) (0 where unimpeded).
+    arrive_each_s, pass_each_s, leave_each_s : numpy.ndarray or None
+        The same three times for every occupant, shape (S, N), in the route's person
+        order (column j: the (j + 1)-th to start in the draw), +inf for a person
+        absent from the draw (beyond its occupant count, or never starting). From
+        ``arrive_each_s`` to ``pass_each_s`` the person waits at the entry and passes
+        it; from ``pass_each_s`` to ``leave_each_s`` they walk the element. None when
+        :func:`simulate` was asked not to keep them.
+
+    Notes
+    -----
+    Memory: three (S, N) float64 arrays, S x N x 8 x 3 bytes per element if counted
+    separately (1000 occupants x 16000 draws: 384 MB). ``arrive_each_s`` is the same
+    array object as the previous element's ``leave_each_s`` (the route's start times
+    for the first element), and for a zero-length element (a door)
+    ``leave_each_s`` is ``pass_each_s``, so an element adds at most S x N x 16
+    bytes (256 MB in that example; 128 MB for a door).
     """
 
     arrive_s: np.ndarray
@@ -431,6 +598,9 @@ class ElementPass:
     speed_m_s: np.ndarray
     capacity_p_s: np.ndarray
     density_p_m2: np.ndarray
+    arrive_each_s: np.ndarray | None = None
+    pass_each_s: np.ndarray | None = None
+    leave_each_s: np.ndarray | None = None
 
 
 @dataclass
@@ -458,8 +628,8 @@ def _last(x: np.ndarray, counts: np.ndarray) -> np.ndarray:
     return x[np.arange(x.shape[0]), counts - 1]
 
 
-def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = None
-             ) -> tuple[dict[str, RouteFlow], dict[str, NodeFlow]]:
+def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = None,
+             per_person: bool | Collection[str] = True) -> tuple[dict[str, RouteFlow], dict[str, NodeFlow]]:
     """Pass every route's occupants through its path, sharing named elements.
 
     Parameters
@@ -470,6 +640,11 @@ def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = Non
         For a shared element id, the routes whose stream is already in it (merge rule
         of :func:`merge_priority`); other shared elements merge first come, first
         served (:func:`merge_fifo`).
+    per_person : bool or collection of str
+        Keep every occupant's times in :class:`ElementPass` (``arrive_each_s``,
+        ``pass_each_s``, ``leave_each_s``; see its memory note): True for every
+        route, or the ids of the routes to keep them for. False: only the last
+        occupant's (S,) times.
 
     Returns
     -------
@@ -486,11 +661,17 @@ def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = Non
     -----
     At each element the persons queue at its entry and pass at its capacity (times
     the route's flow factor; for a shared element the least flow factor of its
-    routes), then walk its length. The walking speed is the unimpeded speed upstream
-    of the route's controlling element (where the queue absorbs the crowding, as in the
-    hand method) and, at and after it, the crowd speed that carries the flow measured
-    through the element (:func:`transferred_flow`, :func:`crowd_speed`). A shared
-    element's capacity is shared by the routes that reach it, draw by draw.
+    routes), then walk its length. Each person carries a passing span
+    (:func:`fifo_departures`, :func:`passing_spans`): 0 at the start, so that N who
+    start together pass the controlling element in N/Fc and elements with spare
+    capacity add no time. The walking speed is the unimpeded speed upstream of the
+    route's controlling element (where the queue absorbs the crowding, as in the hand
+    method) and, at and after it, the speed at the crowd density with which the
+    element carries the flow measured through it (:func:`transferred_flow`,
+    :func:`egressmargin.egress.movement.crowd_density`: the density of maximum flow
+    for an element discharging at capacity, unimpeded for a group too small to reach
+    0.54 persons/m^2). A shared element's capacity is shared by the routes that reach
+    it, draw by draw.
     """
     priority = priority or {}
     users: dict[str, list[tuple[int, int]]] = {}
@@ -503,6 +684,7 @@ def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = Non
     pos = [0] * len(routes)
     ctrls = [route.controlling for route in routes]
     arrivals = [route.starts_s for route in routes]
+    spans: list[np.ndarray | None] = [None] * len(routes)         # None: 0, people start as points
     passes: list[list[ElementPass]] = [[] for _ in routes]
     nodes: dict[str, NodeFlow] = {}
     while any(pos[r] < len(route.elements) for r, route in enumerate(routes)):
@@ -514,7 +696,8 @@ def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = Non
             us = users[node]
             if not all(pos[u] == i for u, i in us):
                 continue
-            _pass_node(node, us, routes, ctrls, arrivals, passes, nodes, priority.get(node, []))
+            _pass_node(node, us, routes, ctrls, arrivals, spans, passes, nodes, priority.get(node, []),
+                       per_person)
             for u, _ in us:
                 pos[u] += 1
             progressed = True
@@ -528,43 +711,62 @@ def simulate(routes: list[NetRoute], priority: dict[str, list[str]] | None = Non
     return flows, nodes
 
 
-def _pass_node(node, us, routes, ctrls, arrivals, passes, nodes, first_ids):
+def _pass_node(node, us, routes, ctrls, arrivals, spans, passes, nodes, first_ids, per_person=True):
     S = routes[us[0][0]].starts_s.shape[0]
     el = routes[us[0][0]].elements[us[0][1]]
     factor = np.min(np.stack([np.broadcast_to(routes[u].flow_factor, (S,)) for u, _ in us]), axis=0)
     cap = el.capacity_p_s * factor
     streams = [arrivals[u] for u, _ in us]
+    spans_in = [spans[u] for u, _ in us]
     ahead = [k for k, (u, _) in enumerate(us) if routes[u].id in first_ids]
     if ahead and len(ahead) < len(us):
         behind = [k for k in range(len(us)) if k not in ahead]
-        d_ahead, d_behind = merge_priority([streams[k] for k in ahead], [streams[k] for k in behind], cap)
+        d_ahead, d_behind = merge_priority([streams[k] for k in ahead], [streams[k] for k in behind], cap,
+                                           spans_priority=[spans_in[k] for k in ahead],
+                                           spans_others=[spans_in[k] for k in behind])
         deps = [None] * len(us)
         for k, d in zip(ahead, d_ahead):
             deps[k] = d
         for k, d in zip(behind, d_behind):
             deps[k] = d
+        spans_out = _spans_any_order(streams, spans_in, deps)
+    elif len(us) > 1:
+        deps, spans_out = _fifo_merge(streams, spans_in, cap)
     else:
-        deps = merge_fifo(streams, cap) if len(us) > 1 else [fifo_departures(streams[0], cap)]
-    flow = transferred_flow(deps[0] if len(deps) == 1 else np.concatenate(deps, axis=1), cap)
-    fs = flow / el.effective_width_m
-    density = density_for_flow(el.k, fs)
+        deps = [fifo_departures(streams[0], cap, spans_in[0])]
+        spans_out = [passing_spans(streams[0], spans_in[0], deps[0])]
+    everyone = deps[0] if len(deps) == 1 else np.concatenate(deps, axis=1)
+    flow = transferred_flow(everyone, cap)
+    n_present = np.isfinite(everyone).sum(axis=1)
+    density = np.asarray(crowd_density(flow / cap, n_present, el.length_m, el.effective_width_m), dtype=float)
     crowded = np.where(density < DENSITY_UNIMPEDED_P_M2, 0.0, density)
     leaves = []
-    for (u, i), a, d in zip(us, streams, deps):
+    for (u, i), a, sp, d, sp_out in zip(us, streams, spans_in, deps, spans_out):
         route = routes[u]
         dens = np.where(i >= ctrls[u], crowded, 0.0)     # crowd speed at and after the controlling element
         v = np.broadcast_to(np.asarray(speed(el.k, dens), dtype=float), (S,)) * route.speed_factor
         leave = d + (el.length_m / v)[:, None] if el.length_m > 0 else d
-        # wait at the entry: pass - 1/c - arrival; an absent person (a = d = +inf) gives NaN,
-        # which fmax skips, so the queue is the longest wait of the persons present (or 0)
+        # wait at the entry: pass time less the pass time had the person been alone,
+        # a + max(0, 1/c - span); an absent person (a = d = +inf) gives NaN, which fmax
+        # skips, so the queue is the longest wait of the persons present (or 0)
         with np.errstate(invalid="ignore"):
-            wait = d - (1.0 / cap)[:, None]
-            wait -= a
+            if sp is None:
+                wait = d - a
+                wait -= (1.0 / cap)[:, None]
+            else:
+                wait = np.subtract(sp, (1.0 / cap)[:, None])     # -max(0, 1/c - span), in place
+                np.minimum(wait, 0.0, out=wait)
+                wait += d
+                wait -= a
+        keep = per_person is True or (per_person is not False and route.id in per_person)
         passes[u].append(ElementPass(
             arrive_s=_last(a, route.counts), pass_s=_last(d, route.counts), leave_s=_last(leave, route.counts),
             queue_s=np.fmax(np.fmax.reduce(wait, axis=1), 0.0), speed_m_s=v, capacity_p_s=cap,
-            density_p_m2=np.broadcast_to(dens, (S,)).copy()))
+            density_p_m2=np.broadcast_to(dens, (S,)).copy(),
+            arrive_each_s=a if keep else None, pass_each_s=d if keep else None,
+            leave_each_s=leave if keep else None))
         arrivals[u] = leave
+        spans[u] = sp_out
         leaves.append(_last(leave, route.counts))
     if len(us) > 1:
         nodes[node] = NodeFlow(node, [routes[u].id for u, _ in us], np.max(np.stack(leaves), axis=0),

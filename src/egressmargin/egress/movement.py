@@ -3,7 +3,26 @@
 The occupants of a route walk its elements (corridors, doors, stairs, ramps) in order.
 Each element has a walking speed and a flow capacity from the hydraulic model of the
 SFPE Handbook egress chapter; the movement time is the travel time of the whole path
-at unimpeded speed plus the time for everyone to pass the element of least capacity.
+plus the time for everyone to pass the element of least capacity, N/Fc.
+
+Rules of the hand method used here (SFPE Handbook 5th ed. ch. 59, from memory unless
+said otherwise):
+
+* speed S = k (1 - a D) for D >= 0.54 persons/m^2; below it the unimpeded speed
+  0.85 k (:func:`speed`);
+* flow capacity Fc = Fsm We; the element of least capacity controls and everyone
+  passes it in N/Fc;
+* transitions: the flow leaving an element enters the next (flow in = flow out), so
+  an element with spare capacity adds no time, and its crowd carries the
+  controlling flow at the density of the uncongested branch (:func:`density_at_flow`);
+* an element that discharges at capacity has the density of maximum flow,
+  D = 1/(2a) = 1.88 persons/m^2, and speed k/2 (the tabulated Fsm is the rounded peak
+  of Fs = (1 - aD) k D; scaling the curve to it is a project choice);
+* density is persons per area, so a group too small to fill an element stays below
+  0.54 persons/m^2 and walks unimpeded (:func:`crowd_density`; the area bound is a
+  project choice that follows from the definition);
+* upstream of the controlling element people walk unimpeded: its queue absorbs the
+  crowd (hand-method practice, from memory).
 
 Tabulated values (k, a, maximum specific flows, boundary layers) are quoted from the
 SFPE Handbook egress chapter **from memory**; the table numbers are also from memory.
@@ -31,6 +50,7 @@ __all__ = [
     "A_DENSITY_M2",
     "BOUNDARY_LAYER_M",
     "DEFAULT_BOUNDARY_M",
+    "DENSITY_MAX_FLOW_P_M2",
     "DENSITY_UNIMPEDED_P_M2",
     "ELEMENT_TYPES",
     "FSM_LEVEL_P_S_M",
@@ -38,7 +58,10 @@ __all__ = [
     "STAIR_ROWS",
     "UNIMPEDED_FRACTION",
     "MovementTime",
+    "crowd_density",
+    "density_at_flow",
     "effective_width",
+    "hand_speeds",
     "element_properties",
     "movement_time",
     "select_stair_row",
@@ -75,6 +98,11 @@ FSM_LEVEL_P_S_M: float = 1.3
 #: Density [persons/m^2] at or below which people walk at their unimpeded speed
 #: (SFPE Handbook ch. 59 -- from memory).
 DENSITY_UNIMPEDED_P_M2: float = 0.54
+
+#: Density of maximum flow [persons/m^2]: Fs = (1 - a D) k D peaks at D = 1/(2a) = 1.88
+#: (follows from the speed equation of SFPE Handbook ch. 59; the handbook states the
+#: peak near 1.9 persons/m^2 -- from memory).
+DENSITY_MAX_FLOW_P_M2: float = 1.0 / (2.0 * A_DENSITY_M2)
 
 #: Unimpeded (maximum) speed as a fraction of k (SFPE Handbook ch. 59, table of
 #: maximum unimpeded travel speeds: 1.19 m/s for corridors = 0.85 x 1.40 -- from
@@ -221,6 +249,134 @@ def specific_flow(k, density_p_m2) -> np.ndarray:
     """
     f = np.asarray(speed(k, density_p_m2)) * np.asarray(density_p_m2, dtype=float)
     return f if f.ndim else float(f)
+
+
+def density_at_flow(flow_ratio) -> np.ndarray:
+    """Crowd density at which an element carries a given share of its capacity.
+
+    Parameters
+    ----------
+    flow_ratio : float or array_like
+        Flow through the element over its capacity, F / Fc [-]; clipped to [0, 1].
+
+    Returns
+    -------
+    numpy.ndarray or float
+        Density D [persons/m^2] on the uncongested branch, between 0 and
+        1/(2a) = 1.88 (:data:`DENSITY_MAX_FLOW_P_M2`).
+
+    Notes
+    -----
+    The specific flow Fs = (1 - a D) k D (SFPE Handbook ch. 59, from memory) peaks at
+    D = 1/(2a) with the value k/(4a); the tabulated maximum specific flow Fsm is that
+    peak rounded (1.3 for k/(4a) = 1.316 on level ground; 0.94, 1.01, 1.09, 1.16 for
+    the stair rows' 0.940, 1.015, 1.090, 1.156). The capacity Fc = Fsm We is thus the
+    flow at the density of maximum flow. Written relative to its peak the curve is
+    F/Fc = 4 a D (1 - a D), and on its uncongested branch
+
+        D = (1 - sqrt(1 - F/Fc)) / (2a).
+
+    An element that discharges at capacity (F = Fc) has D = 1/(2a) and speed
+    k (1 - a D) = k/2: 0.70 m/s on level ground, 0.54 m/s on a 178/279 mm stair.
+    (Inverting the rounded Fsm on the unscaled curve instead puts a corridor at
+    capacity at D = 1.675 and 0.777 m/s, faster than the speed at maximum flow.)
+    Scaling the curve to its tabulated peak is a project choice; it changes other
+    densities by at most the tabulated rounding (1.2 %).
+
+    Examples
+    --------
+    >>> round(float(density_at_flow(1.0)), 3), round(float(density_at_flow(0.75)), 3)
+    (1.88, 0.94)
+    """
+    r = np.clip(np.asarray(flow_ratio, dtype=float), 0.0, 1.0)
+    d = (1.0 - np.sqrt(1.0 - r)) * DENSITY_MAX_FLOW_P_M2
+    return d if d.ndim else float(d)
+
+
+def crowd_density(flow_ratio, persons, length_m, effective_width_m) -> np.ndarray:
+    """Density of the crowd walking an element, for its speed.
+
+    Parameters
+    ----------
+    flow_ratio : float or array_like
+        Flow through the element over its capacity, F / Fc [-].
+    persons : float or array_like
+        Number of persons who use the element [persons].
+    length_m : float or array_like
+        Walking length of the element [m] (0 for a door).
+    effective_width_m : float or array_like
+        Effective width [m].
+
+    Returns
+    -------
+    numpy.ndarray or float
+        D = min(:func:`density_at_flow` (F/Fc), n / (L We)) [persons/m^2]; 0 for fewer
+        than two persons (one person makes no crowd).
+
+    Notes
+    -----
+    Density is persons per unit area (SFPE Handbook ch. 59, from memory): a group of n
+    persons cannot be denser on average than all of them spread over the element's
+    area L We. A small group that leaves a door at capacity is therefore not slowed on
+    a long corridor: below 0.54 persons/m^2 people walk at their unimpeded speed
+    (:func:`speed`). The area bound is a project choice that follows from the
+    definition; a door (L = 0) has none.
+
+    Examples
+    --------
+    Five persons leaving at capacity along a 60 m corridor of 1.6 m effective width:
+    5 / 96 = 0.052 persons/m^2, unimpeded.
+
+    >>> round(float(crowd_density(1.0, 5, 60.0, 1.6)), 3)
+    0.052
+    """
+    n = np.asarray(persons, dtype=float)
+    length = np.asarray(length_m, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        area_bound = np.where(length > 0, n / (length * np.asarray(effective_width_m, dtype=float)), np.inf)
+    d = np.where(n >= 2, np.minimum(density_at_flow(flow_ratio), area_bound), 0.0)
+    return d if d.ndim else float(d)
+
+
+def hand_speeds(props: list[dict[str, Any]], occupants) -> tuple[np.ndarray, np.ndarray]:
+    """Walking speed and crowd density on each element, everyone starting together.
+
+    Parameters
+    ----------
+    props : list of dict
+        :func:`element_properties` of each element, in path order.
+    occupants : float or array_like
+        Number of persons [persons]; scalar or shape (S,).
+
+    Returns
+    -------
+    (numpy.ndarray, numpy.ndarray)
+        Speeds [m/s] and densities [persons/m^2], shape (E,) + the shape of
+        ``occupants``, before any speed factor. The density is NaN upstream of the
+        controlling element (unimpeded: the queue there absorbs the crowd).
+
+    Notes
+    -----
+    The controlling element c is the one of least capacity (the first if tied). It
+    discharges at its capacity Fc_c, and by the transition rule (flow in = flow out,
+    SFPE Handbook ch. 59, from memory) so does every element after it: element i >= c
+    carries F = Fc_c, at density :func:`crowd_density` (Fc_c / Fc_i, N, L_i, We_i) and
+    speed :func:`speed` at that density. Before the controlling element people walk at
+    the unimpeded speed 0.85 k.
+    """
+    occ = np.asarray(occupants, dtype=float)
+    caps = np.array([p["capacity_p_s"] for p in props])
+    ctrl = int(np.argmin(caps))
+    speeds, dens = [], []
+    for i, p in enumerate(props):
+        if i < ctrl:
+            speeds.append(np.full(occ.shape, p["unimpeded_speed_m_s"]))
+            dens.append(np.full(occ.shape, np.nan))
+        else:
+            d = np.asarray(crowd_density(caps[ctrl] / caps[i], occ, p["length_m"], p["effective_width_m"]))
+            speeds.append(np.asarray(speed(p["k"], d), dtype=float) * np.ones(occ.shape))
+            dens.append(d * np.ones(occ.shape))
+    return np.array(speeds), np.array(dens)
 
 
 def effective_width(width_m: float, element_type: str, boundary_m: float | None = None) -> float:
@@ -435,7 +591,8 @@ class MovementTime:
     Attributes
     ----------
     travel_s : float or numpy.ndarray
-        Walking time of the whole path at unimpeded speed [s].
+        Walking time of the whole path at the hand method's speeds [s]
+        (:func:`hand_speeds`).
     flow_s : float or numpy.ndarray
         Time for all occupants to pass the controlling element [s].
     total_s : float or numpy.ndarray
@@ -445,7 +602,8 @@ class MovementTime:
     capacities_p_s : numpy.ndarray
         Flow capacity of each element [persons/s], shape (E,), before flow_factor.
     speeds_m_s : numpy.ndarray
-        Unimpeded speed of each element [m/s], shape (E,), before speed_factor.
+        Speed on each element [m/s] (:func:`hand_speeds`), shape (E,) + the
+        broadcast shape of the inputs, before speed_factor.
     elements : list of dict
         :func:`element_properties` of each element.
     notes : list of str
@@ -493,20 +651,21 @@ def movement_time(
 
     Notes
     -----
-    With elements i of length L_i, unimpeded speed v_i = 0.85 k_i and flow capacity
-    Fc_i = Fsm_i We_i:
+    With elements i of length L_i, flow capacity Fc_i = Fsm_i We_i and the controlling
+    element c of least capacity:
 
-        t_travel = sum_i L_i / (f_speed v_i)
-        t_flow   = N / (f_flow min_i Fc_i)
+        t_travel = sum_(i < c) L_i / (f_speed v0_i) + sum_(i >= c) L_i / (f_speed v_i)
+        t_flow   = N / (f_flow Fc_c)
         t_move   = t_travel + t_flow
 
-    This is the hand form of the hydraulic model: the controlling element's
-    capacity sets the flow; transitions between elements and queue build-up
-    upstream are not tracked separately. The run computes movement with the flow
-    model (:mod:`egressmargin.egress.flow`), which gives this sum when everyone
-    starts together and walks at unimpeded speed; this function is the reviewer's
-    hand check. (The larger of travel and flow time, once offered, is not: it lets
-    the last person walk the whole path while the others queue.)
+    v0_i = 0.85 k_i is the unimpeded speed (upstream of the controlling element, where
+    its queue absorbs the crowd); v_i is the speed at the density with which element
+    i carries the controlling flow (:func:`hand_speeds`: transitions pass the flow
+    on, an element at capacity has D = 1/(2a), a group too small to reach 0.54
+    persons/m^2 walks unimpeded). This is the hand form of the hydraulic model; the
+    run computes movement with the flow model (:mod:`egressmargin.egress.flow`), which
+    gives exactly this sum for one route when everyone starts together (tested in
+    ``tests/test_hand_vs_flow.py``).
 
     References
     ----------
@@ -517,7 +676,8 @@ def movement_time(
     Examples
     --------
     200 people, a 30 m corridor 2.0 m wide, then a 0.9 m door: the door carries
-    1.3 x (0.9 - 0.3) = 0.78 persons/s, flow 256.4 s; travel 30/1.19 = 25.2 s.
+    1.3 x (0.9 - 0.3) = 0.78 persons/s, flow 256.4 s; travel 30/1.19 = 25.2 s
+    (the corridor is upstream of the door, which controls).
 
     >>> path = [{"type": "corridor", "length_m": 30.0, "width_m": 2.0},
     ...         {"type": "door", "width_m": 0.9}]
@@ -543,12 +703,12 @@ def movement_time(
         raise ValueError("flow_factor must be positive")
 
     lengths = np.array([p["length_m"] for p in props])
-    speeds = np.array([p["unimpeded_speed_m_s"] for p in props])
     capacities = np.array([p["capacity_p_s"] for p in props])
     controlling = int(np.argmin(capacities))
 
     occ, f_speed, f_flow = np.broadcast_arrays(occ, f_speed, f_flow)
-    travel = float(np.sum(lengths / speeds)) / f_speed
+    speeds, _ = hand_speeds(props, occ)
+    travel = np.sum(lengths.reshape((-1,) + (1,) * occ.ndim) / speeds, axis=0) / f_speed
     flow = occ / (f_flow * capacities[controlling])
     total = travel + flow
     notes = [f"path element {i + 1}: {n}" for i, p in enumerate(props) for n in p["notes"]]

@@ -14,8 +14,8 @@ from dataclasses import dataclass, fields, is_dataclass
 import numpy as np
 
 from ..stats import summarise
-from .flow import crowd_speed, density_for_flow
-from .movement import element_properties
+from .movement import element_properties, hand_speeds
+from .placement import element_places
 
 __all__ = ["ElementExplain", "ElementRecord", "LocationRecord", "SharedElementRecord", "explain_route",
            "explain_text",
@@ -25,6 +25,9 @@ __all__ = ["ElementExplain", "ElementRecord", "LocationRecord", "SharedElementRe
 @dataclass
 class ElementRecord:
     """One path element of one route: geometry, capacity, speed, clearing and queue.
+
+    ``at`` is where people walk it (``at_source``: "given" or "assigned"), ``queue_at``
+    where they wait to enter it (:func:`egressmargin.egress.placement.element_places`).
 
     ``capacity_p_s`` and ``speed_m_s`` are per draw (the route's flow and speed
     factors, crowd speed), serialised as medians; ``clearing_s`` (the last occupant
@@ -37,6 +40,7 @@ class ElementRecord:
     id: str | None
     at: str
     at_source: str
+    queue_at: str
     length_m: float
     length_basis: str | None
     effective_width_m: float
@@ -88,14 +92,13 @@ def premovement_meaning(route) -> str:
 
 def route_record(route, egress, nodes: dict, location_aware) -> RouteEgressRecord:
     """Build the record of one route from :class:`egressmargin.assess.RouteEgress`."""
-    from ..assess import element_locations
-
-    places = element_locations(route)
+    places = element_places(route)
     elements = []
-    for i, (e, p, ep, (loc, how)) in enumerate(zip(route.path, egress.properties, egress.flow.elements, places)):
+    for i, (e, p, ep, pl) in enumerate(zip(route.path, egress.properties, egress.flow.elements, places)):
         node = nodes.get(e.get("id")) if e.get("id") else None
         elements.append(ElementRecord(
-            index=i + 1, type=e["type"], id=e.get("id"), at=loc, at_source="given" if how == "at" else "assigned",
+            index=i + 1, type=e["type"], id=e.get("id"), at=pl.walk, at_source="given" if pl.given else "assigned",
+            queue_at=pl.queue,
             length_m=p["length_m"], length_basis=e.get("length_basis") if e["type"] == "stair" else None,
             effective_width_m=p["effective_width_m"], capacity_p_s=ep.capacity_p_s, speed_m_s=ep.speed_m_s,
             clearing_s=ep.leave_s, queue_s=ep.queue_s,
@@ -176,36 +179,44 @@ class ElementExplain:
     speed_m_s: float
     controlling: bool
     notes: list[str]
+    at: str = ""
+    at_how: str = ""
+    queue_at: str = ""
 
 
 def explain_route(route) -> list[ElementExplain]:
-    """Effective width, density, speed, specific flow and capacity of each element.
+    """Effective width, density, speed, specific flow, capacity and place of each element.
 
     Notes
     -----
     Capacity Fc = Fsm We. The controlling element is the one of least capacity; it
     and every element after it carry its flow F = Fc_min (transition rule: the flow
-    leaving an element enters the next), at specific flow Fs = F / We, density D on
-    the uncongested branch of Fs = (1 - a D) k D and speed S = k (1 - a D) (unimpeded
-    0.85 k below D = 0.54 persons/m^2). Before it people walk unimpeded (the queue
-    at the controlling element absorbs the crowd), shown with density None. SFPE
-    Handbook 5th ed. ch. 59 (from memory). Routes sharing a named element share its
-    capacity; this per-route view does not include the other routes' flow.
+    leaving an element enters the next), at specific flow Fs = F / We, density and
+    speed of :func:`egressmargin.egress.movement.hand_speeds` (the density of maximum
+    flow 1/(2a) at capacity, D = (1 - sqrt(1 - F/Fc)) / (2a) below it, at most the
+    route's nominal occupants over the element's area; unimpeded 0.85 k below 0.54
+    persons/m^2). Before it people walk unimpeded (the queue at the controlling
+    element absorbs the crowd), shown with density None. SFPE Handbook 5th ed. ch. 59
+    (from memory). These are the speeds of the flow model when everyone starts
+    together. Routes sharing a named element share its capacity; this per-route view
+    does not include the other routes' flow. Each element's walking and queuing
+    location come from :func:`egressmargin.egress.placement.element_places`.
     """
     props = [element_properties(e) for e in route.path]
     ctrl = int(np.argmin([p["capacity_p_s"] for p in props]))
     flow = props[ctrl]["capacity_p_s"]
+    speeds, densities = hand_speeds(props, route.occupants)
+    places = element_places(route)
     out = []
-    for i, (e, p) in enumerate(zip(route.path, props)):
+    for i, (e, p, pl) in enumerate(zip(route.path, props, places)):
         if i >= ctrl:
-            fs = flow / p["effective_width_m"]
-            density = float(density_for_flow(p["k"], fs))
-            v = float(crowd_speed(p["k"], fs))
+            fs, density = flow / p["effective_width_m"], float(densities[i])
         else:
-            fs, density, v = float("nan"), None, p["unimpeded_speed_m_s"]
+            fs, density = float("nan"), None
         out.append(ElementExplain(i + 1, e["type"], e.get("id"), p["length_m"], e.get("length_basis"),
                                   p["effective_width_m"], p["k"], p["max_specific_flow"], p["capacity_p_s"],
-                                  flow if i >= ctrl else float("nan"), fs, density, v, i == ctrl, p["notes"]))
+                                  flow if i >= ctrl else float("nan"), fs, density, float(speeds[i]), i == ctrl,
+                                  p["notes"], pl.walk, pl.how, pl.queue))
     return out
 
 
@@ -218,9 +229,11 @@ def explain_text(study) -> str:
 
     Per route: each element's length (and how a stair's length was found), effective
     width, speed constant, maximum specific flow, capacity, the flow it carries, its
-    specific flow, density and speed (:func:`explain_route`); then the hand-form
-    movement time of the route alone (travel at those speeds + N / least capacity),
-    and for each shared element the combined count over its capacity.
+    specific flow, density and speed (:func:`explain_route`); where its people walk
+    and wait (given by ``at`` or assigned); then the hand-form movement time of the
+    route alone (travel at those speeds + N / least capacity, which the flow model
+    gives when everyone starts together), and for each shared element the combined
+    count over its capacity.
     """
     lines = []
     head = ("#", "type", "id", "length m", "We m", "k m/s", "Fsm p/(s m)", "Fc p/s", "F p/s", "Fs p/(s m)",
@@ -246,6 +259,10 @@ def explain_text(study) -> str:
                 lines.append(f"  element {r.index} stair length: {r.length_basis}")
             for note in r.notes:
                 lines.append(f"  element {r.index}: {note}")
+        for r in rows:
+            lines.append(f"  element {r.index} ({r.type}) at {r.at}: "
+                         f"{'given' if r.at_how == 'given' else 'assigned ' + r.at_how}; "
+                         f"waiting to enter it at {r.queue_at}")
         ctrl = next(r for r in rows if r.controlling)
         travel = sum(r.length_m / r.speed_m_s for r in rows if r.length_m > 0)
         flow_t = route.occupants / ctrl.capacity_p_s
@@ -263,6 +280,7 @@ def explain_text(study) -> str:
                      f"{n} occupants / {cap:.3f} persons/s = {n / cap:.1f} s through it (in scenarios where "
                      "all of them run)")
     lines.append("Hydraulic method constants: SFPE Handbook 5th ed. ch. 59 (from memory). F: flow carried from the "
-                 "controlling element on; Fs = F / We; D on the uncongested branch of Fs = (1 - a D) k D; "
+                 "controlling element on (flow in = flow out); Fs = F / We; D = (1 - sqrt(1 - F/Fc)) / (2a) on the "
+                 "uncongested branch (1/(2a) = 1.88 at capacity), at most the occupants over the element's area; "
                  "S = k (1 - a D), or 0.85 k where D < 0.54 or upstream of the controlling element.")
     return "\n".join(lines)
