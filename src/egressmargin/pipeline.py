@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__, aset, assess, outputs
+from . import __version__, aset, assess, design, outputs
 from .clock import shift_to_ignition
 from .egress import summary as egress_summary
 from .credibility import flag_change, grid_convergence
@@ -346,6 +346,8 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                          if route.along_route else None),
             sensitivity=sensitivities[route.id])
         entry = route_json(result)
+        entry["draw_counts"] = design.counts_from_outcomes(draw_outcomes(out.aset, out.rset, end),
+                                                           v.deterministic, assessed_any).as_results()
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
     scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),
@@ -649,6 +651,9 @@ def build_results(loaded: Loaded, options: RunOptions):
         "warnings": [str(w) for w in loaded.warnings] + [w for sc in scenarios for w in sc["warnings"]],
         "scenarios": scenarios,
     }
+    if study.scenario_weights is not None:      # weighted design fires: the design-level figure
+        limit = study.max_p_fail if study.max_design_p_fail is None else study.max_design_p_fail
+        results["design"] = design.design_results(scenarios, study.scenario_weights, limit, study.weights_source)
     return results, plots
 
 

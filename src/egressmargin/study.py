@@ -49,6 +49,8 @@ ROUTE_KEYS = {"id", "title", "scenarios", "occupants", "detection", "alarm", "pr
               "exposed_at", "movement", "exposure", "flow_factor", "speed_factor", "start_at"}
 #: A scenario's CSV format: field delimiters it may declare (``delimiter:``), and decimal marks (``decimal:``).
 SCENARIO_KEYS = SCENARIO_KEYS | {"delimiter", "decimal"}
+#: Weighted design fires (probabilistic design, see :mod:`egressmargin.design`).
+TOP_KEYS = TOP_KEYS | {"scenario_weights", "weights_source"}
 DELIMITERS = {",": ",", ";": ";", "\t": "\t", r"\t": "\t", "tab": "\t", "|": "|"}
 DECIMALS = (".", ",")
 
@@ -199,6 +201,11 @@ class Study:
     elements: dict[str, "NamedElement"] = field(default_factory=dict)
     #: Report options (top-level `report:`), e.g. ``{"unused_locations": "appendix"}``.
     report: dict = field(default_factory=lambda: {"unused_locations": UNUSED_LOCATIONS[0]})
+    #: Weighted design fires: {scenario id: probability} (sum 1), or None; where they come from;
+    #: the acceptance limit on the design-level p_fail (None: max_p_fail).
+    scenario_weights: dict[str, float] | None = None
+    weights_source: str = ""
+    max_design_p_fail: float | None = None
 
     @property
     def base_dir(self) -> Path:
@@ -373,15 +380,17 @@ def check_study(path: str | Path, criteria_override: str | None = None
     if "max_samples" in data and isinstance(max_samples, int) and max_samples < samples:
         ck.err(("max_samples",), f"found {max_samples}; expected at least 'samples' ({samples})")
     max_p_fail = 0.05
+    max_design_p_fail = None
     if "acceptance" in data:
         acc = data["acceptance"]
-        if ck.keys(acc, ("acceptance",), {"max_p_fail"}, "acceptance"):
+        if ck.keys(acc, ("acceptance",), {"max_p_fail", "max_design_p_fail"}, "acceptance"):
             if "max_p_fail" in acc:
                 v = acc["max_p_fail"]
                 if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 <= v < 1:
                     ck.err(("acceptance", "max_p_fail"), f"found {_show(v)}; expected a probability in [0, 1)")
                 else:
                     max_p_fail = float(v)
+            max_design_p_fail = _max_design_p_fail(ck, acc)
     max_grid_change = 0.10
     if "credibility" in data:
         cred = data["credibility"]
@@ -401,6 +410,7 @@ def check_study(path: str | Path, criteria_override: str | None = None
     named, broken = _named_elements(ck, data.get("elements"))
     routes = _routes(ck, data.get("egress", []), loc_ids, named, broken)
     _check_upstream(ck, named, routes)
+    scenario_weights = _scenario_weights(ck, data, scenarios)
 
     # Report fields are checked before the error count, so a map or list there is an error, not a blank.
     for key in ("reference", "prepared_by", "prepared_for"):
@@ -417,7 +427,65 @@ def check_study(path: str | Path, criteria_override: str | None = None
                  prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),
                  paper="letter" if paper.lower() == "letter" else "A4", max_grid_change=max_grid_change,
                  warnings=[p for p in ck.problems if p.warning], elements=named,
-                 report=report), scenarios, ck.problems
+                 report=report, scenario_weights=scenario_weights,
+                 weights_source=ck.text(data.get("weights_source"), ("weights_source",)),
+                 max_design_p_fail=max_design_p_fail), scenarios, ck.problems
+
+
+def _max_design_p_fail(ck, acc) -> float | None:
+    """``acceptance.max_design_p_fail``: the limit on the design-level p_fail (None: not given)."""
+    if "max_design_p_fail" not in acc:
+        return None
+    v = acc["max_design_p_fail"]
+    if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 <= v < 1:
+        ck.err(("acceptance", "max_design_p_fail"), f"found {_show(v)}; expected a probability in [0, 1)")
+        return None
+    return float(v)
+
+
+def _scenario_weights(ck, data, scenarios) -> dict[str, float] | None:
+    """``scenario_weights: {scenario id: probability}``: every scenario named once, none negative, sum 1.
+
+    A scenario left out is an error (project choice: an unweighted design fire would silently
+    drop out of the design-level figure). The sum may differ from 1 by
+    :data:`egressmargin.design.WEIGHT_SUM_TOLERANCE` (round-off).
+    """
+    from .design import WEIGHT_SUM_TOLERANCE
+
+    if "weights_source" in data and "scenario_weights" not in data:
+        ck.err(("weights_source",), "found 'weights_source' without 'scenario_weights'; expected both or neither")
+    if "scenario_weights" not in data:
+        return None
+    value = data["scenario_weights"]
+    kp = ("scenario_weights",)
+    if not isinstance(value, dict) or not value:
+        ck.err(kp, f"found {_show(value)}; expected a mapping {{<scenario id>: <probability>}} summing to 1")
+        return None
+    ids = [s.id for s in scenarios]
+    out, ok = {}, True
+    for sid, w in value.items():
+        if str(sid) not in ids:
+            ck.err(kp + (sid,), f"unknown scenario '{sid}'; expected one of {', '.join(ids)}{did_you_mean(sid, ids)}")
+            ok = False
+            continue
+        if isinstance(w, bool) or not isinstance(w, (int, float)) or w != w:
+            ck.err(kp + (sid,), f"found {_show(w)}; expected a probability (a number in [0, 1])")
+            ok = False
+        elif w < 0 or w > 1:
+            ck.err(kp + (sid,), f"found {w}; expected a probability in [0, 1] (weights are not negative)")
+            ok = False
+        else:
+            out[str(sid)] = float(w)
+    missing = [s for s in ids if s not in {str(k) for k in value}]
+    if missing:
+        ck.err(kp, f"no weight for scenario{'s' if len(missing) > 1 else ''} {', '.join(missing)}; expected a "
+               "weight for every scenario (give 0 to leave one out of the design-level figure)")
+        ok = False
+    if ok and abs(sum(out.values()) - 1.0) > WEIGHT_SUM_TOLERANCE:
+        ck.err(kp, f"the weights sum to {sum(out.values()):.9g}; expected 1 (conditional probabilities of the "
+               f"design fires given a fire, to within {WEIGHT_SUM_TOLERANCE:g})")
+        ok = False
+    return out if ok else None
 
 
 def _report_options(ck, value) -> dict:
