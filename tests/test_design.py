@@ -152,3 +152,22 @@ def test_no_weights_no_design_block(tmp_path):
     path.write_text(yaml.safe_dump(doc))
     res, _ = results_for(path)
     assert "design" not in res
+
+
+def test_report_opens_with_the_design_table_and_the_contributions_figure(tmp_path):
+    """With weights the summary opens with the design-level table (before the per-scenario table),
+    and figure 1 is the stacked contributions per route."""
+    from egressmargin.report.render import build_context, render_html
+
+    path = _two_fire_study(tmp_path, {"hot": 0.1, "cool": 0.9}, "300 s", samples=20)
+    res, plots = results_for(path)
+    ctx = build_context(res, plots)
+    assert ctx["figures"][0]["job"][0] == "design_contributions_figure"
+    assert ctx["design"]["rows"][0]["contributions"] == [("hot", pytest.approx(0.1)), ("cool", 0.0)]
+    html = render_html(res, plots)
+    i_design, i_scen = html.index("Design-level verdict per route"), html.index("Verdict per scenario and route")
+    assert i_design < i_scen
+    assert "invented event tree (illustrative)" in html
+    png = __import__("egressmargin.report.plots", fromlist=["x"]).design_contributions_figure(
+        **ctx["figures"][0]["job"][1])
+    assert png[:8] == b"\x89PNG\r\n\x1a\n"

@@ -546,10 +546,67 @@ def credibility_figure(cred: Mapping[str, Mapping[str, Mapping[str, Any]]],
         return finish(fig)
 
 
+# ------------------------------------------------------------ weighted design fires
+
+#: Fill greys for the scenarios' stacked contributions (distinct in greyscale; project choice).
+CONTRIBUTION_FILLS = ["#29536b", "#c9893a", "#c4d8e2", "#5a3826", "#5c7a2e", "#d5dbe1", "#6b5b95"]
+
+
+def design_contributions_figure(routes: Sequence[Mapping[str, Any]], scenarios: Sequence[str],
+                                max_p_fail: float | None = None, uid: str = "design"):
+    """Stacked bars: each weighted scenario's contribution w_s x p_s to a route's design-level p_fail.
+
+    Parameters
+    ----------
+    routes : sequence of mapping
+        ``{"id", "p_fail", "p_fail_ci95", "contributions": {scenario: w x p_fail}}`` per route
+        (results.json ``design.routes``).
+    scenarios : sequence of str
+        Scenario ids in the order to stack them.
+    max_p_fail : float, optional
+        The acceptance limit, drawn as a vertical line.
+    uid : str
+        Unused in the drawing; keeps figure jobs distinct.
+
+    Notes
+    -----
+    Horizontal bars, one per route; each segment is labelled in the legend and differs in
+    grey value from its neighbours; the 95 % interval on the total is a whisker.
+    """
+    matplotlib, plt = _plt()
+    n = max(1, len(routes))
+    height = 0.9 + 0.32 * n
+    with matplotlib.rc_context(_RC):
+        fig, ax = plt.subplots(figsize=(FIG_WIDTH_IN, height))
+        y = np.arange(n)[::-1]
+        left = np.zeros(n)
+        for k, sid in enumerate(scenarios):
+            vals = np.array([float((rt.get("contributions") or {}).get(sid, 0.0) or 0.0) for rt in routes])
+            ax.barh(y, vals, left=left, height=0.6, color=CONTRIBUTION_FILLS[k % len(CONTRIBUTION_FILLS)],
+                    edgecolor=INK, linewidth=0.4, label=_plain(sid))
+            left += vals
+        for yi, rt in zip(y, routes):
+            ci = rt.get("p_fail_ci95")
+            if ci:
+                ax.plot([ci[0], ci[1]], [yi, yi], color=INK, lw=0.9)
+                ax.plot([ci[0], ci[1]], [yi, yi], color=INK, lw=0, marker="|", ms=6)
+        if max_p_fail is not None:
+            ax.axvline(max_p_fail, color=LIMIT, ls="--", lw=0.9, label="acceptance limit")
+        ax.set_yticks(y)
+        ax.set_yticklabels([_plain(rt.get("id")) for rt in routes])
+        ax.set_xlabel("Design-level probability of failure (contribution of each design fire)")
+        ax.set_xlim(left=0.0)
+        ax.grid(axis="y", visible=False)
+        ax.legend(loc="upper center", bbox_to_anchor=(0.5, 1.0 + 0.55 / height), ncol=min(len(scenarios) + 1, 5))
+        fig.subplots_adjust(left=0.2, right=0.98, bottom=0.42 / height, top=1 - 0.5 / height)
+        return finish(fig)
+
+
 __all__ = [
     "finish",
     "location_figure",
     "route_figure",
     "route_panels",
     "credibility_figure",
+    "design_contributions_figure",
 ]

@@ -287,6 +287,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
     size = page_size(paper)  # check the paper name before any work
     plotdata = plotdata or {}
     figs = _Figures()
+    design = _design_view(results.get("design"), figs)   # weighted design fires: figure 1 when given
     study_in = results.get("study") or {}
     study = {k: study_in.get(k) for k in ("title", "reference", "prepared_by", "prepared_for",
                                           "paper", "path", "sha256")}
@@ -423,8 +424,34 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "column_maps": _column_maps(results.get("inputs") or []),
         "figures": figs.items,
         "n_figures": len(figs.items),
+        "design": design,
     }
     return ctx
+
+
+# ------------------------------------------------------------ weighted design fires
+
+def _design_view(design: Any, figs: "_Figures") -> dict[str, Any] | None:
+    """The design-level table and the contributions figure (results.json ``design``), or None."""
+    if not isinstance(design, Mapping) or not design.get("routes"):
+        return None
+    weights = dict(design.get("weights") or {})
+    routes = list(design["routes"])
+    rows = [{"id": rt.get("id"), "p_fail": rt.get("p_fail"), "p_fail_ci95": rt.get("p_fail_ci95"),
+             "p_fail_bounds": rt.get("p_fail_bounds"), "verdict": rt.get("verdict"),
+             "reason": rt.get("verdict_reason"), "note": rt.get("note"),
+             "contributions": [(sid, (rt.get("contributions") or {}).get(sid)) for sid in weights]}
+            for rt in routes]
+    fig = figs.add("design_contributions_figure",
+                   "Design-level probability of failure per route: each design fire's contribution (its weight "
+                   "times its p_fail, undecided draws counted as failures), stacked; the whisker is the 95 % "
+                   "interval on the total and the dashed line the acceptance limit.",
+                   routes=[{"id": rt.get("id"), "p_fail_ci95": rt.get("p_fail_ci95"),
+                            "contributions": dict(rt.get("contributions") or {})} for rt in routes],
+                   scenarios=list(weights), max_p_fail=design.get("max_p_fail"), uid="design")
+    return {"weights": list(weights.items()), "source": design.get("weights_source") or "",
+            "max_p_fail": design.get("max_p_fail"), "method": design.get("interval_method"),
+            "rows": rows, "figure": fig}
 
 
 def _ordered_design_fire(df: Any) -> list[tuple[str, Any]]:
