@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__, aset, assess, design, outputs
+from . import __version__, aset, assess, design, ensemble, outputs
 from .clock import shift_to_ignition
 from .egress import summary as egress_summary
 from .credibility import flag_change, grid_convergence
@@ -54,6 +54,8 @@ class Loaded:
     data: dict[str, ScenarioData]
     resolutions: dict[str, list[tuple[float, ScenarioData]]]
     warnings: list[Problem] = field(default_factory=list)
+    #: Ensemble scenarios: every member's histories, in the order of ``spec.ensemble``.
+    members: dict[str, list[ScenarioData]] = field(default_factory=dict)
 
 
 def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
@@ -87,7 +89,7 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
                                 "(C = 3) the same visibility needs a lower extinction coefficient: state "
                                 "'signs: light-emitting' or 'signs: light-reflecting' in the visibility criterion",
                                 warning=True))
-    data, res = {}, {}
+    data, res, members = {}, {}, {}
     for spec in study.scenarios:
         try:
             d, w = read_scenario(spec)
@@ -110,10 +112,17 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
             except InputError as exc:
                 problems.extend(exc.problems)
         res[spec.id] = runs
+        if spec.ensemble:        # an ensemble of fire runs: every member on the scenario's column map
+            def read_member(path, spec=spec):
+                d_m, w_m = read_scenario(spec, path)
+                return _on_ignition_clock(spec, d_m, problems), w_m
+            members[spec.id], w_e, p_e = ensemble.read_members(spec, read_member)
+            warnings.extend(w_e)
+            problems.extend(p_e)
     problems.extend(data_problems(study, data, options.samples))   # what only the data can tell (memory, detectors)
     if any(not p.warning for p in problems):
         raise InputError(problems + [w for w in warnings if w.warning])
-    return Loaded(study, table, data, res, warnings)
+    return Loaded(study, table, data, res, warnings, members)
 
 
 def _on_ignition_clock(spec, data: ScenarioData, problems: list[Problem]) -> ScenarioData:
@@ -235,12 +244,18 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     raw = aset.evaluate(prep, crit, {}, 1)
     raw_aset = aset.location_aset(raw)[:, 0]
     factors = draw_scenario_factors(table, prep, S, seed, index) if table else {}
-    if factors:
+    ens = ensemble.build(spec, loaded.members.get(spec.id), crit, S, seed, index)   # None: one run
+    if ens is not None:
+        corr = ens.evaluate(crit, factors, S)       # each member on its own draws
+    elif factors:
         corr = aset.evaluate(prep, crit, factors, S)
     else:
         corr = _repeat_draws(raw, S)
     loc_aset = aset.location_aset(corr)
     end = data.end_s
+    end_v = end if ens is None else ens.end_per_draw      # an ensemble's draws end with their member's data
+    if ens is not None:
+        end = float(ens.ends_s.max())
     locations = []
     governing_raw = []
     range_warnings: list[str] = []
@@ -309,7 +324,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     egress_med = assess.scenario_egress(specs_here, prep, {}, [assess.EgressDraws.median()] * len(specs_here),
                                         study.elements) if routes_here else None
     more = _MoreSamples(table, prep, crit, seed, index, raw)
-    s_max = max(study.max_samples, S)
+    s_max = max(study.max_samples, S) if ens is None else S     # ensembles: `samples` draws (README)
     bigger: dict[int, object] = {}
     sensitivities = None
     for ri, route in routes_here:
@@ -317,7 +332,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, eg.routes[route.id])
         # Settle the statistics by sampling more where the interval straddles the limit: the
         # scenario's ASET and its (shared) egress again with twice the draws, same seed streams.
-        while s_used < s_max and needs_more_samples(out.aset, out.rset, end, study.max_p_fail):
+        while s_used < s_max and needs_more_samples(out.aset, out.rset, end_v, study.max_p_fail):
             s_used = min(2 * s_used, s_max)
             fac_r, loc_big = more.at(s_used)
             if s_used not in bigger:
@@ -327,16 +342,16 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
         route_locs = [locations[prep.ids.index(loc)] for loc in route.exposed_at]
         assessed_any = any(c.get("status") == "assessed" for loc in route_locs for c in loc["criteria"].values())
-        v = decide(out.aset, out.rset, end, study.max_p_fail, assessed=assessed_any, max_samples=s_max)
+        v = decide(out.aset, out.rset, end_v, study.max_p_fail, assessed=assessed_any, max_samples=s_max)
         la = out.extras.get("location_aware")
-        v_la = None if la is None else decide(la.aset_s, la.leave_s, end, study.max_p_fail, assessed=assessed_any,
-                                              outcomes=worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end)))
+        v_la = None if la is None else decide(la.aset_s, la.leave_s, end_v, study.max_p_fail, assessed=assessed_any,
+                                              outcomes=worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end_v)))
         if sensitivities is None:          # every route's sweep in one flow run of the scenario
             sf, si, sa = sweep
             sensitivities = assess.scenario_sensitivity(specs_here, prep, sf, si, sa,
                                                         {k: _label(k) for k in si_keys(si)}, study.elements)
         result = RouteResult(
-            route=route, outcome=out, flow=eg.routes[route.id], nodes=eg.nodes, end_s=end, margin_raw_s=margin_raw,
+            route=route, outcome=out, flow=eg.routes[route.id], nodes=eg.nodes, end_s=end_v, margin_raw_s=margin_raw,
             not_assessed=[{"location": loc["id"], "criterion": cid} for loc in route_locs
                           for cid in loc["not_assessed"]],
             partial=sorted({f"{cid} at {loc['id']}" for loc in route_locs
@@ -346,7 +361,9 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                          if route.along_route else None),
             sensitivity=sensitivities[route.id])
         entry = route_json(result)
-        entry["draw_counts"] = design.counts_from_outcomes(draw_outcomes(out.aset, out.rset, end),
+        if ens is not None:
+            entry["by_member"] = ens.by_member(out.aset, out.rset)
+        entry["draw_counts"] = design.counts_from_outcomes(draw_outcomes(out.aset, out.rset, end_v),
                                                            v.deterministic, assessed_any).as_results()
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
@@ -357,6 +374,9 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                 "shared_elements": egress_summary.shared_keys(egress.nodes, study.elements) if routes_here else []}
     if spec.design_fire:
         scenario["design_fire"] = spec.design_fire
+    if ens is not None:
+        scenario["ensemble"] = ens.results()
+        ens.annotate_locations(locations, prep.ids, loc_aset)
     cred, cred_plot = credibility(loaded, index, crit)
     if cred is not None:
         scenario["credibility"] = cred
@@ -627,6 +647,7 @@ def build_results(loaded: Loaded, options: RunOptions):
     seen = set()
     for spec in study.scenarios:
         files = [(spec.histories, loaded.data[spec.id])] + [(None, d) for _, d in loaded.resolutions.get(spec.id, [])]
+        files += [(None, d) for d in loaded.members.get(spec.id, [])]        # ensemble members
         for _, d in files:
             if str(d.path) in seen:
                 continue
@@ -765,6 +786,7 @@ def run(study_path: Path, options: RunOptions) -> Path:
               loaded.table.path if loaded.table else None]
     inputs += [d.path for d in loaded.data.values()]
     inputs += [d.path for runs in loaded.resolutions.values() for _, d in runs]
+    inputs += [d.path for ms in loaded.members.values() for d in ms]
     try:
         with outputs.claim(out, inputs, force=options.force) as target:
             results, plots = build_results(loaded, options)

@@ -49,6 +49,8 @@ ROUTE_KEYS = {"id", "title", "scenarios", "occupants", "detection", "alarm", "pr
               "exposed_at", "movement", "exposure", "flow_factor", "speed_factor", "start_at"}
 #: A scenario's CSV format: field delimiters it may declare (``delimiter:``), and decimal marks (``decimal:``).
 SCENARIO_KEYS = SCENARIO_KEYS | {"delimiter", "decimal"}
+#: An ensemble of fire runs instead of one set of histories (see :mod:`egressmargin.ensemble`).
+SCENARIO_KEYS = SCENARIO_KEYS | {"ensemble"}
 #: Weighted design fires (probabilistic design, see :mod:`egressmargin.design`).
 TOP_KEYS = TOP_KEYS | {"scenario_weights", "weights_source"}
 DELIMITERS = {",": ",", ";": ";", "\t": "\t", r"\t": "\t", "tab": "\t", "|": "|"}
@@ -116,6 +118,19 @@ class ScenarioSpec:
     ignition_s: float | None = None     # ignition on the file's clock; None: its first time
     delimiter: str = ","
     decimal: str = "."
+    #: An ensemble of fire runs sharing the column mapping (``histories`` is the first's); None: one run.
+    ensemble: list["MemberSpec"] | None = None
+
+
+@dataclass
+class MemberSpec:
+    """One fire run of an ensemble scenario: its histories, relative weight and parameters."""
+
+    id: str
+    histories: Path
+    weight: float
+    parameters: dict
+    where: str = ""
 
 
 @dataclass
@@ -411,6 +426,7 @@ def check_study(path: str | Path, criteria_override: str | None = None
     routes = _routes(ck, data.get("egress", []), loc_ids, named, broken)
     _check_upstream(ck, named, routes)
     scenario_weights = _scenario_weights(ck, data, scenarios)
+    _ensemble_routes(ck, scenarios, routes)
 
     # Report fields are checked before the error count, so a map or list there is an error, not a blank.
     for key in ("reference", "prepared_by", "prepared_for"):
@@ -588,7 +604,7 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
             elif hist.resolve() != finest.histories.resolve():
                 ck.err(kp + ("histories",), f"'{sc['histories']}' is not the finest resolution's histories "
                        f"({finest.histories.name}); expected the assessed histories to be the finest grid")
-        elif hist is None and "histories" not in sc:
+        elif hist is None and "histories" not in sc and "ensemble" not in sc:
             ck.err(kp, "missing key 'histories'; expected the path of the scenario's CSV time histories")
         time = _series_ref(ck, "time", sc.get("time", "Time") if "time" in sc else None, kp + ("time",)) \
             if "time" in sc else None
@@ -618,10 +634,139 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
             ignition = ck.quantity(sc["ignition"], kp + ("ignition",), "duration")
         locations = _locations(ck, sc.get("locations"), kp + ("locations",))
         design_fire = _design_fire(ck, sc["design_fire"], kp + ("design_fire",)) if "design_fire" in sc else None
+        members = _ensemble(ck, sc, kp, base) if "ensemble" in sc else None   # an ensemble of fire runs
+        if members:
+            hist = members[0].histories
         out.append(ScenarioSpec(sid, ck.text(sc.get("title"), kp + ("title",), default=sid), hist, time,
                                 units_row, locations, amb_t, amb_o2, resolutions, ck.doc.where(kp),
                                 design_fire, ignition_s=ignition))
         out[-1].delimiter, out[-1].decimal = _csv_format(ck, sc, kp)
+        out[-1].ensemble = members
+    return out
+
+
+# ------------------------------------------------------------ ensembles of fire runs
+
+def _ensemble(ck, sc, kp, base: Path) -> list[MemberSpec] | None:
+    """``ensemble:`` a list of ``{histories, weight, parameters, id}``, or ``{glob, parameters}``.
+
+    With ``glob`` every matching file is a member of equal weight, in sorted order; the
+    optional ``parameters`` is a CSV side table with columns ``file, name, value`` (one row
+    per member and parameter; ``file`` the member's file name). Every member uses the
+    scenario's column mapping (checked when the files are read).
+    """
+    kp = kp + ("ensemble",)
+    value = sc["ensemble"]
+    if "histories" in sc:
+        ck.err(kp, "found both 'histories' and 'ensemble'; expected one of them")
+        return None
+    if sc.get("resolutions"):
+        ck.err(kp, "found both 'resolutions' and 'ensemble'; expected one of them (grid studies are per run)")
+        return None
+    members: list[MemberSpec] = []
+    if isinstance(value, dict):
+        if not ck.keys(value, kp, {"glob", "parameters"}, "an ensemble given by a file pattern"):
+            return None
+        pattern = value.get("glob")
+        if not isinstance(pattern, str) or not pattern.strip():
+            ck.err(kp, f"found {_show(pattern)} for 'glob'; expected a file pattern such as runs/a-*.csv")
+            return None
+        files = sorted(p for p in base.glob(pattern) if p.is_file())
+        if not files:
+            ck.err(kp + ("glob",), f"no file matches '{pattern}' (looked in {base}); expected the members' CSV files")
+            return None
+        params = _side_table(ck, value.get("parameters"), kp + ("parameters",), base, files) \
+            if value.get("parameters") is not None else {}
+        members = [MemberSpec(f.stem, f, 1.0, params.get(f.name, {}), ck.doc.where(kp)) for f in files]
+    elif isinstance(value, list) and value:
+        for j, m in enumerate(value):
+            mkp = kp + (j,)
+            if not ck.keys(m, mkp, {"id", "histories", "weight", "parameters"}, "an ensemble member"):
+                continue
+            h = m.get("histories")
+            if not isinstance(h, str):
+                ck.err(mkp, f"found {_show(h)} for 'histories'; expected the member's CSV path")
+                continue
+            path = base / h
+            if not path.is_file():
+                ck.err(mkp + ("histories",), f"file '{h}' not found (looked at {path}); expected a CSV file "
+                       "relative to the study file")
+            w = m.get("weight", 1)
+            if isinstance(w, bool) or not isinstance(w, (int, float)) or not w > 0 or w == float("inf"):
+                ck.err(mkp + ("weight",), f"found {_show(w)}; expected a positive number (relative weight)")
+                w = 1.0
+            par = m.get("parameters", {})
+            if not isinstance(par, dict) or any(isinstance(v, (dict, list)) for v in par.values()):
+                ck.err(mkp + ("parameters",), f"found {_show(par)}; expected a mapping of names to numbers or text")
+                par = {}
+            mid = ck.ident(m.get("id", path.stem), mkp + ("id",)) or path.stem
+            members.append(MemberSpec(mid, path, float(w), dict(par), ck.doc.where(mkp)))
+    else:
+        ck.err(kp, f"found {_show(value)}; expected a list of members {{histories, weight, parameters}} "
+               "or {glob: <pattern>}")
+        return None
+    ids = [m.id for m in members]
+    for m in members:
+        if ids.count(m.id) > 1:
+            ck.err(kp, f"member id '{m.id}' is used {ids.count(m.id)} times; expected unique ids (give 'id:')")
+            break
+    return members or None
+
+
+def _ensemble_routes(ck, scenarios, routes) -> None:
+    """Errors for route inputs that read a location's series in an ensemble scenario (not supported yet).
+
+    A detector rule and the dose along the route read the fire's series, which differ per
+    member; this version evaluates the egress once per scenario (project choice, stated in
+    the README), so such a route in an ensemble scenario is an error, not a silent use of
+    one member.
+    """
+    ens = {s.id for s in scenarios if s.ensemble}
+    for r in routes:
+        hit = sorted(ens if r.scenarios is None else ens & set(r.scenarios))
+        if not hit:
+            continue
+        if isinstance(r.detection, DetectorRule):
+            ck.problems.append(Problem(r.detection.where or r.where, f"route '{r.id}': a detector rule in the ensemble "
+                                       f"scenario {', '.join(hit)}; expected a detection time or distribution "
+                                       "(detector rules per ensemble member are not supported yet)"))
+        if r.along_route:
+            ck.problems.append(Problem(r.where, f"route '{r.id}': the dose along the route in the ensemble scenario "
+                                       f"{', '.join(hit)}; expected exposure at the route's locations (along-route "
+                                       "dose per ensemble member is not supported yet)"))
+
+
+def _side_table(ck, rel, kp, base: Path, files: list[Path]) -> dict[str, dict]:
+    """The ensemble's parameter side table (CSV: file, name, value) as {file name: {name: value}}."""
+    import csv
+
+    if not isinstance(rel, str):
+        ck.err(kp, f"found {_show(rel)}; expected the path of a CSV side table with columns file, name, value")
+        return {}
+    path = base / rel
+    if not path.is_file():
+        ck.err(kp, f"file '{rel}' not found (looked at {path}); expected a CSV side table (file, name, value)")
+        return {}
+    out: dict[str, dict] = {}
+    names = {f.name for f in files}
+    with path.open(newline="", encoding="utf-8-sig") as fh:
+        reader = csv.DictReader(fh)
+        if reader.fieldnames is None or not {"file", "name", "value"} <= {c.strip() for c in reader.fieldnames}:
+            ck.err(kp, f"{path}: found columns {reader.fieldnames}; expected file, name, value")
+            return {}
+        for i, row in enumerate(reader, start=2):
+            row = {k.strip(): (v or "").strip() for k, v in row.items() if k}
+            fname = Path(row["file"]).name
+            if fname not in names:
+                ck.err(kp, f"{path}, line {i}, column file: found '{row['file']}'; expected one of the files the "
+                       f"pattern matches ({', '.join(sorted(names))})")
+                continue
+            v = row["value"]
+            try:
+                v = float(v)
+            except ValueError:
+                pass
+            out.setdefault(fname, {})[row["name"]] = v
     return out
 
 
