@@ -135,3 +135,18 @@ def test_validate_catches_histories_and_ensemble_together_and_bad_weights(tmp_pa
     path.write_text(yaml.safe_dump(doc))
     code, out, err = cli(["validate", str(path)])
     assert code == 2 and "expected a positive number" in out + err
+
+
+def test_report_shows_the_members_and_a_margin_by_member_figure(tmp_path):
+    from egressmargin.report import plots as report_plots
+    from egressmargin.report.render import build_context, render_html
+
+    res, pl = results_for(_three(tmp_path, samples=40))
+    ctx = build_context(res, pl)
+    view = ctx["scenarios"][0]["ensemble"]
+    assert [r["member"] for r in view["rows"]] == ["a-01", "a-02", "a-03"]
+    assert [r["p_fail"] for r in view["rows"]] == [[("r", 1.0)], [("r", 1.0)], [("r", 0.0)]]
+    png = report_plots.ensemble_figure(**view["figure"]["job"][1])
+    assert png[:8] == b"\x89PNG\r\n\x1a\n"
+    html = render_html(res, pl)
+    assert "Ensemble members of scenario fire-a" in html and "growth = medium" in html

@@ -602,6 +602,67 @@ def design_contributions_figure(routes: Sequence[Mapping[str, Any]], scenarios: 
         return finish(fig)
 
 
+# ------------------------------------------------------------ ensembles of fire runs
+
+def ensemble_figure(members: Sequence[Mapping[str, Any]], routes: Sequence[Mapping[str, Any]],
+                    uid: str = "ensemble"):
+    """Margin by ensemble member: p50 with the p05-p95 range per route, members labelled by parameters.
+
+    Parameters
+    ----------
+    members : sequence of mapping
+        ``{"member", "parameters", "share_of_draws"}`` per member (results.json ``scenario.ensemble``).
+    routes : sequence of mapping
+        ``{"id", "by_member": [{"member", "margin_s": {p05, p50, p95}, "p_fail"}]}`` per route.
+    uid : str
+        Unused in the drawing; keeps figure jobs distinct.
+
+    Notes
+    -----
+    A margin percentile not reached within the member's data (no limit reached) is drawn
+    as an open marker at the top of the axis with an arrow: "beyond the data".
+    """
+    matplotlib, plt = _plt()
+    names = [str(m.get("member")) for m in members]
+    labels = []
+    for m in members:
+        par = m.get("parameters") or {}
+        text = "\n".join(f"{k} = {fmt_num(v) if isinstance(v, (int, float)) else v}" for k, v in par.items())
+        labels.append(_plain(wrap_label(str(m.get("member")), 18) + ("\n" + text if text else "")))
+    x = np.arange(len(names), dtype=float)
+    height = 2.9
+    with matplotlib.rc_context(_RC):
+        fig, ax = plt.subplots(figsize=(FIG_WIDTH_IN, height))
+        nr = max(1, len(routes))
+        width = min(0.6 / nr, 0.2)
+        vals = []
+        for k, rt in enumerate(routes):
+            colour, _, marker = SERIES_STYLES[k % len(SERIES_STYLES)]
+            by = {str(b.get("member")): b for b in rt.get("by_member") or []}
+            xs = x + (k - (nr - 1) / 2) * width
+            p50 = np.array([_val((by.get(n) or {}).get("margin_s") or {}, "p50") for n in names], float)
+            p05 = np.array([_val((by.get(n) or {}).get("margin_s") or {}, "p05") for n in names], float)
+            p95 = np.array([_val((by.get(n) or {}).get("margin_s") or {}, "p95") for n in names], float)
+            vals += [v for v in np.concatenate([p05, p50, p95]) if np.isfinite(v)]
+            for xi, lo, mid, hi in zip(xs, p05, p50, p95):
+                if np.isfinite(lo) and np.isfinite(hi):
+                    ax.plot([xi, xi], [lo, hi], color=colour, lw=1.0)
+            ax.plot(xs, p50, ls="none", marker=marker, color=colour, ms=5, label=_plain(f"route {rt.get('id')}"))
+        ax.axhline(0.0, color=LIMIT, ls="--", lw=0.9, label="margin 0 (ASET = RSET)")
+        ax.set_xticks(x)
+        ax.set_xticklabels(labels, fontsize=6.5)
+        ax.set_xlim(-0.6, len(names) - 0.4)
+        ax.set_ylabel("Margin ASET - RSET [s]\n(p50, bar p05-p95)")
+        if vals:
+            lo, hi = min(vals + [0.0]), max(vals + [0.0])
+            pad = 0.08 * (hi - lo or 1.0)
+            ax.set_ylim(lo - pad, hi + pad)
+        ax.grid(axis="x", visible=False)
+        ax.legend(loc="upper center", bbox_to_anchor=(0.5, 1.16), ncol=min(nr + 1, 4))
+        fig.subplots_adjust(left=0.12, right=0.98, bottom=0.24, top=0.86)
+        return finish(fig)
+
+
 __all__ = [
     "finish",
     "location_figure",
@@ -609,4 +670,5 @@ __all__ = [
     "route_panels",
     "credibility_figure",
     "design_contributions_figure",
+    "ensemble_figure",
 ]

@@ -349,6 +349,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
             route_inputs.setdefault(route["id"], {"route": route, "scenarios": []})
             route_inputs[route["id"]]["scenarios"].append(sid)
 
+        ensemble_view = _ensemble_view(sc, routes_in, figs)      # an ensemble of fire runs, or None
         matrix = [_matrix_row(loc_by_id[lid], loc_titles[lid], criterion_ids, exposed_by.get(lid, []))
                   for lid in used]
         omitted = [loc_titles[lid] for lid in unused] if omit_unused else []
@@ -373,6 +374,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
             "routes": routes, "matrix": matrix, "matrix_unused": matrix_unused,
             "omitted_locations": omitted,
             "location_figures": loc_figures, "shared_elements": _shared_rows(sc),
+            "ensemble": ensemble_view,
         })
 
     credibility = _credibility(scenarios_in, plotdata, figs)
@@ -427,6 +429,36 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "design": design,
     }
     return ctx
+
+
+# ------------------------------------------------------------ ensembles of fire runs
+
+def _ensemble_view(sc: Mapping[str, Any], routes_in: Sequence[Mapping[str, Any]], figs: "_Figures"
+                   ) -> dict[str, Any] | None:
+    """The members of an ensemble scenario (table rows) and the margin-by-member figure, or None."""
+    members = list(sc.get("ensemble") or [])
+    if not members:
+        return None
+    rows = []
+    for m in members:
+        p_by_route = [(rt.get("id"), next((b.get("p_fail") for b in rt.get("by_member") or []
+                                            if b.get("member") == m.get("member")), None)) for rt in routes_in]
+        rows.append({"member": m.get("member"), "histories": m.get("histories"),
+                     "parameters": ", ".join(f"{k} = {v}" for k, v in (m.get("parameters") or {}).items()),
+                     "probability": m.get("probability"), "share": m.get("share_of_draws"),
+                     "end_s": m.get("end_s"), "p_fail": p_by_route})
+    fig = None
+    routes = [{"id": rt.get("id"), "by_member": list(rt.get("by_member") or [])}
+              for rt in routes_in if rt.get("by_member")]
+    if routes:
+        fig = figs.add("ensemble_figure",
+                       f"Scenario {sc.get('id')}: margin (ASET - RSET) by ensemble member, p50 with the p05-p95 range "
+                       "over the member's draws, against the member's parameters. Below the dashed line the "
+                       "member's median draw fails.",
+                       members=[{"member": m.get("member"), "parameters": dict(m.get("parameters") or {}),
+                                 "share_of_draws": m.get("share_of_draws")} for m in members],
+                       routes=routes, uid=f"ens-{sc.get('id')}")
+    return {"rows": rows, "route_ids": [rt.get("id") for rt in routes_in], "figure": fig}
 
 
 # ------------------------------------------------------------ weighted design fires
