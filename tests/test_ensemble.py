@@ -150,3 +150,27 @@ def test_report_shows_the_members_and_a_margin_by_member_figure(tmp_path):
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
     html = render_html(res, pl)
     assert "Ensemble members of scenario fire-a" in html and "growth = medium" in html
+
+
+def test_a_detector_rule_reads_each_draws_own_member(tmp_path):
+    """Smoke detection at K = 0.1 1/m: member 'early' reaches it at 100 s, 'late' at 250 s (linear rise).
+    With pre-movement 100 s the occupants leave at ~201 s and ~351 s; the limit (60 degC) is reached at
+    300 s in both, so 'early' passes and 'late' fails: p_fail = 1/2 (closed form). Detection read on one
+    member only would give 0 or 1."""
+    t = np.arange(0.0, 601.0, 1.0)
+    for name, t_det in (("early", 100.0), ("late", 250.0)):
+        temp = 20.0 + 40.0 * t / 300.0
+        k = 0.1 * t / t_det
+        lines = ["Time [s],T1 [degC],K1 [1/m]"] + [f"{float(a)!r},{float(b)!r},{float(c)!r}"
+                                                  for a, b, c in zip(t, temp, k)]
+        (tmp_path / f"{name}.csv").write_text("\n".join(lines) + "\n")
+    path = _study(tmp_path, [{"histories": "early.csv"}, {"histories": "late.csv"}], samples=100,
+                  premovement="100 s")
+    doc = yaml.safe_load(path.read_text())
+    doc["scenarios"][0]["locations"].append({"id": "det", "role": "detector", "extinction": "K1"})
+    doc["egress"][0]["detection"] = {"smoke": {"location": "det", "extinction": "0.1 1/m"}}
+    path.write_text(yaml.safe_dump(doc))
+    res, _ = results_for(path)
+    rt = res["scenarios"][0]["routes"][0]
+    assert rt["p_fail"] == 0.5
+    assert {m["member"]: m["p_fail"] for m in rt["by_member"]} == {"early": 0.0, "late": 1.0}

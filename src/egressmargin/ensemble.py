@@ -176,6 +176,40 @@ class Ensemble:
                                      for m, spec in enumerate(self.specs)]
 
 
+class MemberPrep:
+    """The reference member's prepared series, with detector rules read on each draw's own member.
+
+    The egress model reads a fire's series only through a detector rule
+    (:func:`egressmargin.assess.detection_times`, which calls :meth:`member_detection`);
+    every other attribute is the reference member's. Draw counts other than the
+    ensemble's (the sensitivity sweep, the median-input run) use the reference member.
+    """
+
+    def __init__(self, ens: "Ensemble", base):
+        self._ens, self._base = ens, base
+
+    def __getattr__(self, name):
+        return getattr(self._base, name)
+
+    def member_detection(self, rule, factors: dict, u: np.ndarray) -> np.ndarray:
+        from .assess import detection_times
+
+        md = self._ens.member_of_draw
+        if len(u) != len(md):
+            return detection_times(rule, self._base, factors, u)
+        out = np.empty(len(u))
+        for m, prep in enumerate(self._ens.preps):
+            idx = self._ens.indices(m)
+            out[idx] = detection_times(rule, prep, _subset(factors, idx), u[idx])
+        return out
+
+
+#: Said of an ensemble route's dose along the route (results and report).
+ALONG_ROUTE_NOTE = ("ensemble: the dose along the route is evaluated on the reference member's histories for every "
+                    "draw (per-member doses along the route are not implemented yet); the ASET, the verdict and the "
+                    "detection use each draw's own member")
+
+
 def build(spec, members_data, crit, S: int, seed: int, index: int) -> Ensemble | None:
     """The scenario's ensemble (None when it has one set of histories)."""
     if not getattr(spec, "ensemble", None) or not members_data:

@@ -256,6 +256,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     end_v = end if ens is None else ens.end_per_draw      # an ensemble's draws end with their member's data
     if ens is not None:
         end = float(ens.ends_s.max())
+        prep = ensemble.MemberPrep(ens, prep)     # detector rules read each draw's own member
     locations = []
     governing_raw = []
     range_warnings: list[str] = []
@@ -363,6 +364,8 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         entry = route_json(result)
         if ens is not None:
             entry["by_member"] = ens.by_member(out.aset, out.rset)
+            if entry.get("along_route"):
+                entry["along_route"]["ensemble_note"] = ensemble.ALONG_ROUTE_NOTE
         entry["draw_counts"] = design.counts_from_outcomes(draw_outcomes(out.aset, out.rset, end_v),
                                                            v.deterministic, assessed_any).as_results()
         routes.append(entry)

@@ -426,7 +426,6 @@ def check_study(path: str | Path, criteria_override: str | None = None
     routes = _routes(ck, data.get("egress", []), loc_ids, named, broken)
     _check_upstream(ck, named, routes)
     scenario_weights = _scenario_weights(ck, data, scenarios)
-    _ensemble_routes(ck, scenarios, routes)
 
     # Report fields are checked before the error count, so a map or list there is an error, not a blank.
     for key in ("reference", "prepared_by", "prepared_for"):
@@ -634,9 +633,9 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
             ignition = ck.quantity(sc["ignition"], kp + ("ignition",), "duration")
         locations = _locations(ck, sc.get("locations"), kp + ("locations",))
         design_fire = _design_fire(ck, sc["design_fire"], kp + ("design_fire",)) if "design_fire" in sc else None
-        members = _ensemble(ck, sc, kp, base) if "ensemble" in sc else None   # an ensemble of fire runs
-        if members:
-            hist = members[0].histories
+        members = _ensemble(ck, sc, kp, base, resolutions) if "ensemble" in sc else None   # an ensemble of fire runs
+        if members and not resolutions:
+            hist = members[0].histories       # the reference member (with resolutions: the finest grid's)
         out.append(ScenarioSpec(sid, ck.text(sc.get("title"), kp + ("title",), default=sid), hist, time,
                                 units_row, locations, amb_t, amb_o2, resolutions, ck.doc.where(kp),
                                 design_fire, ignition_s=ignition))
@@ -647,7 +646,7 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
 
 # ------------------------------------------------------------ ensembles of fire runs
 
-def _ensemble(ck, sc, kp, base: Path) -> list[MemberSpec] | None:
+def _ensemble(ck, sc, kp, base: Path, resolutions=()) -> list[MemberSpec] | None:
     """``ensemble:`` a list of ``{histories, weight, parameters, id}``, or ``{glob, parameters}``.
 
     With ``glob`` every matching file is a member of equal weight, in sorted order; the
@@ -659,9 +658,6 @@ def _ensemble(ck, sc, kp, base: Path) -> list[MemberSpec] | None:
     value = sc["ensemble"]
     if "histories" in sc:
         ck.err(kp, "found both 'histories' and 'ensemble'; expected one of them")
-        return None
-    if sc.get("resolutions"):
-        ck.err(kp, "found both 'resolutions' and 'ensemble'; expected one of them (grid studies are per run)")
         return None
     members: list[MemberSpec] = []
     if isinstance(value, dict):
@@ -705,35 +701,17 @@ def _ensemble(ck, sc, kp, base: Path) -> list[MemberSpec] | None:
         ck.err(kp, f"found {_show(value)}; expected a list of members {{histories, weight, parameters}} "
                "or {glob: <pattern>}")
         return None
+    if members and resolutions:
+        finest = min(resolutions, key=lambda r: r.cell_m).histories
+        if finest.resolve() not in {m.histories.resolve() for m in members}:
+            ck.err(kp, f"the finest resolution's histories ({finest.name}) are not a member of the ensemble; expected "
+                   "the grid study to be made on one member (the reference member)")
     ids = [m.id for m in members]
     for m in members:
         if ids.count(m.id) > 1:
             ck.err(kp, f"member id '{m.id}' is used {ids.count(m.id)} times; expected unique ids (give 'id:')")
             break
     return members or None
-
-
-def _ensemble_routes(ck, scenarios, routes) -> None:
-    """Errors for route inputs that read a location's series in an ensemble scenario (not supported yet).
-
-    A detector rule and the dose along the route read the fire's series, which differ per
-    member; this version evaluates the egress once per scenario (project choice, stated in
-    the README), so such a route in an ensemble scenario is an error, not a silent use of
-    one member.
-    """
-    ens = {s.id for s in scenarios if s.ensemble}
-    for r in routes:
-        hit = sorted(ens if r.scenarios is None else ens & set(r.scenarios))
-        if not hit:
-            continue
-        if isinstance(r.detection, DetectorRule):
-            ck.problems.append(Problem(r.detection.where or r.where, f"route '{r.id}': a detector rule in the ensemble "
-                                       f"scenario {', '.join(hit)}; expected a detection time or distribution "
-                                       "(detector rules per ensemble member are not supported yet)"))
-        if r.along_route:
-            ck.problems.append(Problem(r.where, f"route '{r.id}': the dose along the route in the ensemble scenario "
-                                       f"{', '.join(hit)}; expected exposure at the route's locations (along-route "
-                                       "dose per ensemble member is not supported yet)"))
 
 
 def _side_table(ck, rel, kp, base: Path, files: list[Path]) -> dict[str, dict]:
