@@ -132,7 +132,7 @@ class Ensemble:
                     bounds.append(r.grid_bound_s)
                 if r.partial is not None:
                     partial = np.asarray(r.partial, bool) if partial is None else partial | r.partial
-            bound = np.nanmax(np.vstack(bounds), axis=0) if bounds else None
+            bound = np.fmax.reduce(np.vstack(bounds), axis=0) if bounds else None   # NaN: no bound
             out[cid] = aset.CriterionResult(times, assessed, first.missing, bound, partial)
         return out
 
