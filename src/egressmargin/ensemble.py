@@ -220,8 +220,10 @@ def build(spec, members_data, crit, S: int, seed: int, index: int) -> Ensemble |
     return Ensemble(list(spec.ensemble), list(members_data), preps, raws, member)
 
 
-def read_members(spec, read) -> tuple[list, list, list]:
+def read_members(spec, read, progress=None) -> tuple[list, list, list]:
     """Read every member with ``read(path) -> (data, warnings)``; every problem names the member's file.
+
+    ``progress`` (optional, ``stage(name, total)``/``step()``) is told of each member read.
 
     Returns (data per member, warnings, problems). A member whose columns differ from the
     scenario's mapping fails in ``read`` with the file and the column named.
@@ -229,12 +231,18 @@ def read_members(spec, read) -> tuple[list, list, list]:
     from .errors import InputError, Problem
 
     data, warnings, problems = [], [], []
+    if progress:
+        progress.stage(f"reading ensemble {spec.id}", len(spec.ensemble))
     for m in spec.ensemble:
         try:
             d, w = read(m.histories)
             data.append(d)
             warnings.extend(w)
+            if progress:
+                progress.step()
         except InputError as exc:
             problems.extend(Problem(p.where, f"ensemble member '{m.id}': {p.message}", warning=p.warning)
                             if not str(p.message).startswith("ensemble member") else p for p in exc.problems)
+    if progress:
+        progress.done()
     return data, warnings, problems

@@ -116,7 +116,7 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
             def read_member(path, spec=spec):
                 d_m, w_m = read_scenario(spec, path)
                 return _on_ignition_clock(spec, d_m, problems), w_m
-            members[spec.id], w_e, p_e = ensemble.read_members(spec, read_member)
+            members[spec.id], w_e, p_e = ensemble.read_members(spec, read_member, options.progress)
             warnings.extend(w_e)
             problems.extend(p_e)
     problems.extend(data_problems(study, data, options.samples))   # what only the data can tell (memory, detectors)
