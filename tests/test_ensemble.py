@@ -174,3 +174,30 @@ def test_a_detector_rule_reads_each_draws_own_member(tmp_path):
     rt = res["scenarios"][0]["routes"][0]
     assert rt["p_fail"] == 0.5
     assert {m["member"]: m["p_fail"] for m in rt["by_member"]} == {"early": 0.0, "late": 1.0}
+
+
+def test_member_detection_for_other_streams_is_recomputed_per_member(tmp_path):
+    """Detection asked for uniforms other than the run's (same count) is evaluated member by member
+    again, not taken from the reference member: the early member detects at 100 s, the late at 250 s."""
+    from egressmargin import aset
+    from egressmargin.ensemble import MemberPrep, build
+    from egressmargin.pipeline import load
+
+    t = np.arange(0.0, 601.0, 1.0)
+    for name, t_det in (("early", 100.0), ("late", 250.0)):
+        lines = ["Time [s],T1 [degC],K1 [1/m]"] + [f"{float(a)!r},20.0,{float(0.1 * a / t_det)!r}" for a in t]
+        (tmp_path / f"{name}.csv").write_text("\n".join(lines) + "\n")
+    path = _study(tmp_path, [{"histories": "early.csv"}, {"histories": "late.csv"}], samples=10)
+    doc = yaml.safe_load(path.read_text())
+    doc["scenarios"][0]["locations"].append({"id": "det", "role": "detector", "extinction": "K1"})
+    doc["egress"][0]["detection"] = {"smoke": {"location": "det", "extinction": "0.1 1/m"}}
+    path.write_text(yaml.safe_dump(doc))
+    loaded = load(path)
+    spec, crit = loaded.study.scenarios[0], loaded.study.criteria
+    ens = build(spec, loaded.members["fire-a"], crit, 10, 1, 0, loaded.study.routes)
+    ens.evaluate(crit, {}, 10)
+    prep = MemberPrep(ens, aset.prepare(loaded.data["fire-a"], crit, None, None))
+    rule = loaded.study.routes[0].detection
+    got = prep.member_detection(rule, {}, np.full(10, 0.123))
+    expected = np.where(ens.member_of_draw == 0, 100.0, 250.0)
+    assert got == pytest.approx(expected, abs=1e-6)

@@ -23,7 +23,7 @@ subset of draws, assembling per-draw arrays, per-member summaries); the pipeline
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -77,13 +77,23 @@ def _subset(factors: dict, idx: np.ndarray) -> dict:
 
 @dataclass
 class Ensemble:
-    """The members of one scenario, prepared, and which member each draw uses."""
+    """The members of one scenario and which member each draw uses.
+
+    Members are prepared one at a time in :meth:`evaluate` and dropped after use (memory:
+    one member's derived series at a time); what later steps need of them is kept: the
+    raw location ASET and, for each detector rule of the scenario's routes, the detection
+    time of every draw on its own member.
+    """
 
     specs: list                 # study.MemberSpec per member
     data: list                  # histories.ScenarioData per member (on the ignition clock)
-    preps: list                 # aset.Prepared per member
-    raws: list                  # one-draw raw results per member (dict of CriterionResult)
     member_of_draw: np.ndarray  # (S,)
+    scenario: object = None     # study.ScenarioSpec (ambient values)
+    rules: list = field(default_factory=list)    # [(route index, DetectorRule)] of the scenario's routes
+    seed: int = 0
+    raw_loc_aset: list = field(default_factory=list)    # (L,) raw location ASET per member
+    detection: dict = field(default_factory=dict)       # id(rule) -> (uniforms (S,), detection (S,))
+    crit: object = None                                 # the criteria set evaluated
 
     @property
     def probabilities(self) -> np.ndarray:
@@ -109,15 +119,28 @@ class Ensemble:
         (a member without the series would otherwise read as "never reached"); a proven
         grid bound is the largest of the members'.
         """
+        from .assess import detection_times, egress_uniforms
+
         parts = []
-        for m, prep in enumerate(self.preps):
+        us = {ri: egress_uniforms(self.seed, ri, S).detection for ri, _ in self.rules}
+        det = {ri: np.full(S, np.inf) for ri, _ in self.rules}
+        self.raw_loc_aset, self.crit = [], crit
+        for m, d in enumerate(self.data):
+            prep = aset.prepare(d, crit, self.scenario.ambient_temperature_c, self.scenario.ambient_o2)
+            raw = aset.evaluate(prep, crit, {}, 1)
+            self.raw_loc_aset.append(aset.location_aset(raw)[:, 0])
             idx = self.indices(m)
+            f_m = _subset(factors, idx)
             if factors:
-                res = aset.evaluate(prep, crit, _subset(factors, idx), len(idx), with_bound=with_bound)
+                res = aset.evaluate(prep, crit, f_m, len(idx), with_bound=with_bound)
             else:
                 res = {cid: aset.CriterionResult(np.repeat(r.times, len(idx), axis=1), r.assessed, r.missing,
-                                                 None, r.partial) for cid, r in self.raws[m].items()}
+                                                 None, r.partial) for cid, r in raw.items()}
+            for ri, rule in self.rules:       # each draw's detector on its own member
+                det[ri][idx] = detection_times(rule, prep, f_m, us[ri][idx])
             parts.append((idx, res))
+            del prep, raw
+        self.detection = {id(rule): (us[ri], det[ri]) for ri, rule in self.rules}
         out = {}
         for cid in crit.items:
             first = parts[0][1][cid]
@@ -166,7 +189,7 @@ class Ensemble:
 
     def annotate_locations(self, locations: list[dict], ids: list[str], loc_aset: np.ndarray) -> None:
         """Add ``aset_by_member`` to each assessed location (raw and corrected ASET per member)."""
-        raw_asets = [aset.location_aset(r)[:, 0] for r in self.raws]
+        raw_asets = self.raw_loc_aset
         for loc in locations:
             if loc.get("role") == "detector":
                 continue
@@ -194,12 +217,16 @@ class MemberPrep:
     def member_detection(self, rule, factors: dict, u: np.ndarray) -> np.ndarray:
         from .assess import detection_times
 
-        md = self._ens.member_of_draw
-        if len(u) != len(md):
+        known = self._ens.detection.get(id(rule))
+        if known is not None and len(u) == len(known[0]) and np.array_equal(u, known[0]):
+            return known[1].copy()            # computed member by member in Ensemble.evaluate
+        if len(u) != len(self._ens.member_of_draw):
             return detection_times(rule, self._base, factors, u)
-        out = np.empty(len(u))
-        for m, prep in enumerate(self._ens.preps):
-            idx = self._ens.indices(m)
+        ens = self._ens                       # other streams of the ensemble's size: member by member again
+        out = np.full(len(u), np.inf)
+        for m, d in enumerate(ens.data):
+            idx = ens.indices(m)
+            prep = aset.prepare(d, ens.crit, ens.scenario.ambient_temperature_c, ens.scenario.ambient_o2)
             out[idx] = detection_times(rule, prep, _subset(factors, idx), u[idx])
         return out
 
@@ -210,14 +237,20 @@ ALONG_ROUTE_NOTE = ("ensemble: the dose along the route is evaluated on the refe
                     "detection use each draw's own member")
 
 
-def build(spec, members_data, crit, S: int, seed: int, index: int) -> Ensemble | None:
-    """The scenario's ensemble (None when it has one set of histories)."""
+def build(spec, members_data, crit, S: int, seed: int, index: int, routes=()) -> Ensemble | None:
+    """The scenario's ensemble (None when it has one set of histories).
+
+    ``routes``: the study's routes (their index is their egress stream); the detector
+    rules of those that run in this scenario are evaluated per member.
+    """
+    from .study import DetectorRule
+
     if not getattr(spec, "ensemble", None) or not members_data:
         return None
-    preps = [aset.prepare(d, crit, spec.ambient_temperature_c, spec.ambient_o2) for d in members_data]
-    raws = [aset.evaluate(p, crit, {}, 1) for p in preps]
     member = assign_members([m.weight for m in spec.ensemble], S, seed, index)
-    return Ensemble(list(spec.ensemble), list(members_data), preps, raws, member)
+    rules = [(ri, r.detection) for ri, r in enumerate(routes)
+             if (r.scenarios is None or spec.id in r.scenarios) and isinstance(r.detection, DetectorRule)]
+    return Ensemble(list(spec.ensemble), list(members_data), member, spec, rules, seed)
 
 
 def read_members(spec, read, progress=None) -> tuple[list, list, list]:

@@ -244,7 +244,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     raw = aset.evaluate(prep, crit, {}, 1)
     raw_aset = aset.location_aset(raw)[:, 0]
     factors = draw_scenario_factors(table, prep, S, seed, index) if table else {}
-    ens = ensemble.build(spec, loaded.members.get(spec.id), crit, S, seed, index)   # None: one run
+    ens = ensemble.build(spec, loaded.members.get(spec.id), crit, S, seed, index, study.routes)   # None: one run
     if ens is not None:
         corr = ens.evaluate(crit, factors, S)       # each member on its own draws
     elif factors:
