@@ -201,3 +201,18 @@ def test_member_detection_for_other_streams_is_recomputed_per_member(tmp_path):
     got = prep.member_detection(rule, {}, np.full(10, 0.123))
     expected = np.where(ens.member_of_draw == 0, 100.0, 250.0)
     assert got == pytest.approx(expected, abs=1e-6)
+
+
+def test_process_pool_gives_the_same_results_as_a_serial_run(tmp_path):
+    """Scenarios in forked workers see the ensemble members too: identical results.json content."""
+    path = _three(tmp_path, samples=60, uncertainty=True)
+    doc = yaml.safe_load(path.read_text())
+    plain = dict(doc["scenarios"][0])
+    plain.pop("ensemble")
+    plain.update({"id": "fire-b", "histories": "a-02.csv"})
+    doc["scenarios"].append(plain)
+    path.write_text(yaml.safe_dump(doc))
+    serial, _ = results_for(path, workers=1)
+    pooled, _ = results_for(path, workers=2)
+    assert pooled["scenarios"] == serial["scenarios"]
+    assert serial["scenarios"][0]["routes"][0]["p_fail"] == 0.5
