@@ -40,6 +40,8 @@ claim:
    velocity, and the RTI model for the sprinkler link.
 8. Grid variants of scenario a: the finest histories with an invented second-order
    discretisation error (times stretched, rises reduced), for the grid-sensitivity table.
+9. Growth-rate variants of scenario a (its ensemble members): the same fire with the
+   medium (t_g = 300 s) and ultra-fast (t_g = 75 s) NFPA growth classes.
 
 All yields, fractions, view factors, dimensions and flow rates marked "assumed" are
 illustrative choices for this invented building.
@@ -501,13 +503,16 @@ def fan_flow(t: np.ndarray, fans: int) -> np.ndarray:
     return fans * FAN_M3_S * ramp
 
 
-def atrium_fire_zones(t: np.ndarray, fans: int) -> dict:
-    """Scenarios a and b: fast t-squared fire on the atrium floor."""
-    alpha = growth_constant(GROWTH_TIME_S[ATRIUM_FIRE["growth"]])
+def atrium_fire_zones(t: np.ndarray, fans: int, growth: str | None = None) -> dict:
+    """Scenarios a and b: fast t-squared fire on the atrium floor (``growth``: another NFPA class)."""
+    alpha = growth_constant(GROWTH_TIME_S[growth or ATRIUM_FIRE["growth"]])
     q = t_squared_hrr(t, alpha, ATRIUM_FIRE["q_max"])
     zone = fill_zone(len(t), ATRIUM["area"], ATRIUM["ceiling"], fire_source(q, ATRIUM_FIRE["fuel_height"]),
                      HEAT_LOSS["atrium"], exhaust_m3_s=fan_flow(t, fans))
-    return {"q": q, "atrium": layer_state(zone, ATRIUM["ceiling"]), "fire_in": "atrium"}
+    out = {"q": q, "atrium": layer_state(zone, ATRIUM["ceiling"]), "fire_in": "atrium"}
+    if growth is not None:        # an ensemble member (see LAYER_EXCESS_FLOOR_K)
+        out["layer_floor_k"] = LAYER_EXCESS_FLOOR_K
+    return out
 
 
 def lobby_fire_zones(t: np.ndarray) -> dict:
@@ -693,6 +698,11 @@ LOCAL_CEILING_M = 3.0
 #: A space behind a door fills with the smoke it receives: its interface falls from the
 #: ceiling by this multiple of the received share of the layer excess (assumed).
 LOCAL_FILL_FACTOR = 1.5
+#: Smallest layer excess temperature [K] a share of the layer is taken against, for the growth-rate
+#: members of the fire-a ensemble: a slow fire's layer is exhausted by the fans, and without the
+#: floor the share (a 0/0) fills the spaces behind doors. The original scenarios keep 1e-9 so
+#: that their files stay byte for byte as published (assumed; illustrative).
+LAYER_EXCESS_FLOOR_K = 2.0
 #: View factor to the local hot layer for the radiant flux in a space behind a door (assumed).
 LOCAL_VIEW = 0.5
 
@@ -762,7 +772,7 @@ def local_layer_height(zones: dict, spec: dict, ex: dict, floor_m: float) -> np.
     if "f" not in spec:
         return np.clip(zones[spec["zone"]]["z_int"] - floor_m, 0.0, None)
     layer = zones[spec["zone"]]
-    share = ex["dT"] / np.maximum(layer["dT"], 1e-9)
+    share = ex["dT"] / np.maximum(layer["dT"], zones.get("layer_floor_k", 1e-9))
     share = np.clip(lag(np.vstack([share]), spec.get("tau", 0.0))[0], 0.0, 1.0)
     return LOCAL_CEILING_M * (1.0 - np.minimum(1.0, LOCAL_FILL_FACTOR * share))
 
@@ -808,6 +818,10 @@ SCENARIOS = {
     "fire-a": (900.0, lambda t: atrium_fire_zones(t, fans=2), atrium_connections),
     "fire-b": (900.0, lambda t: atrium_fire_zones(t, fans=1), atrium_connections),
     "fire-c": (1200.0, lobby_fire_zones, lobby_connections),
+    # growth-rate members of the fire-a ensemble (fire-a.csv itself is the fast member)
+    "fire-a-growth-medium": (900.0, lambda t: atrium_fire_zones(t, fans=2, growth="medium"), atrium_connections),
+    "fire-a-growth-ultrafast": (900.0, lambda t: atrium_fire_zones(t, fans=2, growth="ultrafast"),
+                                atrium_connections),
 }
 
 #: Cell sizes [m] of the illustrative grid-sensitivity set of scenario a; the finest is
@@ -856,7 +870,7 @@ def generate(out_dir: Path) -> list[Path]:
     """Write every demo CSV into ``out_dir``; return the paths written."""
     out_dir.mkdir(parents=True, exist_ok=True)
     written = []
-    for sid in ("fire-a", "fire-b", "fire-c"):
+    for sid in ("fire-a", "fire-b", "fire-c", "fire-a-growth-medium", "fire-a-growth-ultrafast"):
         t_out, cols = scenario_table(sid)
         path = out_dir / f"{sid}.csv"
         write_csv(path, t_out, cols)

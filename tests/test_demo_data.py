@@ -58,7 +58,10 @@ def _csv_files() -> list[Path]:
     study = _study()
     files = set()
     for sc in study["scenarios"]:
-        files.add(DEMO / sc["histories"])
+        if "histories" in sc:
+            files.add(DEMO / sc["histories"])
+        for m in sc.get("ensemble", []):        # an ensemble of fire runs
+            files.add(DEMO / m["histories"])
         for r in sc.get("resolutions", []):
             files.add(DEMO / r["histories"])
     return sorted(files)
@@ -91,7 +94,9 @@ def test_generator_is_deterministic_and_matches_the_committed_files(tmp_path):
 def test_every_mapped_column_exists_with_a_unit():
     study = _study()
     for sc in study["scenarios"]:
-        files = [DEMO / sc["histories"]] + [DEMO / r["histories"] for r in sc.get("resolutions", [])]
+        files = [DEMO / sc["histories"]] if "histories" in sc else []
+        files += [DEMO / m["histories"] for m in sc.get("ensemble", [])]      # ensemble members
+        files += [DEMO / r["histories"] for r in sc.get("resolutions", [])]
         for path in files:
             cols = _columns(path)
             time = sc["time"] if isinstance(sc["time"], dict) else {"column": sc["time"]}

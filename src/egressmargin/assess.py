@@ -94,6 +94,8 @@ def detection_times(rule, prep: aset.Prepared, factors: dict[str, np.ndarray], u
     S = len(u)
     if not isinstance(rule, DetectorRule):
         return dist.ppf(rule, u) * scale
+    if hasattr(prep, "member_detection"):        # an ensemble: each draw's detector sees its own member
+        return prep.member_detection(rule, factors, u, scale)
     li = prep.ids.index(rule.location)
     with np.errstate(divide="ignore", invalid="ignore"):
         if rule.kind == "heat":

@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__, aset, assess, outputs, plausibility, sensitivity_indices
+from . import __version__, aset, assess, design, ensemble, outputs, plausibility, sensitivity_indices
 from .plausibility import Finding
 from .clock import shift_to_ignition
 from .egress import summary as egress_summary
@@ -61,6 +61,8 @@ class Loaded:
     warnings: list[Problem] = field(default_factory=list)
     #: Plausibility findings and whether a location acknowledged each (accept_warnings).
     findings: list[tuple[Finding, bool]] = field(default_factory=list)
+    #: Ensemble scenarios: every member's histories, in the order of ``spec.ensemble``.
+    members: dict[str, list[ScenarioData]] = field(default_factory=dict)
 
 
 def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
@@ -106,7 +108,7 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
                                 "(C = 3) the same visibility needs a lower extinction coefficient: state "
                                 "'signs: light-emitting' or 'signs: light-reflecting' in the visibility criterion",
                                 warning=True))
-    data, res = {}, {}
+    data, res, members = {}, {}, {}
     for spec in study.scenarios:
         try:
             d, w = read_scenario(spec)
@@ -129,13 +131,20 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
             except InputError as exc:
                 problems.extend(exc.problems)
         res[spec.id] = runs
+        if spec.ensemble:        # an ensemble of fire runs: every member on the scenario's column map
+            def read_member(path, spec=spec):
+                d_m, w_m = read_scenario(spec, path)
+                return _on_ignition_clock(spec, d_m, problems), w_m
+            members[spec.id], w_e, p_e = ensemble.read_members(spec, read_member, options.progress)
+            warnings.extend(w_e)
+            problems.extend(p_e)
     problems.extend(data_problems(study, data, options.samples))   # what only the data can tell (memory, detectors)
     if any(not p.warning for p in problems):
         raise InputError(problems + [w for w in warnings if w.warning])
     findings = screen(study, data)
     warnings.extend(p for p, (_, acknowledged) in zip(_finding_problems(study, data, findings), findings)
                     if not acknowledged)
-    return Loaded(study, table, data, res, warnings, findings)
+    return Loaded(study, table, data, res, warnings, findings=findings, members=members)
 
 
 def _rough_rset_s(study: Study, sid: str) -> float | None:
@@ -333,12 +342,19 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     raw = aset.evaluate(prep, crit, {}, 1)
     raw_aset = aset.location_aset(raw)[:, 0]
     factors = draw_scenario_factors(table, prep, S, seed, index) if table else {}
-    if factors:
+    ens = ensemble.build(spec, loaded.members.get(spec.id), crit, S, seed, index, study.routes)   # None: one run
+    if ens is not None:
+        corr = ens.evaluate(crit, factors, S)       # each member on its own draws
+    elif factors:
         corr = aset.evaluate(prep, crit, factors, S)
     else:
         corr = _repeat_draws(raw, S)
     loc_aset = aset.location_aset(corr)
     end = data.end_s
+    end_v = end if ens is None else ens.end_per_draw      # an ensemble's draws end with their member's data
+    if ens is not None:
+        end = float(ens.ends_s.max())
+        prep = ensemble.MemberPrep(ens, prep)     # detector rules read each draw's own member
     locations = []
     governing_raw = []
     range_warnings: list[str] = []
@@ -407,7 +423,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     egress_med = assess.scenario_egress(specs_here, prep, {}, [assess.EgressDraws.median()] * len(specs_here),
                                         study.elements) if routes_here else None
     more = _MoreSamples(table, prep, crit, seed, index, raw)
-    s_max = max(study.max_samples, S)
+    s_max = max(study.max_samples, S) if ens is None else S     # ensembles: `samples` draws (README)
     schedule = planned_looks(S, s_max)      # the sequential rule's planned looks (verdict.py)
     bigger: dict[int, object] = {}
     sensitivities = None
@@ -427,15 +443,15 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             o = assess.outcome(route, prep, loc_n, raw_aset, governing_raw, eg_n.routes[route.id])
             return o.aset, o.rset, None, o, eg_n, fac_n
 
-        s_used, (_, _, _, out, eg, fac_r) = sequential(schedule, draw_at, end, study.max_p_fail)
+        s_used, (_, _, _, out, eg, fac_r) = sequential(schedule, draw_at, end_v, study.max_p_fail)
         margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
         route_locs = [locations[prep.ids.index(loc)] for loc in route.exposed_at]
         assessed_any = any(c.get("status") == "assessed" for loc in route_locs for c in loc["criteria"].values())
-        v = decide(out.aset, out.rset, end, study.max_p_fail, assessed=assessed_any, max_samples=s_max,
+        v = decide(out.aset, out.rset, end_v, study.max_p_fail, assessed=assessed_any, max_samples=s_max,
                    looks=len(schedule), schedule=schedule)
         la = out.extras.get("location_aware")
-        v_la = None if la is None else decide(la.aset_s, la.leave_s, end, study.max_p_fail, assessed=assessed_any,
-                                              outcomes=worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end)),
+        v_la = None if la is None else decide(la.aset_s, la.leave_s, end_v, study.max_p_fail, assessed=assessed_any,
+                                              outcomes=worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end_v)),
                                               looks=len(schedule), schedule=schedule)
         if sensitivities is None:          # every route's sweep in one flow run of the scenario
             sf, si, sa = sweep
@@ -444,7 +460,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             indices = sensitivity_indices.scenario_indices(specs_here, prep, crit, ppfs, {k: _label(k) for k in ppfs},
                                                            study.elements, end, seed, index, samples=S)
         result = RouteResult(
-            route=route, outcome=out, flow=eg.routes[route.id], nodes=eg.nodes, end_s=end, margin_raw_s=margin_raw,
+            route=route, outcome=out, flow=eg.routes[route.id], nodes=eg.nodes, end_s=end_v, margin_raw_s=margin_raw,
             not_assessed=[{"location": loc["id"], "criterion": cid} for loc in route_locs
                           for cid in loc["not_assessed"]],
             partial=sorted({f"{cid} at {loc['id']}" for loc in route_locs
@@ -454,6 +470,12 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                          if route.along_route else None),
             sensitivity=sensitivities[route.id], sensitivity_indices=indices[route.id])
         entry = route_json(result)
+        if ens is not None:
+            entry["by_member"] = ens.by_member(out.aset, out.rset)
+            if entry.get("along_route"):
+                entry["along_route"]["ensemble_note"] = ensemble.ALONG_ROUTE_NOTE
+        entry["draw_counts"] = design.counts_from_outcomes(draw_outcomes(out.aset, out.rset, end_v),
+                                                           v.deterministic, assessed_any).as_results()
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
     scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),
@@ -463,6 +485,9 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                 "shared_elements": egress_summary.shared_keys(egress.nodes, study.elements) if routes_here else []}
     if spec.design_fire:
         scenario["design_fire"] = spec.design_fire
+    if ens is not None:
+        scenario["ensemble"] = ens.results()
+        ens.annotate_locations(locations, prep.ids, loc_aset)
     cred, cred_plot = credibility(loaded, index, crit)
     if cred is not None:
         scenario["credibility"] = cred
@@ -728,6 +753,7 @@ def build_results(loaded: Loaded, options: RunOptions):
     seen = set()
     for spec in study.scenarios:
         files = [(spec.histories, loaded.data[spec.id])] + [(None, d) for _, d in loaded.resolutions.get(spec.id, [])]
+        files += [(None, d) for d in loaded.members.get(spec.id, [])]        # ensemble members
         for _, d in files:
             if str(d.path) in seen:
                 continue
@@ -757,6 +783,9 @@ def build_results(loaded: Loaded, options: RunOptions):
     results["plausibility"] = [f.as_json(ack) for f, ack in found]
     results["acknowledged_warnings"] = [{"scenario": f.scenario, "location": f.location, "code": f.code,
                                          "message": f.message} for f, ack in found if ack]
+    if study.scenario_weights is not None:      # weighted design fires: the design-level figure
+        limit = study.max_p_fail if study.max_design_p_fail is None else study.max_design_p_fail
+        results["design"] = design.design_results(scenarios, study.scenario_weights, limit, study.weights_source)
     return results, plots
 
 
@@ -871,6 +900,7 @@ def run(study_path: Path, options: RunOptions) -> Path:
               loaded.table.path if loaded.table else None]
     inputs += [d.path for d in loaded.data.values()]
     inputs += [d.path for runs in loaded.resolutions.values() for _, d in runs]
+    inputs += [d.path for ms in loaded.members.values() for d in ms]
     try:
         with outputs.claim(out, inputs, force=options.force, purpose="run") as target:
             results, plots = build_results(loaded, options)

@@ -51,6 +51,10 @@ ROUTE_KEYS = {"id", "title", "scenarios", "occupants", "detection", "alarm", "pr
               "exposed_at", "movement", "exposure", "flow_factor", "speed_factor", "start_at"}
 #: A scenario's CSV format: field delimiters it may declare (``delimiter:``), and decimal marks (``decimal:``).
 SCENARIO_KEYS = SCENARIO_KEYS | {"delimiter", "decimal"}
+#: An ensemble of fire runs instead of one set of histories (see :mod:`egressmargin.ensemble`).
+SCENARIO_KEYS = SCENARIO_KEYS | {"ensemble"}
+#: Weighted design fires (probabilistic design, see :mod:`egressmargin.design`).
+TOP_KEYS = TOP_KEYS | {"scenario_weights", "weights_source"}
 DELIMITERS = {",": ",", ";": ";", "\t": "\t", r"\t": "\t", "tab": "\t", "|": "|"}
 DECIMALS = (".", ",")
 
@@ -117,6 +121,19 @@ class ScenarioSpec:
     ignition_s: float | None = None     # ignition on the file's clock; None: its first time
     delimiter: str = ","
     decimal: str = "."
+    #: An ensemble of fire runs sharing the column mapping (``histories`` is the first's); None: one run.
+    ensemble: list["MemberSpec"] | None = None
+
+
+@dataclass
+class MemberSpec:
+    """One fire run of an ensemble scenario: its histories, relative weight and parameters."""
+
+    id: str
+    histories: Path
+    weight: float
+    parameters: dict
+    where: str = ""
 
 
 @dataclass
@@ -217,6 +234,11 @@ class Study:
     elements: dict[str, "NamedElement"] = field(default_factory=dict)
     #: Report options (top-level `report:`), e.g. ``{"unused_locations": "appendix"}``.
     report: dict = field(default_factory=lambda: {"unused_locations": UNUSED_LOCATIONS[0]})
+    #: Weighted design fires: {scenario id: probability} (sum 1), or None; where they come from;
+    #: the acceptance limit on the design-level p_fail (None: max_p_fail).
+    scenario_weights: dict[str, float] | None = None
+    weights_source: str = ""
+    max_design_p_fail: float | None = None
 
     @property
     def base_dir(self) -> Path:
@@ -391,15 +413,17 @@ def check_study(path: str | Path, criteria_override: str | None = None
     if "max_samples" in data and isinstance(max_samples, int) and max_samples < samples:
         ck.err(("max_samples",), f"found {max_samples}; expected at least 'samples' ({samples})")
     max_p_fail = 0.05
+    max_design_p_fail = None
     if "acceptance" in data:
         acc = data["acceptance"]
-        if ck.keys(acc, ("acceptance",), {"max_p_fail"}, "acceptance"):
+        if ck.keys(acc, ("acceptance",), {"max_p_fail", "max_design_p_fail"}, "acceptance"):
             if "max_p_fail" in acc:
                 v = acc["max_p_fail"]
                 if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 <= v < 1:
                     ck.err(("acceptance", "max_p_fail"), f"found {_show(v)}; expected a probability in [0, 1)")
                 else:
                     max_p_fail = float(v)
+            max_design_p_fail = _max_design_p_fail(ck, acc)
     max_grid_change = 0.10
     max_gci = 0.10
     if "credibility" in data:
@@ -425,6 +449,7 @@ def check_study(path: str | Path, criteria_override: str | None = None
     named, broken = _named_elements(ck, data.get("elements"))
     routes = _routes(ck, data.get("egress", []), loc_ids, named, broken)
     _check_upstream(ck, named, routes)
+    scenario_weights = _scenario_weights(ck, data, scenarios)
 
     # Report fields are checked before the error count, so a map or list there is an error, not a blank.
     for key in ("reference", "prepared_by", "prepared_for"):
@@ -441,7 +466,65 @@ def check_study(path: str | Path, criteria_override: str | None = None
                  prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),
                  paper="letter" if paper.lower() == "letter" else "A4", max_grid_change=max_grid_change,
                  max_gci=max_gci, warnings=[p for p in ck.problems if p.warning], elements=named,
-                 report=report), scenarios, ck.problems
+                 report=report, scenario_weights=scenario_weights,
+                 weights_source=ck.text(data.get("weights_source"), ("weights_source",)),
+                 max_design_p_fail=max_design_p_fail), scenarios, ck.problems
+
+
+def _max_design_p_fail(ck, acc) -> float | None:
+    """``acceptance.max_design_p_fail``: the limit on the design-level p_fail (None: not given)."""
+    if "max_design_p_fail" not in acc:
+        return None
+    v = acc["max_design_p_fail"]
+    if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 <= v < 1:
+        ck.err(("acceptance", "max_design_p_fail"), f"found {_show(v)}; expected a probability in [0, 1)")
+        return None
+    return float(v)
+
+
+def _scenario_weights(ck, data, scenarios) -> dict[str, float] | None:
+    """``scenario_weights: {scenario id: probability}``: every scenario named once, none negative, sum 1.
+
+    A scenario left out is an error (project choice: an unweighted design fire would silently
+    drop out of the design-level figure). The sum may differ from 1 by
+    :data:`egressmargin.design.WEIGHT_SUM_TOLERANCE` (round-off).
+    """
+    from .design import WEIGHT_SUM_TOLERANCE
+
+    if "weights_source" in data and "scenario_weights" not in data:
+        ck.err(("weights_source",), "found 'weights_source' without 'scenario_weights'; expected both or neither")
+    if "scenario_weights" not in data:
+        return None
+    value = data["scenario_weights"]
+    kp = ("scenario_weights",)
+    if not isinstance(value, dict) or not value:
+        ck.err(kp, f"found {_show(value)}; expected a mapping {{<scenario id>: <probability>}} summing to 1")
+        return None
+    ids = [s.id for s in scenarios]
+    out, ok = {}, True
+    for sid, w in value.items():
+        if str(sid) not in ids:
+            ck.err(kp + (sid,), f"unknown scenario '{sid}'; expected one of {', '.join(ids)}{did_you_mean(sid, ids)}")
+            ok = False
+            continue
+        if isinstance(w, bool) or not isinstance(w, (int, float)) or w != w:
+            ck.err(kp + (sid,), f"found {_show(w)}; expected a probability (a number in [0, 1])")
+            ok = False
+        elif w < 0 or w > 1:
+            ck.err(kp + (sid,), f"found {w}; expected a probability in [0, 1] (weights are not negative)")
+            ok = False
+        else:
+            out[str(sid)] = float(w)
+    missing = [s for s in ids if s not in {str(k) for k in value}]
+    if missing:
+        ck.err(kp, f"no weight for scenario{'s' if len(missing) > 1 else ''} {', '.join(missing)}; expected a "
+               "weight for every scenario (give 0 to leave one out of the design-level figure)")
+        ok = False
+    if ok and abs(sum(out.values()) - 1.0) > WEIGHT_SUM_TOLERANCE:
+        ck.err(kp, f"the weights sum to {sum(out.values()):.9g}; expected 1 (conditional probabilities of the "
+               f"design fires given a fire, to within {WEIGHT_SUM_TOLERANCE:g})")
+        ok = False
+    return out if ok else None
 
 
 def _report_options(ck, value) -> dict:
@@ -547,7 +630,7 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
             elif hist.resolve() != finest.histories.resolve():
                 ck.err(kp + ("histories",), f"'{sc['histories']}' is not the finest resolution's histories "
                        f"({finest.histories.name}); expected the assessed histories to be the finest grid")
-        elif hist is None and "histories" not in sc:
+        elif hist is None and "histories" not in sc and "ensemble" not in sc:
             ck.err(kp, "missing key 'histories'; expected the path of the scenario's CSV time histories")
         time = _series_ref(ck, "time", sc.get("time", "Time") if "time" in sc else None, kp + ("time",)) \
             if "time" in sc else None
@@ -587,10 +670,118 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
             ignition = ck.quantity(sc["ignition"], kp + ("ignition",), "duration")
         locations = _locations(ck, sc.get("locations"), kp + ("locations",))
         design_fire = _design_fire(ck, sc["design_fire"], kp + ("design_fire",)) if "design_fire" in sc else None
+        members = _ensemble(ck, sc, kp, base, resolutions) if "ensemble" in sc else None   # an ensemble of fire runs
+        if members and not resolutions:
+            hist = members[0].histories       # the reference member (with resolutions: the finest grid's)
         out.append(ScenarioSpec(sid, ck.text(sc.get("title"), kp + ("title",), default=sid), hist, time,
                                 units_row, locations, amb_t, amb_o2, resolutions, ck.doc.where(kp),
                                 design_fire, ignition_s=ignition))
         out[-1].delimiter, out[-1].decimal = _csv_format(ck, sc, kp)
+        out[-1].ensemble = members
+    return out
+
+
+# ------------------------------------------------------------ ensembles of fire runs
+
+def _ensemble(ck, sc, kp, base: Path, resolutions=()) -> list[MemberSpec] | None:
+    """``ensemble:`` a list of ``{histories, weight, parameters, id}``, or ``{glob, parameters}``.
+
+    With ``glob`` every matching file is a member of equal weight, in sorted order; the
+    optional ``parameters`` is a CSV side table with columns ``file, name, value`` (one row
+    per member and parameter; ``file`` the member's file name). Every member uses the
+    scenario's column mapping (checked when the files are read).
+    """
+    kp = kp + ("ensemble",)
+    value = sc["ensemble"]
+    if "histories" in sc:
+        ck.err(kp, "found both 'histories' and 'ensemble'; expected one of them")
+        return None
+    members: list[MemberSpec] = []
+    if isinstance(value, dict):
+        if not ck.keys(value, kp, {"glob", "parameters"}, "an ensemble given by a file pattern"):
+            return None
+        pattern = value.get("glob")
+        if not isinstance(pattern, str) or not pattern.strip():
+            ck.err(kp, f"found {_show(pattern)} for 'glob'; expected a file pattern such as runs/a-*.csv")
+            return None
+        files = sorted(p for p in base.glob(pattern) if p.is_file())
+        if not files:
+            ck.err(kp + ("glob",), f"no file matches '{pattern}' (looked in {base}); expected the members' CSV files")
+            return None
+        params = _side_table(ck, value.get("parameters"), kp + ("parameters",), base, files) \
+            if value.get("parameters") is not None else {}
+        members = [MemberSpec(f.stem, f, 1.0, params.get(f.name, {}), ck.doc.where(kp)) for f in files]
+    elif isinstance(value, list) and value:
+        for j, m in enumerate(value):
+            mkp = kp + (j,)
+            if not ck.keys(m, mkp, {"id", "histories", "weight", "parameters"}, "an ensemble member"):
+                continue
+            h = m.get("histories")
+            if not isinstance(h, str):
+                ck.err(mkp, f"found {_show(h)} for 'histories'; expected the member's CSV path")
+                continue
+            path = base / h
+            if not path.is_file():
+                ck.err(mkp + ("histories",), f"file '{h}' not found (looked at {path}); expected a CSV file "
+                       "relative to the study file")
+            w = m.get("weight", 1)
+            if isinstance(w, bool) or not isinstance(w, (int, float)) or not w > 0 or w == float("inf"):
+                ck.err(mkp + ("weight",), f"found {_show(w)}; expected a positive number (relative weight)")
+                w = 1.0
+            par = m.get("parameters", {})
+            if not isinstance(par, dict) or any(isinstance(v, (dict, list)) for v in par.values()):
+                ck.err(mkp + ("parameters",), f"found {_show(par)}; expected a mapping of names to numbers or text")
+                par = {}
+            mid = ck.ident(m.get("id", path.stem), mkp + ("id",)) or path.stem
+            members.append(MemberSpec(mid, path, float(w), dict(par), ck.doc.where(mkp)))
+    else:
+        ck.err(kp, f"found {_show(value)}; expected a list of members {{histories, weight, parameters}} "
+               "or {glob: <pattern>}")
+        return None
+    if members and resolutions:
+        finest = min(resolutions, key=lambda r: r.cell_m).histories
+        if finest.resolve() not in {m.histories.resolve() for m in members}:
+            ck.err(kp, f"the finest resolution's histories ({finest.name}) are not a member of the ensemble; expected "
+                   "the grid study to be made on one member (the reference member)")
+    ids = [m.id for m in members]
+    for m in members:
+        if ids.count(m.id) > 1:
+            ck.err(kp, f"member id '{m.id}' is used {ids.count(m.id)} times; expected unique ids (give 'id:')")
+            break
+    return members or None
+
+
+def _side_table(ck, rel, kp, base: Path, files: list[Path]) -> dict[str, dict]:
+    """The ensemble's parameter side table (CSV: file, name, value) as {file name: {name: value}}."""
+    import csv
+
+    if not isinstance(rel, str):
+        ck.err(kp, f"found {_show(rel)}; expected the path of a CSV side table with columns file, name, value")
+        return {}
+    path = base / rel
+    if not path.is_file():
+        ck.err(kp, f"file '{rel}' not found (looked at {path}); expected a CSV side table (file, name, value)")
+        return {}
+    out: dict[str, dict] = {}
+    names = {f.name for f in files}
+    with path.open(newline="", encoding="utf-8-sig") as fh:
+        reader = csv.DictReader(fh)
+        if reader.fieldnames is None or not {"file", "name", "value"} <= {c.strip() for c in reader.fieldnames}:
+            ck.err(kp, f"{path}: found columns {reader.fieldnames}; expected file, name, value")
+            return {}
+        for i, row in enumerate(reader, start=2):
+            row = {k.strip(): (v or "").strip() for k, v in row.items() if k}
+            fname = Path(row["file"]).name
+            if fname not in names:
+                ck.err(kp, f"{path}, line {i}, column file: found '{row['file']}'; expected one of the files the "
+                       f"pattern matches ({', '.join(sorted(names))})")
+                continue
+            v = row["value"]
+            try:
+                v = float(v)
+            except ValueError:
+                pass
+            out.setdefault(fname, {})[row["name"]] = v
     return out
 
 

@@ -143,8 +143,8 @@ def draw_outcomes(aset_s, rset_s, end_s: float) -> np.ndarray:
         ASET per draw [s]; +inf or NaN where no limit is reached by ``end_s``.
     rset_s : array_like, shape (S,)
         RSET per draw [s]; +inf where the fire is never detected.
-    end_s : float
-        Last time of the histories [s], counted from ignition.
+    end_s : float or array_like, shape (S,)
+        Last time of the histories [s], counted from ignition; per draw for an ensemble.
 
     Returns
     -------
@@ -159,7 +159,7 @@ def draw_outcomes(aset_s, rset_s, end_s: float) -> np.ndarray:
     r = np.asarray(rset_s, float)
     a = np.where(np.isnan(a), np.inf, a)
     r = np.where(np.isnan(r), np.inf, r)
-    eps = 1e-9 * max(1.0, abs(end_s))       # float round-off at the end time (project choice)
+    eps = 1e-9 * np.maximum(1.0, np.abs(end_s))   # float round-off at the end time (project choice)
     a_in = a <= end_s + eps
     r_in = r <= end_s + eps
     out = np.full(a.shape, UNKNOWN, np.int8)
@@ -441,6 +441,7 @@ def decide(aset_s, rset_s, end_s: float, max_p_fail: float, *, assessed: bool = 
     det = _is_deterministic(a, r)
     out = draw_outcomes(a, r, end_s) if outcomes is None else np.asarray(outcomes)
     looks = max(int(looks), 1)
+    end_s = float(np.max(end_s))      # per-draw ends (an ensemble): the wording names the latest
     n, p_low, p_high, ci, ci_low, share_unknown = _intervals(out, det, looks)
     base = dict(p_fail=p_high, p_fail_low=p_low, ci95=ci, ci95_low=ci_low, samples_used=n,
                 share_unknown=share_unknown, deterministic=det, looks=looks,

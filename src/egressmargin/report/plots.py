@@ -613,6 +613,123 @@ def credibility_figure(cred: Mapping[str, Mapping[str, Mapping[str, Any]]],
         return finish(fig)
 
 
+# ------------------------------------------------------------ weighted design fires
+
+#: Fill greys for the scenarios' stacked contributions (distinct in greyscale; project choice).
+CONTRIBUTION_FILLS = ["#29536b", "#c9893a", "#c4d8e2", "#5a3826", "#5c7a2e", "#d5dbe1", "#6b5b95"]
+
+
+def design_contributions_figure(routes: Sequence[Mapping[str, Any]], scenarios: Sequence[str],
+                                max_p_fail: float | None = None, uid: str = "design"):
+    """Stacked bars: each weighted scenario's contribution w_s x p_s to a route's design-level p_fail.
+
+    Parameters
+    ----------
+    routes : sequence of mapping
+        ``{"id", "p_fail", "p_fail_ci95", "contributions": {scenario: w x p_fail}}`` per route
+        (results.json ``design.routes``).
+    scenarios : sequence of str
+        Scenario ids in the order to stack them.
+    max_p_fail : float, optional
+        The acceptance limit, drawn as a vertical line.
+    uid : str
+        Unused in the drawing; keeps figure jobs distinct.
+
+    Notes
+    -----
+    Horizontal bars, one per route; each segment is labelled in the legend and differs in
+    grey value from its neighbours; the 95 % interval on the total is a whisker.
+    """
+    matplotlib, plt = _plt()
+    n = max(1, len(routes))
+    height = 0.9 + 0.32 * n
+    with matplotlib.rc_context(_RC):
+        fig, ax = plt.subplots(figsize=(FIG_WIDTH_IN, height))
+        y = np.arange(n)[::-1]
+        left = np.zeros(n)
+        for k, sid in enumerate(scenarios):
+            vals = np.array([float((rt.get("contributions") or {}).get(sid, 0.0) or 0.0) for rt in routes])
+            ax.barh(y, vals, left=left, height=0.6, color=CONTRIBUTION_FILLS[k % len(CONTRIBUTION_FILLS)],
+                    edgecolor=INK, linewidth=0.4, label=_plain(sid))
+            left += vals
+        for yi, rt in zip(y, routes):
+            ci = rt.get("p_fail_ci95")
+            if ci:
+                ax.plot([ci[0], ci[1]], [yi, yi], color=INK, lw=0.9)
+                ax.plot([ci[0], ci[1]], [yi, yi], color=INK, lw=0, marker="|", ms=6)
+        if max_p_fail is not None:
+            ax.axvline(max_p_fail, color=LIMIT, ls="--", lw=0.9, label="acceptance limit")
+        ax.set_yticks(y)
+        ax.set_yticklabels([_plain(rt.get("id")) for rt in routes])
+        ax.set_xlabel("Design-level probability of failure (contribution of each design fire)")
+        ax.set_xlim(left=0.0)
+        ax.grid(axis="y", visible=False)
+        ax.legend(loc="upper center", bbox_to_anchor=(0.5, 1.0 + 0.55 / height), ncol=min(len(scenarios) + 1, 5))
+        fig.subplots_adjust(left=0.2, right=0.98, bottom=0.42 / height, top=1 - 0.5 / height)
+        return finish(fig)
+
+
+# ------------------------------------------------------------ ensembles of fire runs
+
+def ensemble_figure(members: Sequence[Mapping[str, Any]], routes: Sequence[Mapping[str, Any]],
+                    uid: str = "ensemble"):
+    """Margin by ensemble member: p50 with the p05-p95 range per route, members labelled by parameters.
+
+    Parameters
+    ----------
+    members : sequence of mapping
+        ``{"member", "parameters", "share_of_draws"}`` per member (results.json ``scenario.ensemble``).
+    routes : sequence of mapping
+        ``{"id", "by_member": [{"member", "margin_s": {p05, p50, p95}, "p_fail"}]}`` per route.
+    uid : str
+        Unused in the drawing; keeps figure jobs distinct.
+
+    Notes
+    -----
+    A margin percentile not reached within the member's data (no limit reached) is drawn
+    as an open marker at the top of the axis with an arrow: "beyond the data".
+    """
+    matplotlib, plt = _plt()
+    names = [str(m.get("member")) for m in members]
+    labels = []
+    for m in members:
+        par = m.get("parameters") or {}
+        text = "\n".join(f"{k} = {fmt_num(v) if isinstance(v, (int, float)) else v}" for k, v in par.items())
+        labels.append(_plain(wrap_label(str(m.get("member")), 18) + ("\n" + text if text else "")))
+    x = np.arange(len(names), dtype=float)
+    height = 2.9
+    with matplotlib.rc_context(_RC):
+        fig, ax = plt.subplots(figsize=(FIG_WIDTH_IN, height))
+        nr = max(1, len(routes))
+        width = min(0.6 / nr, 0.2)
+        vals = []
+        for k, rt in enumerate(routes):
+            colour, _, marker = SERIES_STYLES[k % len(SERIES_STYLES)]
+            by = {str(b.get("member")): b for b in rt.get("by_member") or []}
+            xs = x + (k - (nr - 1) / 2) * width
+            p50 = np.array([_val((by.get(n) or {}).get("margin_s") or {}, "p50") for n in names], float)
+            p05 = np.array([_val((by.get(n) or {}).get("margin_s") or {}, "p05") for n in names], float)
+            p95 = np.array([_val((by.get(n) or {}).get("margin_s") or {}, "p95") for n in names], float)
+            vals += [v for v in np.concatenate([p05, p50, p95]) if np.isfinite(v)]
+            for xi, lo, mid, hi in zip(xs, p05, p50, p95):
+                if np.isfinite(lo) and np.isfinite(hi):
+                    ax.plot([xi, xi], [lo, hi], color=colour, lw=1.0)
+            ax.plot(xs, p50, ls="none", marker=marker, color=colour, ms=5, label=_plain(f"route {rt.get('id')}"))
+        ax.axhline(0.0, color=LIMIT, ls="--", lw=0.9, label="margin 0 (ASET = RSET)")
+        ax.set_xticks(x)
+        ax.set_xticklabels(labels, fontsize=6.5)
+        ax.set_xlim(-0.6, len(names) - 0.4)
+        ax.set_ylabel("Margin ASET - RSET [s]\n(p50, bar p05-p95)")
+        if vals:
+            lo, hi = min(vals + [0.0]), max(vals + [0.0])
+            pad = 0.08 * (hi - lo or 1.0)
+            ax.set_ylim(lo - pad, hi + pad)
+        ax.grid(axis="x", visible=False)
+        ax.legend(loc="upper center", bbox_to_anchor=(0.5, 1.16), ncol=min(nr + 1, 4))
+        fig.subplots_adjust(left=0.12, right=0.98, bottom=0.24, top=0.86)
+        return finish(fig)
+
+
 __all__ = [
     "finish",
     "location_figure",
@@ -620,4 +737,6 @@ __all__ = [
     "route_panels",
     "shown_indices",
     "credibility_figure",
+    "design_contributions_figure",
+    "ensemble_figure",
 ]

@@ -288,6 +288,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
     size = page_size(paper)  # check the paper name before any work
     plotdata = plotdata or {}
     figs = _Figures()
+    design = _design_view(results.get("design"), figs)   # weighted design fires: figure 1 when given
     study_in = results.get("study") or {}
     study = {k: study_in.get(k) for k in ("title", "reference", "prepared_by", "prepared_for",
                                           "paper", "path", "sha256")}
@@ -349,6 +350,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
             route_inputs.setdefault(route["id"], {"route": route, "scenarios": []})
             route_inputs[route["id"]]["scenarios"].append(sid)
 
+        ensemble_view = _ensemble_view(sc, routes_in, figs)      # an ensemble of fire runs, or None
         matrix = [_matrix_row(loc_by_id[lid], loc_titles[lid], criterion_ids, exposed_by.get(lid, []))
                   for lid in used]
         omitted = [loc_titles[lid] for lid in unused] if omit_unused else []
@@ -373,6 +375,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
             "routes": routes, "matrix": matrix, "matrix_unused": matrix_unused,
             "omitted_locations": omitted,
             "location_figures": loc_figures, "shared_elements": _shared_rows(sc),
+            "ensemble": ensemble_view,
         })
 
     credibility = _credibility(scenarios_in, plotdata, figs)
@@ -427,8 +430,64 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "column_maps": _column_maps(results.get("inputs") or []),
         "figures": figs.items,
         "n_figures": len(figs.items),
+        "design": design,
     }
     return ctx
+
+
+# ------------------------------------------------------------ ensembles of fire runs
+
+def _ensemble_view(sc: Mapping[str, Any], routes_in: Sequence[Mapping[str, Any]], figs: "_Figures"
+                   ) -> dict[str, Any] | None:
+    """The members of an ensemble scenario (table rows) and the margin-by-member figure, or None."""
+    members = list(sc.get("ensemble") or [])
+    if not members:
+        return None
+    rows = []
+    for m in members:
+        p_by_route = [(rt.get("id"), next((b.get("p_fail") for b in rt.get("by_member") or []
+                                            if b.get("member") == m.get("member")), None)) for rt in routes_in]
+        rows.append({"member": m.get("member"), "histories": m.get("histories"),
+                     "parameters": ", ".join(f"{k} = {v}" for k, v in (m.get("parameters") or {}).items()),
+                     "probability": m.get("probability"), "share": m.get("share_of_draws"),
+                     "end_s": m.get("end_s"), "p_fail": p_by_route})
+    fig = None
+    routes = [{"id": rt.get("id"), "by_member": list(rt.get("by_member") or [])}
+              for rt in routes_in if rt.get("by_member")]
+    if routes:
+        fig = figs.add("ensemble_figure",
+                       f"Scenario {sc.get('id')}: margin (ASET - RSET) by ensemble member, p50 with the p05-p95 range "
+                       "over the member's draws, against the member's parameters. Below the dashed line the "
+                       "member's median draw fails.",
+                       members=[{"member": m.get("member"), "parameters": dict(m.get("parameters") or {}),
+                                 "share_of_draws": m.get("share_of_draws")} for m in members],
+                       routes=routes, uid=f"ens-{sc.get('id')}")
+    return {"rows": rows, "route_ids": [rt.get("id") for rt in routes_in], "figure": fig}
+
+
+# ------------------------------------------------------------ weighted design fires
+
+def _design_view(design: Any, figs: "_Figures") -> dict[str, Any] | None:
+    """The design-level table and the contributions figure (results.json ``design``), or None."""
+    if not isinstance(design, Mapping) or not design.get("routes"):
+        return None
+    weights = dict(design.get("weights") or {})
+    routes = list(design["routes"])
+    rows = [{"id": rt.get("id"), "p_fail": rt.get("p_fail"), "p_fail_ci95": rt.get("p_fail_ci95"),
+             "p_fail_bounds": rt.get("p_fail_bounds"), "verdict": rt.get("verdict"),
+             "reason": rt.get("verdict_reason"), "note": rt.get("note"),
+             "contributions": [(sid, (rt.get("contributions") or {}).get(sid)) for sid in weights]}
+            for rt in routes]
+    fig = figs.add("design_contributions_figure",
+                   "Design-level probability of failure per route: each design fire's contribution (its weight "
+                   "times its p_fail, undecided draws counted as failures), stacked; the whisker is the 95 % "
+                   "interval on the total and the dashed line the acceptance limit.",
+                   routes=[{"id": rt.get("id"), "p_fail_ci95": rt.get("p_fail_ci95"),
+                            "contributions": dict(rt.get("contributions") or {})} for rt in routes],
+                   scenarios=list(weights), max_p_fail=design.get("max_p_fail"), uid="design")
+    return {"weights": list(weights.items()), "source": design.get("weights_source") or "",
+            "max_p_fail": design.get("max_p_fail"), "method": design.get("interval_method"),
+            "rows": rows, "figure": fig}
 
 
 def _ordered_design_fire(df: Any) -> list[tuple[str, Any]]:

@@ -1,0 +1,157 @@
+#!/usr/bin/env python
+"""Benchmark of an ensemble scenario on a SYNTHETIC study: the tool against the input floor.
+
+Run from the repository root::
+
+    python bench/ensemble_bench.py            # 200 members x 20 locations x 1801 rows x 2000 draws
+    python bench/ensemble_bench.py --quick    # 12 members x 5 locations x 301 rows x 200 draws
+
+What it measures, each in one run on the same files:
+
+1. **Input floor**: the time pandas needs just to read the member CSV files
+   (``pandas.read_csv`` on each, in a fresh child process, after one untimed warm-up
+   read so both sides see the files in the page cache).
+2. **Tool**: ``egressmargin run STUDY --no-pdf --jobs 1`` as a child process (wall clock,
+   start to exit, imports included), and its peak resident memory (``ru_maxrss`` of the
+   child). Progress is shown per member read.
+
+It prints both times and the ratio tool / floor (target at most 3) and the peak memory
+(target under 1 GB).
+
+Everything the script writes is SYNTHETIC: the curves are the invented smooth growth
+curves of ``bench/bench.py`` with a growth time stretched per member, and the model
+uncertainty table is invented. They are not measurements, not the output of any fire
+model and not statistics from any validation study.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib.util
+import json
+import os
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+
+
+def _bench_module():
+    spec = importlib.util.spec_from_file_location("egressmargin_bench", HERE / "bench.py")
+    mod = importlib.util.module_from_spec(spec)
+    sys.modules[spec.name] = mod
+    spec.loader.exec_module(mod)
+    return mod
+
+
+def write_ensemble_study(folder: Path, members: int, locations: int, rows: int, samples: int) -> Path:
+    """Write a SYNTHETIC ensemble study (one scenario, ``members`` runs via ``glob``) and return its path."""
+    b = _bench_module()
+    runs = folder / "runs"
+    runs.mkdir(parents=True, exist_ok=True)
+    side = ["file,name,value"]
+    for m in range(members):
+        # member m: the synthetic curves of "scenario" m (own onsets and peaks per location)
+        t, temp, co, ext = b.synthetic_histories(m, locations, rows)
+        name = f"a-{m + 1:03d}.csv"
+        b._csv(runs / name, t, temp, co, ext)
+        side.append(f"{name},member_index,{m + 1}")
+    (runs / "params.csv").write_text("\n".join(side) + "\n", encoding="utf-8")
+    unc = ["source: SYNTHETIC statistics invented for the egressmargin benchmark; not from any "
+           "validation study", "distribution: lognormal", "quantities:"]
+    for q, (bias, sm, se) in b.SYNTHETIC_UNCERTAINTY.items():
+        unc.append(f"  {q}: {{bias: {bias}, sigma_model: {sm}, sigma_exp: {se}}}")
+    (folder / "uncertainty.yaml").write_text("\n".join(unc) + "\n", encoding="utf-8")
+    lines = [f"title: SYNTHETIC ensemble benchmark ({members} members x {locations} x {rows} x {samples}; invented)",
+             "criteria: {base: general-2m, only: [" + ", ".join(b.CRITERIA) + "]}",
+             "uncertainty: uncertainty.yaml", f"samples: {samples}", "seed: 1", "scenarios:",
+             "  - id: fire-a", "    title: Synthetic ensemble (invented growth curves)",
+             "    ensemble: {glob: runs/a-*.csv, parameters: runs/params.csv}", "    time: t", "    locations:"]
+    for i in range(locations):
+        z = b.location_id(i).replace("-", "")
+        lines += [f"      - id: {b.location_id(i)}", f"        temperature: temp_{z}",
+                  f"        co: co_{z}", f"        extinction: ext_{z}"]
+    lines.append("egress:")
+    text = "\n".join(lines) + "\n" + "".join(b._routes(locations))
+    path = folder / "study.yaml"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+READ_SNIPPET = """
+import sys, time
+from pathlib import Path
+import pandas as pd
+files = sorted(Path(sys.argv[1]).glob("a-*.csv"))
+t0 = time.perf_counter()
+for f in files:
+    pd.read_csv(f)
+print(time.perf_counter() - t0)
+"""
+
+
+def child_env() -> dict:
+    env = dict(os.environ)
+    env["PYTHONPATH"] = str(ROOT / "src") + os.pathsep + env.get("PYTHONPATH", "")
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        env[var] = "1"
+    return env
+
+
+def pandas_floor(runs: Path) -> float:
+    """Seconds pandas needs to read every member file, in a child process (imports not counted)."""
+    out = subprocess.run([sys.executable, "-c", READ_SNIPPET, str(runs)], capture_output=True, text=True,
+                         check=True, env=child_env())
+    return float(out.stdout.strip())
+
+
+def tool_run(study: Path, out: Path) -> tuple[float, float]:
+    """(wall seconds, peak resident memory of the child [MiB]) of ``egressmargin run --no-pdf --jobs 1``."""
+    before = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+    t0 = time.perf_counter()
+    subprocess.run([sys.executable, "-m", "egressmargin", "run", str(study), "--out", str(out), "--no-pdf",
+                    "--jobs", "1"], check=True, env=child_env())
+    wall = time.perf_counter() - t0
+    peak_kib = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss   # the largest child so far
+    return wall, max(peak_kib, before) / 1024.0
+
+
+def main(argv: list[str] | None = None) -> int:
+    p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    p.add_argument("--quick", action="store_true", help="reduced sizes (seconds)")
+    p.add_argument("--json", type=Path, help="also write the figures as JSON to this file")
+    args = p.parse_args(argv)
+    members, locations, rows, samples = (12, 5, 301, 200) if args.quick else (200, 20, 1801, 2000)
+    with tempfile.TemporaryDirectory(prefix="em-ens-bench-") as tmp:
+        work = Path(tmp)
+        print(f"writing {members} SYNTHETIC member files ({locations} locations x {rows} rows) ...", flush=True)
+        study = write_ensemble_study(work, members, locations, rows, samples)
+        pandas_floor(work / "runs")                       # warm-up: both sides read from the page cache
+        floor = pandas_floor(work / "runs")
+        wall, peak_mib = tool_run(study, work / "out")
+        res = json.loads((work / "out" / "results.json").read_text())
+        shares = [m["draws"] for m in res["scenarios"][0]["ensemble"]]
+    ratio = wall / floor
+    row = {"members": members, "locations": locations, "rows": rows, "samples": samples,
+           "pandas_read_s": round(floor, 3), "tool_run_s": round(wall, 3), "ratio": round(ratio, 2),
+           "peak_mib": round(peak_mib, 1), "draws_per_member": [min(shares), max(shares)]}
+    print(f"ensemble {members} members x {locations} locations x {rows} rows x {samples} draws")
+    print(f"  pandas reads the {members} files: {floor:.2f} s")
+    print(f"  egressmargin run --no-pdf --jobs 1: {wall:.2f} s (imports included)")
+    print(f"  ratio tool / input floor: {ratio:.2f} x (target <= 3 x)")
+    print(f"  peak memory of the run: {peak_mib:.0f} MiB (target < 1024 MiB)")
+    print(f"  draws per member: {min(shares)} to {max(shares)}")
+    if args.json:
+        args.json.write_text(json.dumps(row, indent=2) + "\n", encoding="utf-8")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

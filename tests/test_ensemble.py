@@ -1,0 +1,218 @@
+"""Ensembles of fire runs: stratified member assignment, per-draw censoring, per-member results.
+
+Outside references named beside each check: closed forms (a linear temperature rise
+reaches the limit at a known time; the share of failing draws is the sum of the failing
+members' weights) and systematic sampling (Cochran 1977, Sampling Techniques, 3rd ed.,
+ch. 8: each stratum receives floor or ceil of S w draws).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+import yaml
+
+from egressmargin.ensemble import assign_members
+from engine_helpers import results_for
+
+ONLY_T = {"base": "general-2m", "only": ["temperature"]}
+
+
+def _csv(path: Path, reach_s: float, end_s: float = 600.0, column: str = "T1") -> None:
+    """A temperature rising linearly from 20 degC that reaches 60 degC at ``reach_s`` (inf: stays at 20)."""
+    t = np.arange(0.0, end_s + 1.0, 1.0)
+    temp = np.full(t.shape, 20.0) if not np.isfinite(reach_s) else 20.0 + 40.0 * t / reach_s
+    lines = [f"Time [s],{column} [degC]"] + [f"{float(a)!r},{float(b)!r}" for a, b in zip(t, temp)]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
+def _study(tmp: Path, members: list[dict], samples: int = 400, uncertainty: bool = False, premovement="350 s"):
+    sc = {"id": "fire-a", "time": "Time", "ensemble": members, "locations": [{"id": "a", "temperature": "T1"}]}
+    route = {"id": "r", "occupants": 1, "detection": "0 s", "alarm": "0 s", "premovement": premovement,
+             "path": [{"door": {"width": "1.0 m"}}], "exposed_at": ["a"]}
+    doc = {"title": "ensemble test (synthetic)", "criteria": ONLY_T, "samples": samples, "seed": 3,
+           "scenarios": [sc], "egress": [route]}
+    if uncertainty:
+        (tmp / "unc.yaml").write_text(yaml.safe_dump(
+            {"source": "synthetic test values", "distribution": "lognormal",
+             "quantities": {"temperature": {"bias": 1.0, "sigma_model": 0.01, "sigma_exp": 0.0}}}))
+        doc["uncertainty"] = "unc.yaml"
+    path = tmp / "study.yaml"
+    path.write_text(yaml.safe_dump(doc, sort_keys=False), encoding="utf-8")
+    return path
+
+
+def _three(tmp, **kw):
+    for name, reach in (("a-01", 200.0), ("a-02", 300.0), ("a-03", 400.0)):
+        _csv(tmp / f"{name}.csv", reach)
+    members = [{"histories": "a-01.csv", "weight": 1, "parameters": {"growth": "ultra-fast"}},
+               {"histories": "a-02.csv", "weight": 1, "parameters": {"growth": "fast"}},
+               {"histories": "a-03.csv", "weight": 2, "parameters": {"growth": "medium"}}]
+    return _study(tmp, members, **kw)
+
+
+@pytest.mark.parametrize("uncertainty", [False, True])
+def test_members_at_200_300_400_s_weighted_1_1_2_against_rset_350_give_p_fail_one_half(tmp_path, uncertainty):
+    """Closed form: the 200 s and 300 s members fail (ASET < RSET ~ 351 s), the 400 s member passes;
+    their weights 1/4 + 1/4 = 1/2, and the stratified assignment makes the share exact. With a 1 %
+    model error on the temperature rise the crossings move by about 1 %, not across the RSET."""
+    res, _ = results_for(_three(tmp_path, uncertainty=uncertainty))
+    sc = res["scenarios"][0]
+    rt = sc["routes"][0]
+    assert rt["p_fail"] == 0.5
+    assert [m["share_of_draws"] for m in sc["ensemble"]] == [0.25, 0.25, 0.5]
+    assert [m["parameters"]["growth"] for m in sc["ensemble"]] == ["ultra-fast", "fast", "medium"]
+    by = {m["member"]: m for m in rt["by_member"]}
+    assert [by[k]["p_fail"] for k in ("a-01", "a-02", "a-03")] == [1.0, 1.0, 0.0]
+    tol = 10.0 if uncertainty else 1e-6
+    assert [by[k]["aset_p50"] for k in ("a-01", "a-02", "a-03")] == [pytest.approx(x, abs=tol)
+                                                                      for x in (200.0, 300.0, 400.0)]
+    loc = sc["locations"][0]
+    assert [m["aset_raw_s"] for m in loc["aset_by_member"]] == [pytest.approx(x) for x in (200.0, 300.0, 400.0)]
+    assert rt["draw_counts"]["fail"] == 200 and rt["draw_counts"]["draws"] == 400
+
+
+def test_assignment_share_is_exact_to_one_draw():
+    """Systematic sampling: every member receives floor or ceil of S w_m draws (Cochran 1977, ch. 8)."""
+    w = np.array([0.13, 2.0, 0.5, 1.37, 0.001])
+    for S, seed in ((1000, 1), (997, 2), (37, 5)):
+        counts = np.bincount(assign_members(w, S, seed, 0), minlength=len(w))
+        expected = S * w / w.sum()
+        assert counts.sum() == S
+        assert np.all(np.abs(counts - expected) < 1.0)
+
+
+def test_censoring_is_per_draw_member_end(tmp_path):
+    """A member whose data end at 300 s and never reach the limit cannot decide a draw whose occupants
+    leave at ~351 s (undecided, counted as fail); a member with data to 600 s passes the same draw."""
+    _csv(tmp_path / "short.csv", float("inf"), end_s=300.0)
+    _csv(tmp_path / "long.csv", float("inf"), end_s=600.0)
+    members = [{"histories": "short.csv", "weight": 1}, {"histories": "long.csv", "weight": 1}]
+    res, _ = results_for(_study(tmp_path, members, samples=100))
+    rt = res["scenarios"][0]["routes"][0]
+    assert rt["p_fail"] == 0.5 and rt["p_fail_bounds"]["low"] == 0.0
+    assert {m["member"]: m["p_fail"] for m in rt["by_member"]} == {"short": 1.0, "long": 0.0}
+    assert rt["draw_counts"]["undecided"] == 50
+    assert res["scenarios"][0]["end_s"] == 600.0
+
+
+def test_glob_with_side_table_gives_equal_weights_and_parameters(tmp_path):
+    runs = tmp_path / "runs"
+    runs.mkdir()
+    for name, reach in (("a-1", 200.0), ("a-2", 500.0)):
+        _csv(runs / f"{name}.csv", reach)
+    (runs / "params.csv").write_text("file,name,value\na-1.csv,growth_kw_s2,0.047\na-2.csv,growth_kw_s2,0.012\n")
+    path = _study(tmp_path, {"glob": "runs/a-*.csv", "parameters": "runs/params.csv"}, samples=10)
+    res, _ = results_for(path)
+    ens = res["scenarios"][0]["ensemble"]
+    assert [(m["member"], m["weight"], m["parameters"]) for m in ens] == [
+        ("a-1", 1.0, {"growth_kw_s2": 0.047}), ("a-2", 1.0, {"growth_kw_s2": 0.012})]
+    assert res["scenarios"][0]["routes"][0]["p_fail"] == 0.5
+
+
+def test_validate_names_the_member_file_and_the_column_that_differs(tmp_path, cli):
+    _csv(tmp_path / "a-01.csv", 200.0)
+    _csv(tmp_path / "a-02.csv", 300.0, column="T_other")
+    path = _study(tmp_path, [{"histories": "a-01.csv"}, {"histories": "a-02.csv"}])
+    code, out, err = cli(["validate", str(path)])
+    text = out + err
+    assert code == 2
+    assert "a-02.csv" in text and "T1" in text and "ensemble member 'a-02'" in text
+    assert "a-01.csv" not in text.replace(str(tmp_path / "a-02.csv"), "")
+
+
+def test_validate_catches_histories_and_ensemble_together_and_bad_weights(tmp_path, cli):
+    _csv(tmp_path / "a-01.csv", 200.0)
+    path = _study(tmp_path, [{"histories": "a-01.csv", "weight": -1}])
+    doc = yaml.safe_load(path.read_text())
+    doc["scenarios"][0]["histories"] = "a-01.csv"
+    path.write_text(yaml.safe_dump(doc))
+    code, out, err = cli(["validate", str(path)])
+    assert code == 2 and "both 'histories' and 'ensemble'" in out + err
+    del doc["scenarios"][0]["histories"]
+    path.write_text(yaml.safe_dump(doc))
+    code, out, err = cli(["validate", str(path)])
+    assert code == 2 and "expected a positive number" in out + err
+
+
+def test_report_shows_the_members_and_a_margin_by_member_figure(tmp_path):
+    from egressmargin.report import plots as report_plots
+    from egressmargin.report.render import build_context, render_html
+
+    res, pl = results_for(_three(tmp_path, samples=40))
+    ctx = build_context(res, pl)
+    view = ctx["scenarios"][0]["ensemble"]
+    assert [r["member"] for r in view["rows"]] == ["a-01", "a-02", "a-03"]
+    assert [r["p_fail"] for r in view["rows"]] == [[("r", 1.0)], [("r", 1.0)], [("r", 0.0)]]
+    png = report_plots.ensemble_figure(**view["figure"]["job"][1])
+    assert png[:8] == b"\x89PNG\r\n\x1a\n"
+    html = render_html(res, pl)
+    assert "Ensemble members of scenario fire-a" in html and "growth = medium" in html
+
+
+def test_a_detector_rule_reads_each_draws_own_member(tmp_path):
+    """Smoke detection at K = 0.1 1/m: member 'early' reaches it at 100 s, 'late' at 250 s (linear rise).
+    With pre-movement 100 s the occupants leave at ~201 s and ~351 s; the limit (60 degC) is reached at
+    300 s in both, so 'early' passes and 'late' fails: p_fail = 1/2 (closed form). Detection read on one
+    member only would give 0 or 1."""
+    t = np.arange(0.0, 601.0, 1.0)
+    for name, t_det in (("early", 100.0), ("late", 250.0)):
+        temp = 20.0 + 40.0 * t / 300.0
+        k = 0.1 * t / t_det
+        lines = ["Time [s],T1 [degC],K1 [1/m]"] + [f"{float(a)!r},{float(b)!r},{float(c)!r}"
+                                                  for a, b, c in zip(t, temp, k)]
+        (tmp_path / f"{name}.csv").write_text("\n".join(lines) + "\n")
+    path = _study(tmp_path, [{"histories": "early.csv"}, {"histories": "late.csv"}], samples=100,
+                  premovement="100 s")
+    doc = yaml.safe_load(path.read_text())
+    doc["scenarios"][0]["locations"].append({"id": "det", "role": "detector", "extinction": "K1"})
+    doc["egress"][0]["detection"] = {"smoke": {"location": "det", "extinction": "0.1 1/m"}}
+    path.write_text(yaml.safe_dump(doc))
+    res, _ = results_for(path)
+    rt = res["scenarios"][0]["routes"][0]
+    assert rt["p_fail"] == 0.5
+    assert {m["member"]: m["p_fail"] for m in rt["by_member"]} == {"early": 0.0, "late": 1.0}
+
+
+def test_member_detection_for_other_streams_is_recomputed_per_member(tmp_path):
+    """Detection asked for uniforms other than the run's (same count) is evaluated member by member
+    again, not taken from the reference member: the early member detects at 100 s, the late at 250 s."""
+    from egressmargin import aset
+    from egressmargin.ensemble import MemberPrep, build
+    from egressmargin.pipeline import load
+
+    t = np.arange(0.0, 601.0, 1.0)
+    for name, t_det in (("early", 100.0), ("late", 250.0)):
+        lines = ["Time [s],T1 [degC],K1 [1/m]"] + [f"{float(a)!r},20.0,{float(0.1 * a / t_det)!r}" for a in t]
+        (tmp_path / f"{name}.csv").write_text("\n".join(lines) + "\n")
+    path = _study(tmp_path, [{"histories": "early.csv"}, {"histories": "late.csv"}], samples=10)
+    doc = yaml.safe_load(path.read_text())
+    doc["scenarios"][0]["locations"].append({"id": "det", "role": "detector", "extinction": "K1"})
+    doc["egress"][0]["detection"] = {"smoke": {"location": "det", "extinction": "0.1 1/m"}}
+    path.write_text(yaml.safe_dump(doc))
+    loaded = load(path)
+    spec, crit = loaded.study.scenarios[0], loaded.study.criteria
+    ens = build(spec, loaded.members["fire-a"], crit, 10, 1, 0, loaded.study.routes)
+    ens.evaluate(crit, {}, 10)
+    prep = MemberPrep(ens, aset.prepare(loaded.data["fire-a"], crit, None, None))
+    rule = loaded.study.routes[0].detection
+    got = prep.member_detection(rule, {}, np.full(10, 0.123))
+    expected = np.where(ens.member_of_draw == 0, 100.0, 250.0)
+    assert got == pytest.approx(expected, abs=1e-6)
+
+
+def test_process_pool_gives_the_same_results_as_a_serial_run(tmp_path):
+    """Scenarios in forked workers see the ensemble members too: identical results.json content."""
+    path = _three(tmp_path, samples=60, uncertainty=True)
+    doc = yaml.safe_load(path.read_text())
+    plain = dict(doc["scenarios"][0])
+    plain.pop("ensemble")
+    plain.update({"id": "fire-b", "histories": "a-02.csv"})
+    doc["scenarios"].append(plain)
+    path.write_text(yaml.safe_dump(doc))
+    serial, _ = results_for(path, workers=1)
+    pooled, _ = results_for(path, workers=2)
+    assert pooled["scenarios"] == serial["scenarios"]
+    assert serial["scenarios"][0]["routes"][0]["p_fail"] == 0.5
