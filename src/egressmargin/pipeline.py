@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__, aset, assess, outputs
+from . import __version__, aset, assess, exposure, outputs
 from .clock import shift_to_ignition
 from .egress import summary as egress_summary
 from .credibility import flag_change, grid_convergence
@@ -335,6 +335,13 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             sf, si, sa = sweep
             sensitivities = assess.scenario_sensitivity(specs_here, prep, sf, si, sa,
                                                         {k: _label(k) for k in si_keys(si)}, study.elements)
+        # every occupant's exposure: with `exposure: along-route`, or when the occupants take part in the verdict
+        ex, v_occ = None, None
+        if route.along_route or study.acceptance_basis != "route-aset":
+            ex = exposure.occupant_exposure(route, prep, crit, fac_r, s_used, eg.routes[route.id])
+            v_occ = exposure.occupant_verdict(ex, eg.routes[route.id].rset, study.max_p_fail, s_max)
+        v_route = v
+        v = exposure.governing(study.acceptance_basis, v_route, v_occ)
         result = RouteResult(
             route=route, outcome=out, flow=eg.routes[route.id], nodes=eg.nodes, end_s=end, margin_raw_s=margin_raw,
             not_assessed=[{"location": loc["id"], "criterion": cid} for loc in route_locs
@@ -342,12 +349,15 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             partial=sorted({f"{cid} at {loc['id']}" for loc in route_locs
                             for cid, c in loc["criteria"].items() if c.get("partial")}),
             criteria_assessed=assessed_any, verdict=v, location_aware_verdict=v_la,
-            along_route=(assess.along_route_dose(route, prep, crit, fac_r, s_used, eg.routes[route.id])
-                         if route.along_route else None),
-            sensitivity=sensitivities[route.id])
+            along_route=(assess.along_route_dose(route, prep, crit, fac_r, s_used, eg.routes[route.id], ex)
+                         if ex is not None else None),
+            sensitivity=sensitivities[route.id], occupant_verdict=v_occ, route_aset_verdict=v_route,
+            basis=study.acceptance_basis)
         entry = route_json(result)
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
+        if ex is not None:
+            route_plots[route.id]["occupant_dose"] = exposure.person_bands(ex)
     scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),
                 "warnings": range_warnings,
                 "ignition_s": data.ignition_s, "clock": data.clock_note or "times count from the histories' first time (0 s), taken as ignition",
@@ -643,7 +653,7 @@ def build_results(loaded: Loaded, options: RunOptions):
         "uncertainty": loaded.table.as_results() if loaded.table else None,
         "egress_method": egress_method(),
         "acceptance": {"max_p_fail": study.max_p_fail, "max_samples": study.max_samples,
-                       "interval_method": CI_METHOD},
+                       "interval_method": CI_METHOD, "basis": study.acceptance_basis},
         "raw_only": bool(options.raw_only),
         "assumptions": assumptions(loaded),
         "warnings": [str(w) for w in loaded.warnings] + [w for sc in scenarios for w in sc["warnings"]],

@@ -422,6 +422,10 @@ class ElementPass:
         Capacity used [persons/s] (times the flow factor).
     density_p_m2 : numpy.ndarray
         Crowd density used for the speed [persons/m^2] (0 where unimpeded).
+    arrive_each_s, pass_each_s, leave_each_s : numpy.ndarray or None
+        Every occupant's arrival at the entry, pass of the bottleneck and leaving
+        [s from ignition], shape (S, N) in the route's person order (+inf: absent
+        person); what :mod:`egressmargin.exposure` follows. None where not kept.
     """
 
     arrive_s: np.ndarray
@@ -431,6 +435,9 @@ class ElementPass:
     speed_m_s: np.ndarray
     capacity_p_s: np.ndarray
     density_p_m2: np.ndarray
+    arrive_each_s: np.ndarray | None = None
+    pass_each_s: np.ndarray | None = None
+    leave_each_s: np.ndarray | None = None
 
 
 @dataclass
@@ -563,7 +570,7 @@ def _pass_node(node, us, routes, ctrls, arrivals, passes, nodes, first_ids):
         passes[u].append(ElementPass(
             arrive_s=_last(a, route.counts), pass_s=_last(d, route.counts), leave_s=_last(leave, route.counts),
             queue_s=np.fmax(np.fmax.reduce(wait, axis=1), 0.0), speed_m_s=v, capacity_p_s=cap,
-            density_p_m2=np.broadcast_to(dens, (S,)).copy()))
+            density_p_m2=np.broadcast_to(dens, (S,)).copy(), arrive_each_s=a, pass_each_s=d, leave_each_s=leave))
         arrivals[u] = leave
         leaves.append(_last(leave, route.counts))
     if len(us) > 1:
