@@ -280,3 +280,40 @@ def test_memory_does_not_grow_with_the_draws():
 
     small, big = peak(1200), peak(2400)
     assert big < 1.25 * small
+
+
+def test_report_shows_both_verdicts_the_warning_the_words_and_the_figure():
+    """A route that passes on ASET but fails on occupant exposure: the summary shows both and
+    says which governs, a warning names it, the route names its most exposed occupant in
+    words and draws the dose-by-start-order figure (illustrative numbers)."""
+    from report_fixture import make_fixture
+    from egressmargin.report import plots
+    from egressmargin.report.render import _environment, build_context
+
+    results, plotdata = make_fixture(samples=200)
+    sc = results["scenarios"][0]
+    rt = next(r for r in sc["routes"] if r["verdict"] == "pass")
+    words = "the 214th of 300 to start, waiting at the door (path element 2), in corridor-2"
+    rt["acceptance_basis"] = "route-aset"
+    rt["occupant_verdict"] = {"p_fail": 0.4, "p_fail_bounds": {"low": 0.4, "high": 0.4},
+                              "p_fail_ci95": [0.33, 0.47], "samples_used": 200, "verdict": "fail",
+                              "verdict_reason": "Fails on occupant exposure: illustrative."}
+    rt["along_route"] = {"criteria": {"fed_toxic": {
+        "p05": 0.01, "p50": 0.02, "p95": 0.03, "limit": 0.3, "exceeds_p": 0.0,
+        "occupants": {"max": {"p05": 0.25, "p50": 0.31, "p95": 0.4}, "p_any_exceeds": 0.4,
+                      "p_any_exceeds_ci95": [0.33, 0.47], "share_exceeding": {"mean": 0.05, "p95": 0.1},
+                      "most_exposed": {"order_p50": 214, "location": "corridor-2", "words": words}}}}}
+    x = np.arange(300)
+    plotdata[sc["id"]]["routes"][rt["id"]]["occupant_dose"] = {
+        "fed_toxic": {"p05": 0.001 * x, "p50": 0.0012 * x, "p95": 0.0015 * x, "limit": 0.3, "draws": 200}}
+    ctx = build_context(results, plotdata)
+    assert [r["id"] for r in ctx["occupant_warnings"]] == [rt["id"]]
+    fig = next(f for f in ctx["figures"] if f["job"][0] == "occupant_dose_figure")
+    png = plots.occupant_dose_figure(**fig["job"][1])           # only this figure is drawn (fast)
+    assert png[:8] == b"\x89PNG\r\n\x1a\n"
+    fig["src"] = "data:image/png;base64,"
+    html = _environment().get_template("report.html.j2").render(css="", **ctx)
+    assert "passes on route ASET, fails on occupant exposure" in html
+    assert "the 214th of 300 to start, waiting at the door (path element 2), in corridor-2" in html
+    assert "each occupant&#39;s own dose against their place in the start order" in html
+    assert "acceptance.basis: route-aset" in html
