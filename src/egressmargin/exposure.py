@@ -249,20 +249,29 @@ def _beyond_curves(t_s: np.ndarray, excess: np.ndarray) -> tuple[np.ndarray, np.
     sample interval, the start and end of its part beyond the limit s0, s1 (U, Lr, T-1)
     [s] (s0 = s1 where none; a series crosses the limit at most once in an interval).
     The time beyond up to x in interval k is M_k + clip(x - s0_k, 0, s1_k - s0_k).
+    Only the curves that reach the limit somewhere are worked out.
     """
+    shape = excess.shape
+    T = shape[-1]
+    flat = excess.reshape(-1, T)
+    hit = np.flatnonzero(np.any(flat >= 0, axis=-1))          # NaN compares False: never beyond
     t0, t1 = t_s[:-1], t_s[1:]
-    a, b = excess[..., :-1], excess[..., 1:]
-    a = np.where(np.isnan(a), -np.inf, a)
-    b = np.where(np.isnan(b), -np.inf, b)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        frac = np.where(a != b, a / (a - b), 0.0)          # where the line crosses zero, in (0, 1)
-    frac = np.nan_to_num(np.clip(frac, 0.0, 1.0))
-    tc = t0 + frac * (t1 - t0)
-    s0 = np.where(a >= 0, t0, np.where(b >= 0, tc, t0))
-    s1 = np.where(a >= 0, np.where(b >= 0, t1, tc), np.where(b >= 0, t1, t0))
-    m = np.zeros(excess.shape)
-    np.cumsum(s1 - s0, axis=-1, out=m[..., 1:])
-    return m, s0, s1
+    m = np.zeros(flat.shape)
+    s0 = np.broadcast_to(t0, (flat.shape[0], T - 1)).copy()
+    s1 = s0.copy()
+    if hit.size:
+        a, b = flat[hit, :-1], flat[hit, 1:]
+        a = np.where(np.isnan(a), -np.inf, a)
+        b = np.where(np.isnan(b), -np.inf, b)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            frac = np.where(a != b, a / (a - b), 0.0)      # where the line crosses zero, in (0, 1)
+        tc = t0 + np.nan_to_num(np.clip(frac, 0.0, 1.0)) * (t1 - t0)
+        a_in, b_in = a >= 0, b >= 0
+        lo = np.where(a_in, t0, np.where(b_in, tc, t0))
+        hi = np.where(a_in, np.where(b_in, t1, tc), np.where(b_in, t1, t0))
+        s0[hit], s1[hit] = lo, hi
+        m[hit, 1:] = np.cumsum(hi - lo, axis=-1)
+    return m.reshape(shape), s0.reshape(shape[:-1] + (T - 1,)), s1.reshape(shape[:-1] + (T - 1,))
 
 
 # ----------------------------------------------------------------------------------------
@@ -287,6 +296,27 @@ class _Times:
             i = np.clip(np.searchsorted(t, xb, side="right") - 1, 0, t.size - 2)
             self.cache[key] = (xb, i, (xb - t[i]) / (t[i + 1] - t[i]))
         return self.cache[key]
+
+
+class _Running:
+    """One criterion's per-draw results, filled block by block."""
+
+    def __init__(self, c: Criterion, kind: str, ok: np.ndarray, fac: dict, S: int, N: int, F: int):
+        self.c, self.kind, self.ok, self.fac = c, kind, ok, fac
+        self.col = {int(j): k for k, j in enumerate(np.flatnonzero(ok))}      # route location -> curve row
+        self.worst = np.full(S, np.nan)
+        self.any_ex = np.zeros(S, bool)
+        self.any_und = np.zeros(S, bool)
+        self.share = np.zeros(S)
+        self.order = np.zeros(S, int)
+        self.stay = np.zeros(S, int)
+        self.last = np.full(S, np.nan)
+        self.last_und = np.zeros(S, bool)
+        self.persons = np.full((F, N), np.nan)
+
+    def result(self) -> CriterionExposure:
+        return CriterionExposure(self.c.id, self.kind, self.c.limit, True, self.worst, self.any_ex, self.any_und,
+                                 self.share, self.order, self.stay, self.last, self.last_und, self.persons)
 
 
 def occupant_exposure(route, prep: aset.Prepared, criteria: CriteriaSet, factors: dict, S: int,
@@ -327,7 +357,7 @@ def occupant_exposure(route, prep: aset.Prepared, criteria: CriteriaSet, factors
     where = [locs.index(s.location) for s in stays]
     B = _block_size(S, N, len(locs), t.size)
     F = min(S, FIGURE_DRAWS)
-    results = {}
+    results: dict[str, CriterionExposure | _Running] = {}
     for cid, c in criteria.items.items():
         kind = "dose" if cid in aset.DOSE_CRITERIA else "instant" if cid in INSTANT_CRITERIA else None
         if kind is None:
@@ -339,7 +369,16 @@ def occupant_exposure(route, prep: aset.Prepared, criteria: CriteriaSet, factors
             continue
         keys = _factor_keys(prep, c, rows[ok])
         fac = {k: np.broadcast_to(np.asarray(factors.get(k, 1.0), float), (S,)) for k in keys}
-        results[cid] = _criterion(c, kind, prep, fac, rows, ok, stays, where, counts, exit_each, S, N, B, F, end)
+        results[cid] = _Running(c, kind, ok, fac, S, N, F)
+    running = [r for r in results.values() if isinstance(r, _Running)]
+    for lo in range(0, S, B):
+        sl = slice(lo, min(S, lo + B))
+        times = _Times(t, sl)                 # shared by every criterion of the block
+        present = np.arange(N)[None, :] < counts[sl, None]
+        inside = present & ~(exit_each[sl] <= end)
+        for run in running:
+            _block(run, prep, rows, stays, where, times, sl, present, inside, counts)
+    results = {cid: (r.result() if isinstance(r, _Running) else r) for cid, r in results.items()}
     ex = OccupantExposure(results, stays, counts, exit_each[np.arange(S), counts - 1], end)
     ex.outcomes = occupant_outcomes(ex, S)
     return ex
@@ -362,87 +401,79 @@ def _not_assessed(cid, kind, limit, S, N, F) -> CriterionExposure:
                              np.zeros(S, int), nan, no, np.full((F, N), np.nan))
 
 
-def _criterion(c, kind, prep, fac, rows, ok, stays, where, counts, exit_each, S, N, B, F, end) -> CriterionExposure:
-    t = prep.t_s
-    worst = np.full(S, np.nan)
-    any_ex = np.zeros(S, bool)
-    any_und = np.zeros(S, bool)
-    share_ex = np.zeros(S)
-    w_order = np.zeros(S, int)
-    w_stay = np.zeros(S, int)
-    last = np.full(S, np.nan)
-    last_und = np.zeros(S, bool)
-    persons = np.full((F, N), np.nan)
-    keys = list(fac)
-    rows_ok = rows[ok]
-    col = {int(j): k for k, j in enumerate(np.flatnonzero(ok))}      # route location -> curve row
+def _block(run: _Running, prep, rows, stays, where, times: _Times, sl: slice, present, inside, counts) -> None:
+    """One block of draws of one criterion: every person's value, then the per-draw results."""
+    c, kind, t = run.c, run.kind, prep.t_s
+    nb, N = present.shape
+    keys = list(run.fac)
+    if keys:
+        combos, inverse = np.unique(np.stack([run.fac[k][sl] for k in keys], axis=1), axis=0, return_inverse=True)
+        inverse = inverse.reshape(-1)
+    else:
+        combos, inverse = np.ones((1, 0)), np.zeros(nb, int)
+    f = {k: combos[:, j] for j, k in enumerate(keys)}
+    rows_ok = rows[run.ok]
     Lr = rows_ok.size
-    for lo in range(0, S, B):
-        sl = slice(lo, min(S, lo + B))
-        nb = sl.stop - sl.start
-        if keys:
-            combos, inverse = np.unique(np.stack([fac[k][sl] for k in keys], axis=1), axis=0, return_inverse=True)
-            inverse = inverse.reshape(-1)
-        else:
-            combos, inverse = np.ones((1, 0)), np.zeros(nb, int)
-        f = {k: combos[:, j] for j, k in enumerate(keys)}
-        if kind == "dose":
-            curves = _dose_curves(prep, c, f, rows_ok)
-        else:
-            curves = [_beyond_curves(t, _excess(prep, c, f, rows_ok))]
-        times = _Times(t, sl)
-        base = inverse[:, None] * Lr                                      # (nb, 1)
-        totals = [np.zeros((nb, N)) for _ in curves]
-        best = np.full((nb, N), -np.inf)
-        best_k = np.zeros((nb, N), int)
-        for k, stay in enumerate(stays):
-            j = where[k]
-            if j not in col:
-                continue
-            ends = [times(stay.t_in), times(stay.t_out)]
-            gained = np.zeros((nb, N))
-            for m, cur in enumerate(curves):
-                val = []
-                for xb, i, w in ends:
-                    if kind == "dose":
-                        flat = cur.reshape(-1)
-                        idx = (base + col[j]) * t.size + i
-                        val.append(flat[idx] * (1 - w) + flat[idx + 1] * w)
-                    else:
-                        mm, s0, s1 = cur
-                        idx = (base + col[j]) * t.size + i
-                        idx1 = (base + col[j]) * (t.size - 1) + i
-                        a0, a1 = s0.reshape(-1)[idx1], s1.reshape(-1)[idx1]
-                        val.append(mm.reshape(-1)[idx] + np.clip(xb - a0, 0.0, a1 - a0))
-                d = np.where(np.isnan(val[1] - val[0]), 0.0, val[1] - val[0])
-                totals[m] += d
-                gained = np.maximum(gained, d)
-            better = gained > best
-            best = np.where(better, gained, best)
-            best_k = np.where(better, k, best_k)
-        value = np.maximum.reduce(totals) if len(totals) > 1 else totals[0]   # Purser's "or": the person's own
-        present = np.arange(N)[None, :] < counts[sl, None]
-        exceeds = present & ((value >= c.limit) if kind == "dose" else (value > TIME_TOLERANCE_S))
-        inside = present & ~(exit_each[sl] <= end)
-        undetermined = inside & ~exceeds
-        key = np.where(present, np.where(undetermined, np.inf, value), -np.inf)
-        arg = np.argmax(key, axis=1)
-        rr = np.arange(nb)
-        any_ex[sl] = exceeds.any(axis=1)
-        any_und[sl] = undetermined.any(axis=1)
-        top = np.max(np.where(present, value, -np.inf), axis=1)
-        worst[sl] = np.where(any_und[sl], np.nan, top)
-        share_ex[sl] = (exceeds | undetermined).sum(axis=1) / counts[sl]
-        w_order[sl] = arg + 1
-        w_stay[sl] = best_k[rr, arg]
-        li = counts[sl] - 1
-        last[sl] = value[rr, li]
-        last_und[sl] = undetermined[rr, li]
-        if sl.start < F:
-            n = min(F, sl.stop) - sl.start
-            persons[sl.start:sl.start + n] = np.where(present, np.where(undetermined, np.inf, value), np.nan)[:n]
-    return CriterionExposure(c.id, kind, c.limit, True, worst, any_ex, any_und, share_ex, w_order, w_stay, last,
-                             last_und, persons)
+    if kind == "dose":
+        curves = _dose_curves(prep, c, f, rows_ok)
+        live = np.any([np.any(cur[:, :, -1] > 0, axis=0) for cur in curves], axis=0)       # (Lr,)
+    else:
+        curves = [_beyond_curves(t, _excess(prep, c, f, rows_ok))]
+        live = np.any(curves[0][0][:, :, -1] > 0, axis=0)
+    base = inverse[:, None] * Lr                                          # (nb, 1)
+    totals = [np.zeros((nb, N)) for _ in curves]
+    best = np.full((nb, N), -np.inf)
+    best_k = np.zeros((nb, N), int)
+    seen: dict = {}          # a stay's end is often the next stay's start at the same location
+
+    def at(x, j, m):
+        key = (id(x), j, m)
+        if key not in seen:
+            xb, i, w = times(x)
+            if kind == "dose":
+                flat = curves[m].reshape(-1)
+                idx = (base + j) * t.size + i
+                seen[key] = flat[idx] * (1 - w) + flat[idx + 1] * w
+            else:
+                mm, s0, s1 = curves[m]
+                idx = (base + j) * t.size + i
+                idx1 = (base + j) * (t.size - 1) + i
+                a0, a1 = s0.reshape(-1)[idx1], s1.reshape(-1)[idx1]
+                seen[key] = mm.reshape(-1)[idx] + np.clip(xb - a0, 0.0, a1 - a0)
+        return seen[key]
+
+    for k, stay in enumerate(stays):
+        j = run.col.get(where[k])
+        if j is None or not live[j]:
+            continue                                                      # nothing to gain there
+        gained = np.zeros((nb, N))
+        for m in range(len(curves)):
+            d = at(stay.t_out, j, m) - at(stay.t_in, j, m)
+            totals[m] += d
+            np.maximum(gained, d, out=gained)
+        better = gained > best
+        best = np.where(better, gained, best)
+        best_k = np.where(better, k, best_k)
+    value = np.maximum.reduce(totals) if len(totals) > 1 else totals[0]   # Purser's "or": the person's own
+    exceeds = present & ((value >= c.limit) if kind == "dose" else (value > TIME_TOLERANCE_S))
+    undetermined = inside & ~exceeds
+    key = np.where(present, np.where(undetermined, np.inf, value), -np.inf)
+    arg = np.argmax(key, axis=1)
+    rr = np.arange(nb)
+    run.any_ex[sl] = exceeds.any(axis=1)
+    run.any_und[sl] = undetermined.any(axis=1)
+    top = np.max(np.where(present, value, -np.inf), axis=1)
+    run.worst[sl] = np.where(run.any_und[sl], np.nan, top)
+    run.share[sl] = (exceeds | undetermined).sum(axis=1) / counts[sl]
+    run.order[sl] = arg + 1
+    run.stay[sl] = best_k[rr, arg]
+    li = counts[sl] - 1
+    run.last[sl] = value[rr, li]
+    run.last_und[sl] = undetermined[rr, li]
+    F = run.persons.shape[0]
+    if sl.start < F:
+        n = min(F, sl.stop) - sl.start
+        run.persons[sl.start:sl.start + n] = np.where(present, np.where(undetermined, np.inf, value), np.nan)[:n]
 
 
 # ----------------------------------------------------------------------------------------
@@ -571,6 +602,16 @@ def _worst_words(ex: OccupantExposure) -> str:
     if me is None:
         return ""
     return f"Most often exceeded: {cid} (in {100 * p:.1f} % of draws); most exposed: {me['words']}."
+
+
+def unsettled(v, max_p_fail: float) -> bool:
+    """True when more draws could settle an occupant verdict: indeterminate by sampling alone
+    (not because draws the data cannot decide straddle the limit, nor with no evidence)."""
+    if v is None or v.verdict != "indeterminate" or v.deterministic:
+        return False
+    if v.share_unknown > 0 and v.p_fail_low <= max_p_fail < v.p_fail:
+        return False
+    return v.ci95[0] <= max_p_fail < v.ci95[1] or v.ci95_low[0] <= max_p_fail < v.ci95_low[1]
 
 
 #: The bases a route's verdict may follow (study key ``acceptance.basis``; contract, turn 3).

@@ -315,15 +315,22 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     for ri, route in routes_here:
         eg, fac_r, s_used = egress, factors, S
         out = assess.outcome(route, prep, loc_aset, raw_aset, governing_raw, eg.routes[route.id])
+        # every occupant's exposure: with `exposure: along-route`, or when the occupants take part in the verdict
+        occupants_count = study.acceptance_basis != "route-aset"
+        ex, v_occ = (_occupants(route, prep, crit, fac_r, s_used, eg, study.max_p_fail, s_max)
+                     if route.along_route or occupants_count else (None, None))
         # Settle the statistics by sampling more where the interval straddles the limit: the
         # scenario's ASET and its (shared) egress again with twice the draws, same seed streams.
-        while s_used < s_max and needs_more_samples(out.aset, out.rset, end, study.max_p_fail):
+        while s_used < s_max and (needs_more_samples(out.aset, out.rset, end, study.max_p_fail)
+                                  or (occupants_count and ex.assessed and exposure.unsettled(v_occ, study.max_p_fail))):
             s_used = min(2 * s_used, s_max)
             fac_r, loc_big = more.at(s_used)
             if s_used not in bigger:
                 bigger = {s_used: egress_at(s_used, fac_r)}        # keep one count: memory
             eg = bigger[s_used]
             out = assess.outcome(route, prep, loc_big, raw_aset, governing_raw, eg.routes[route.id])
+            if ex is not None:
+                ex, v_occ = _occupants(route, prep, crit, fac_r, s_used, eg, study.max_p_fail, s_max)
         margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
         route_locs = [locations[prep.ids.index(loc)] for loc in route.exposed_at]
         assessed_any = any(c.get("status") == "assessed" for loc in route_locs for c in loc["criteria"].values())
@@ -335,11 +342,6 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             sf, si, sa = sweep
             sensitivities = assess.scenario_sensitivity(specs_here, prep, sf, si, sa,
                                                         {k: _label(k) for k in si_keys(si)}, study.elements)
-        # every occupant's exposure: with `exposure: along-route`, or when the occupants take part in the verdict
-        ex, v_occ = None, None
-        if route.along_route or study.acceptance_basis != "route-aset":
-            ex = exposure.occupant_exposure(route, prep, crit, fac_r, s_used, eg.routes[route.id])
-            v_occ = exposure.occupant_verdict(ex, eg.routes[route.id].rset, study.max_p_fail, s_max)
         v_route = v
         v = exposure.governing(study.acceptance_basis, v_route, v_occ)
         result = RouteResult(
@@ -372,6 +374,12 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     plot = {"t_s": data.t_s, "locations": _plot_locations(prep, crit, factors, corr, detectors) if plots else {},
             "routes": route_plots, "credibility": cred_plot}
     return scenario, plot
+
+
+def _occupants(route, prep, crit, fac, S, eg, max_p_fail, s_max):
+    """Every occupant's exposure on the route and the occupant-exposure verdict."""
+    ex = exposure.occupant_exposure(route, prep, crit, fac, S, eg.routes[route.id])
+    return ex, exposure.occupant_verdict(ex, eg.routes[route.id].rset, max_p_fail, s_max)
 
 
 def _limit_value(c):
