@@ -117,7 +117,8 @@ def occupant_stays(route, egress) -> list[Stay]:
         kind = route.path[i]["type"]
         if ep.arrive_each_s is None:
             raise ValueError("the flow record holds no per-person times (ElementPass.arrive_each_s)")
-        out.append(Stay(q_loc, f"waiting at the {kind} (path element {i + 1}), in {q_loc}",
+        waiting = f"waiting at the {kind}" if kind == "door" else f"waiting to enter the {kind}"
+        out.append(Stay(q_loc, f"{waiting} (path element {i + 1}), in {q_loc}",
                         ep.arrive_each_s, ep.pass_each_s))
         out.append(Stay(w_loc, f"walking the {kind} (path element {i + 1}), in {w_loc}",
                         ep.pass_each_s, ep.leave_each_s))

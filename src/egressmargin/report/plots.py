@@ -497,14 +497,21 @@ def occupant_dose_figure(doses: Mapping[str, Mapping[str, Any]], labels: Mapping
             (h,) = ax.plot(x, show(p50), color=INK, lw=1.1, drawstyle="steps-mid")
             handles.setdefault("p50", (h, "p50 (each occupant)"))
             limit = d.get("limit")
-            if limit is not None and np.isfinite(limit):
+            finite = np.concatenate([v[np.isfinite(v)] for v in (p05, p50, p95)])
+            top = 1.15 * float(finite.max()) if finite.size and finite.max() > 0 else None
+            if limit is not None and np.isfinite(limit) and (top is None or limit <= 5 * top):
                 h = ax.axhline(float(limit), color=LIMIT, lw=1.1, ls=(0, (5, 2)))
                 handles.setdefault("limit", (h, "Limit"))
+                top = max(top or 0.0, 1.1 * float(limit))
+            elif limit is not None and np.isfinite(limit):
+                # doses far below the limit: scaled to the doses, the limit written, not drawn
+                ax.text(0.99, 0.95, f"limit {fmt_num(limit)} (far above the doses shown)", transform=ax.transAxes,
+                        ha="right", va="top", color=LIMIT, fontsize=6.3)
             ax.set_title(_plain((labels or {}).get(cid, cid)), loc="left", fontweight="bold", fontsize=7.5, pad=4)
             ax.set_xlabel("Place in the start order (1 = first)")
             ax.set_ylabel("Dose [-]")
             ax.set_xlim(0.5, max(1.5, x.size + 0.5))
-            ax.set_ylim(bottom=0.0)
+            ax.set_ylim(0.0, top if top else None)
         order = [handles[k] for k in ("p50", "band", "limit") if k in handles]
         if order:
             fig.legend([h for h, _ in order], [lab for _, lab in order], loc="upper center", ncol=len(order),
