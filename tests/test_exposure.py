@@ -317,3 +317,18 @@ def test_report_shows_both_verdicts_the_warning_the_words_and_the_figure():
     assert "the 214th of 300 to start, waiting at the door (path element 2), in corridor-2" in html
     assert "each occupant&#39;s own dose against their place in the start order" in html
     assert "acceptance.basis: route-aset" in html
+
+
+def test_the_basis_chooses_the_governing_verdict():
+    """route-aset: the route verdict; occupants: the occupant one; both: the worse of the two
+    (fail > indeterminate > pass; a tie keeps the route-ASET record)."""
+    from egressmargin.verdict import decide
+
+    passing = decide([500.0], [100.0], 600.0, 0.05)
+    failing = decide([50.0], [100.0], 600.0, 0.05)
+    assert (passing.verdict, failing.verdict) == ("pass", "fail")
+    assert exposure.governing("route-aset", passing, failing) is passing
+    assert exposure.governing("occupants", passing, failing) is failing
+    assert exposure.governing("both", passing, failing) is failing
+    assert exposure.governing("both", failing, passing) is failing
+    assert exposure.governing("both", passing, None) is passing
