@@ -19,6 +19,7 @@ from .egress.flow import NetElement, NetRoute, NodeFlow, RouteFlow, quantile_pos
 from .egress.movement import element_properties, movement_time
 from .egress.placement import element_places
 from .egress.rset import compose_rset
+from .exposure import occupants_json
 from .stats import rounded, share, summarise
 from .study import DetectorRule, RouteSpec
 from .tenability.crossing import crossing_times_for_levels
@@ -306,6 +307,16 @@ def outcome(route: RouteSpec, prep, loc_aset, loc_aset_raw, governing_raw, egres
                         {"location_aware": location_aware(route, egress, loc_aset, prep.ids)})
 
 
+#: How the occupants block is computed, in words (results.json ``along_route.occupants_note``).
+OCCUPANTS_NOTE = (
+    "Every occupant is followed through the locations their path visits (start_at until they start, then at each "
+    "element its queue location from reaching it to passing it and its walk location until leaving it), with the "
+    "times of the flow model; each person's own dose is accumulated per component (Purser's 'or' on the person's "
+    "own FED_IN and CO2-narcosis doses). Limits that are not doses count where any part of a person's stay overlaps "
+    "a time the location is beyond the limit. An occupant still inside when the histories end who has not reached "
+    "the limit counts as exceeding it (conditions after the end are unknown), and that draw's maximum is not given.")
+
+
 # ----------------------------------------------------------------------------------------
 # where the occupants are: location history, location-aware comparison, dose along the route
 # ----------------------------------------------------------------------------------------
@@ -406,13 +417,20 @@ def location_aware(route: RouteSpec, egress: RouteEgress, loc_aset: np.ndarray, 
     return LocationAware(locs, a, leave, binding, a[binding, cols], leave[binding, cols], np.min(key, axis=0))
 
 
-def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: int, egress: RouteEgress) -> dict:
+def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: int, egress: RouteEgress,
+                     exposure=None) -> dict:
     """Dose received by the last occupant on the way out, per FED criterion.
 
     The dose follows :func:`location_history`: at ``start_at`` during detection, alarm
     and pre-movement, then at each element's location while queuing for it and walking
     it. Dose at a location is the increase of that location's cumulative dose over the
     stay (trapezoidal rule on the histories' grid, as for the location ASET).
+
+    With ``exposure`` (:class:`egressmargin.exposure.OccupantExposure`) every dose
+    criterion of the set is listed (hypoxia included), the last occupant's dose is
+    that person's own (Purser's "or" on their own two doses) and each criterion gains
+    the ``occupants`` block; the instantaneous limits met while present are listed
+    under ``instantaneous``.
     """
     history = location_history(route, egress)
     exit_t = egress.flow.exit_s
@@ -420,13 +438,25 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
     rows = np.array([prep.ids.index(x) for x in locs])
     end = prep.t_s[-1]
     out = {}
-    for cid in ("fed_toxic", "fed_heat"):
+    for cid in (aset.DOSE_CRITERIA if exposure is not None else ("fed_toxic", "fed_heat")):
         c = criteria.items.get(cid)
         if c is None:
             continue
         ok, _ = aset.status(prep, c)
         if not ok[rows].any():
             out[cid] = {"status": "not assessed", "limit": c.limit}
+            continue
+        if exposure is not None:
+            ce = exposure.criteria[cid]
+            dose, undetermined = ce.last, ce.last_undetermined
+            summary = summarise(np.where(undetermined, np.nan, dose), 4)
+            exceeds = dose >= c.limit
+            out[cid] = {"status": "assessed", "limit": c.limit, **summary,
+                        "exceeds_p": share(exceeds | undetermined),
+                        "exceeds_p_bounds": {"low": share(exceeds), "high": share(exceeds | undetermined)},
+                        "share_undetermined": share(undetermined),
+                        "within_limit_at_p95": summary["p95"] is not None and summary["p95"] < c.limit,
+                        "occupants": occupants_json(ce, exposure, egress.rset)}
             continue
         fld = aset.dose_field(prep, c, factors, S, rows)
         dose = np.zeros(S)
@@ -452,7 +482,14 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
                     "within_limit_at_p95": summary["p95"] is not None and summary["p95"] < c.limit}
     beyond = share(exit_t > end)
     placed = element_places(route)
-    return {"criteria": out, "last_occupant_exit_s": summarise(exit_t, 1),
+    extra = {}
+    if exposure is not None:
+        extra["instantaneous"] = {
+            cid: ({"status": "assessed", "limit": ce.limit, "occupants": occupants_json(ce, exposure, egress.rset)}
+                  if ce.assessed else {"status": "not assessed", "limit": ce.limit})
+            for cid, ce in exposure.criteria.items() if ce.kind == "instant"}
+        extra["occupants_note"] = OCCUPANTS_NOTE
+    return {"criteria": out, **extra, "last_occupant_exit_s": summarise(exit_t, 1),
             "share_beyond_end": beyond,
             "history": [{"location": h.location, "what": h.what, "from_s": summarise(h.t_in, 1),
                          "to_s": summarise(h.t_out, 1)} for h in history],

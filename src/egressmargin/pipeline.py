@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__, aset, assess, design, ensemble, outputs, plausibility, sensitivity_indices
+from . import __version__, aset, assess, design, ensemble, exposure, outputs, plausibility, sensitivity_indices
 from .plausibility import Finding
 from .clock import shift_to_ignition
 from .egress import summary as egress_summary
@@ -27,7 +27,7 @@ from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
 from .yamlfile import load_located
 from .records import RouteResult, route_json
-from .verdict import ci_method, decide, draw_outcomes, planned_looks, sequential, worst_outcome
+from .verdict import ci_method, decide, draw_outcomes, needs_more_samples, planned_looks, worst_outcome
 
 #: Samples used to draw the corrected p05-p95 band on the report's time plots.
 BAND_SAMPLES = 200
@@ -414,9 +414,14 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     routes, route_plots = [], {}
     specs_here = [r for _, r in routes_here]
 
+    # every occupant's times are kept for the routes whose exposure is followed (all of them when
+    # the occupants take part in the verdict)
+    keep_persons = True if study.acceptance_basis != "route-aset" else None
+
     def egress_at(n: int, fac_n: dict):
         return assess.scenario_egress(specs_here, prep, fac_n, [assess.egress_uniforms(seed, ri, n)
-                                                                for ri, _ in routes_here], study.elements)
+                                                                for ri, _ in routes_here], study.elements,
+                                      per_person=keep_persons)
 
     egress = egress_at(S, factors) if routes_here else None
     # raw deterministic margin: raw ASET against RSET at median inputs
@@ -428,9 +433,13 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     bigger: dict[int, object] = {}
     sensitivities = None
     for ri, route in routes_here:
+        # every occupant's exposure: with `exposure: along-route`, or when the occupants take part in the verdict
+        occupants_count = study.acceptance_basis != "route-aset"
+
         # Settle the statistics by sampling more where the interval straddles the limit: the
         # scenario's ASET and its (shared) egress again at the next planned look (twice the
         # draws, same seed streams); each look's interval is corrected for the number of looks.
+        # When the occupants take part in the verdict, their verdict is settled the same way.
         def draw_at(n: int, route=route):
             if n == S:
                 fac_n, loc_n, eg_n = factors, loc_aset, egress
@@ -441,9 +450,20 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                     bigger[n] = egress_at(n, fac_n)
                 eg_n = bigger[n]
             o = assess.outcome(route, prep, loc_n, raw_aset, governing_raw, eg_n.routes[route.id])
-            return o.aset, o.rset, None, o, eg_n, fac_n
+            return o, eg_n, fac_n
 
-        s_used, (_, _, _, out, eg, fac_r) = sequential(schedule, draw_at, end_v, study.max_p_fail)
+        ex = v_occ = None
+        for look, n in enumerate(schedule):
+            out, eg, fac_r = draw_at(n)
+            if occupants_count:
+                ex, v_occ = _occupants(route, prep, crit, fac_r, n, eg, study.max_p_fail, s_max, schedule)
+            more_needed = (needs_more_samples(out.aset, out.rset, end_v, study.max_p_fail, looks=len(schedule))
+                           or (occupants_count and ex.assessed and exposure.unsettled(v_occ, study.max_p_fail)))
+            if look == len(schedule) - 1 or not more_needed:
+                break
+        s_used = n
+        if ex is None and route.along_route:
+            ex, v_occ = _occupants(route, prep, crit, fac_r, s_used, eg, study.max_p_fail, s_max, schedule)
         margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
         route_locs = [locations[prep.ids.index(loc)] for loc in route.exposed_at]
         assessed_any = any(c.get("status") == "assessed" for loc in route_locs for c in loc["criteria"].values())
@@ -459,6 +479,8 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                                                         {k: _label(k) for k in si_keys(si)}, study.elements)
             indices = sensitivity_indices.scenario_indices(specs_here, prep, crit, ppfs, {k: _label(k) for k in ppfs},
                                                            study.elements, end, seed, index, samples=S)
+        v_route = v
+        v = exposure.governing(study.acceptance_basis, v_route, v_occ)
         result = RouteResult(
             route=route, outcome=out, flow=eg.routes[route.id], nodes=eg.nodes, end_s=end_v, margin_raw_s=margin_raw,
             not_assessed=[{"location": loc["id"], "criterion": cid} for loc in route_locs
@@ -466,9 +488,10 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             partial=sorted({f"{cid} at {loc['id']}" for loc in route_locs
                             for cid, c in loc["criteria"].items() if c.get("partial")}),
             criteria_assessed=assessed_any, verdict=v, location_aware_verdict=v_la,
-            along_route=(assess.along_route_dose(route, prep, crit, fac_r, s_used, eg.routes[route.id])
-                         if route.along_route else None),
-            sensitivity=sensitivities[route.id], sensitivity_indices=indices[route.id])
+            along_route=(assess.along_route_dose(route, prep, crit, fac_r, s_used, eg.routes[route.id], ex)
+                         if ex is not None else None),
+            sensitivity=sensitivities[route.id], sensitivity_indices=indices[route.id], occupant_verdict=v_occ,
+            route_aset_verdict=v_route, basis=study.acceptance_basis)
         entry = route_json(result)
         if ens is not None:
             entry["by_member"] = ens.by_member(out.aset, out.rset)
@@ -478,6 +501,8 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                                                            v.deterministic, assessed_any).as_results()
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
+        if ex is not None:
+            route_plots[route.id]["occupant_dose"] = exposure.person_bands(ex)
     scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),
                 "warnings": range_warnings,
                 "ignition_s": data.ignition_s, "clock": data.clock_note or "times count from the histories' first time (0 s), taken as ignition",
@@ -495,6 +520,13 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     plot = {"t_s": data.t_s, "locations": _plot_locations(prep, crit, factors, corr, detectors) if plots else {},
             "routes": route_plots, "credibility": cred_plot}
     return scenario, plot
+
+
+def _occupants(route, prep, crit, fac, S, eg, max_p_fail, s_max, schedule):
+    """Every occupant's exposure on the route and the occupant-exposure verdict (its interval
+    corrected for the planned looks, as the route verdict's)."""
+    ex = exposure.occupant_exposure(route, prep, crit, fac, S, eg.routes[route.id])
+    return ex, exposure.occupant_verdict(ex, eg.routes[route.id].rset, max_p_fail, s_max, schedule=schedule)
 
 
 def _limit_value(c):
@@ -773,7 +805,8 @@ def build_results(loaded: Loaded, options: RunOptions):
         "egress_method": egress_method(),
         "acceptance": {"max_p_fail": study.max_p_fail, "max_samples": study.max_samples,
                        "interval_method": ci_method(len(planned_looks(S, max(study.max_samples, S))),
-                                                    planned_looks(S, max(study.max_samples, S)))},
+                                                    planned_looks(S, max(study.max_samples, S))),
+                       "basis": study.acceptance_basis},
         "raw_only": bool(options.raw_only),
         "assumptions": assumptions(loaded),
         "warnings": [str(w) for w in loaded.warnings] + [w for sc in scenarios for w in sc["warnings"]],

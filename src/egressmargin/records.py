@@ -23,6 +23,14 @@ __all__ = ["RouteResult", "route_json", "VERDICT_BASIS"]
 #: Which comparison governs a route's verdict (stated in results.json and the report).
 VERDICT_BASIS = ("route ASET: the earliest ASET of the locations the route passes, against RSET; "
                  "the location-aware comparison is reported beside it")
+#: The governing comparison in words, per `acceptance.basis` (the route-ASET one is VERDICT_BASIS).
+VERDICT_BASES = {
+    "route-aset": VERDICT_BASIS,
+    "occupants": ("occupants: the probability that any occupant exceeds a limit (dose or value) while present at a "
+                  "location of the route, against the acceptance limit; the route-ASET comparison is reported beside it"),
+    "both": ("both: the worse of the route-ASET verdict (earliest ASET of the route's locations against RSET) and the "
+             "occupant-exposure verdict (any occupant exceeds a limit while present)"),
+}
 
 
 @dataclass
@@ -52,6 +60,8 @@ class RouteResult:
         The governing verdict and the location-aware one (None when not computed).
     along_route : dict or None
         The along-route dose, already in results form.
+    occupant_verdict, route_aset_verdict, basis :
+        See the fields' comments (``acceptance.basis``).
     sensitivity : list of dict
         The one-at-a-time sweep, already in results form.
     sensitivity_indices : dict or None
@@ -74,6 +84,11 @@ class RouteResult:
     along_route: dict | None = None
     sensitivity: list[dict] = field(default_factory=list)
     sensitivity_indices: dict | None = None
+    #: The occupant-exposure verdict (None when not computed), the route-ASET verdict when
+    #: another basis governs, and the study's ``acceptance.basis``.
+    occupant_verdict: Verdict | None = None
+    route_aset_verdict: Verdict | None = None
+    basis: str = "route-aset"
 
 
 def verdict_text(r: RouteResult) -> str:
@@ -168,7 +183,12 @@ def route_json(r: RouteResult) -> dict:
     entry.update(r.verdict.as_results())
     entry["p_fail_method"] = r.verdict.method
     entry["share_undecided"] = round(r.verdict.share_unknown, 4)
-    entry["verdict_basis"] = VERDICT_BASIS
+    entry["verdict_basis"] = VERDICT_BASES.get(r.basis, VERDICT_BASIS)
+    entry["acceptance_basis"] = r.basis
+    if r.occupant_verdict is not None:
+        entry["occupant_verdict"] = r.occupant_verdict.as_results()
+    if r.route_aset_verdict is not None and r.basis != "route-aset":
+        entry["route_aset_verdict"] = r.route_aset_verdict.as_results()
     if r.location_aware_verdict is not None:
         entry["location_aware_verdict"] = r.location_aware_verdict.as_results()
     entry["verdict_text"] = verdict_text(r)

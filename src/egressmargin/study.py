@@ -201,6 +201,11 @@ AMBIENT_O2_HIGH = 0.235
 #: with a warning.
 AMBIENT_O2_DEFICIENT = 0.195
 
+#: What governs a route's verdict (`acceptance: {basis: ...}`, contract turn 3): the route
+#: ASET against RSET (default, the accepted practice), every occupant's exposure while
+#: present (:mod:`egressmargin.exposure`), or both (the worse of the two).
+ACCEPTANCE_BASES = ("route-aset", "occupants", "both")
+
 #: What the report shows of locations no route uses (`report: {unused_locations: ...}`):
 #: their detail in the appendix (default), or left out with a line naming them.
 UNUSED_LOCATIONS = ("appendix", "omit")
@@ -218,6 +223,8 @@ class Study:
     max_samples: int = DEFAULT_MAX_SAMPLES
     seed: int = DEFAULT_SEED
     max_p_fail: float = 0.05
+    #: What governs a route's verdict (`acceptance: {basis: ...}`): see :data:`ACCEPTANCE_BASES`.
+    acceptance_basis: str = "route-aset"
     reference: str = ""
     prepared_by: str = ""
     prepared_for: str = ""
@@ -414,9 +421,17 @@ def check_study(path: str | Path, criteria_override: str | None = None
         ck.err(("max_samples",), f"found {max_samples}; expected at least 'samples' ({samples})")
     max_p_fail = 0.05
     max_design_p_fail = None
+    acceptance_basis = ACCEPTANCE_BASES[0]
     if "acceptance" in data:
         acc = data["acceptance"]
-        if ck.keys(acc, ("acceptance",), {"max_p_fail", "max_design_p_fail"}, "acceptance"):
+        if ck.keys(acc, ("acceptance",), {"max_p_fail", "max_design_p_fail", "basis"}, "acceptance"):
+            if "basis" in acc:
+                b = acc["basis"]
+                if b not in ACCEPTANCE_BASES:
+                    ck.err(("acceptance", "basis"), f"found {_show(b)}; expected one of "
+                           + ", ".join(ACCEPTANCE_BASES) + did_you_mean(b, ACCEPTANCE_BASES))
+                else:
+                    acceptance_basis = b
             if "max_p_fail" in acc:
                 v = acc["max_p_fail"]
                 if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 <= v < 1:
@@ -461,6 +476,7 @@ def check_study(path: str | Path, criteria_override: str | None = None
         return None, scenarios, ck.problems
     return Study(path=path, title=title, criteria=criteria, scenarios=scenarios, routes=routes,
                  uncertainty_path=unc_path, samples=samples, max_samples=max_samples, seed=seed, max_p_fail=max_p_fail,
+                 acceptance_basis=acceptance_basis,
                  reference=ck.text(data.get("reference"), ("reference",)),
                  prepared_by=ck.text(data.get("prepared_by"), ("prepared_by",)),
                  prepared_for=ck.text(data.get("prepared_for"), ("prepared_for",)),

@@ -531,6 +531,62 @@ def route_figure(components_s: Mapping[str, Mapping[str, Any]], rset_s: Mapping[
         return finish(fig)
 
 
+def occupant_dose_figure(doses: Mapping[str, Mapping[str, Any]], labels: Mapping[str, str] | None = None,
+                         uid: str = "occ"):
+    """Each occupant's dose against their place in the start order, one panel per dose.
+
+    Parameters
+    ----------
+    doses : mapping
+        criterion id -> ``{"p05", "p50", "p95"}`` arrays (N,) of each occupant's dose over
+        the draws (+inf: undetermined, not drawn), ``"limit"`` and ``"draws"`` (how many
+        draws the percentiles are over).
+    labels : mapping, optional
+        Printed names of the criteria.
+    uid : str
+        As for :func:`location_figure`.
+    """
+    matplotlib, plt = _plt()
+    keys = list(doses)
+    n = max(1, len(keys))
+    height = 2.0
+    with matplotlib.rc_context(_RC):
+        fig, axes = plt.subplots(1, n, figsize=(FIG_WIDTH_IN, height), squeeze=False)
+        handles = {}
+        for ax, cid in zip(axes.flat, keys):
+            d = doses[cid]
+            p05, p50, p95 = (np.asarray(d[k], float) for k in ("p05", "p50", "p95"))
+            x = np.arange(1, p50.size + 1)
+            show = lambda y: np.where(np.isfinite(y), y, np.nan)   # noqa: E731 - undetermined not drawn
+            h = ax.fill_between(x, show(p05), show(p95), facecolor=BAND_FILL, edgecolor=BAND, linewidth=0.5,
+                                step="mid")
+            handles.setdefault("band", (h, "p05–p95 over the draws"))
+            (h,) = ax.plot(x, show(p50), color=INK, lw=1.1, drawstyle="steps-mid")
+            handles.setdefault("p50", (h, "p50 (each occupant)"))
+            limit = d.get("limit")
+            finite = np.concatenate([v[np.isfinite(v)] for v in (p05, p50, p95)])
+            top = 1.15 * float(finite.max()) if finite.size and finite.max() > 0 else None
+            if limit is not None and np.isfinite(limit) and (top is None or limit <= 5 * top):
+                h = ax.axhline(float(limit), color=LIMIT, lw=1.1, ls=(0, (5, 2)))
+                handles.setdefault("limit", (h, "Limit"))
+                top = max(top or 0.0, 1.1 * float(limit))
+            elif limit is not None and np.isfinite(limit):
+                # doses far below the limit: scaled to the doses, the limit written, not drawn
+                ax.text(0.99, 0.95, f"limit {fmt_num(limit)} (far above the doses shown)", transform=ax.transAxes,
+                        ha="right", va="top", color=LIMIT, fontsize=6.3)
+            ax.set_title(_plain((labels or {}).get(cid, cid)), loc="left", fontweight="bold", fontsize=7.5, pad=4)
+            ax.set_xlabel("Place in the start order (1 = first)")
+            ax.set_ylabel("Dose [-]")
+            ax.set_xlim(0.5, max(1.5, x.size + 0.5))
+            ax.set_ylim(0.0, top if top else None)
+        order = [handles[k] for k in ("p50", "band", "limit") if k in handles]
+        if order:
+            fig.legend([h for h, _ in order], [lab for _, lab in order], loc="upper center", ncol=len(order),
+                       bbox_to_anchor=(0.5, 1.0))
+        fig.subplots_adjust(left=0.09, right=0.985, bottom=0.45 / height, top=1 - 0.55 / height, wspace=0.35)
+        return finish(fig)
+
+
 def credibility_figure(cred: Mapping[str, Mapping[str, Mapping[str, Any]]],
                        labels: Mapping[str, str] | None = None,
                        location_titles: Mapping[str, str] | None = None,

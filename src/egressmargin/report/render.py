@@ -418,6 +418,9 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "conclusions": [r for r in conclusions if r["verdict"] != "pass"],
         "clear_passes": [r for r in conclusions if r["verdict"] == "pass" and not r["not_assessed"]],
         "partial_passes": [r for r in conclusions if r["verdict"] == "pass" and r["not_assessed"]],
+        "basis": acceptance_in.get("basis") or "route-aset",
+        "occupant_warnings": [r for r in summary_rows if r.get("occupant_warning")],
+        "any_occupant_verdict": any(r.get("occupant") for r in summary_rows),
         "n_fail": verdicts.count("fail"),
         "n_pass": verdicts.count("pass"),
         "n_indeterminate": verdicts.count("indeterminate"),
@@ -536,6 +539,16 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
             verdict=rt.get("verdict"), p_fail_ci95=rt.get("p_fail_ci95"),
             panels=plots.route_panels(samples.get("margin_samples"), sens[:10], idx_all), indices=idx_all)
     along = rt.get("along_route") if isinstance(rt.get("along_route"), Mapping) else {}
+    occupant = _occupant_view(rt, along)
+    if occupant and samples.get("occupant_dose"):
+        dose = samples["occupant_dose"]
+        n_draws = max((int(d.get("draws") or 0) for d in dose.values()), default=0)
+        occupant["figure"] = figs.add(
+            "occupant_dose_figure",
+            f"Route {_named(rt)} in scenario {sid}: each occupant's own dose against their place in the start "
+            f"order, the median over {n_draws} draws with the p05\u2013p95 band, and the limit (a dose not "
+            "determined by the end of the histories is not drawn).",
+            doses=dose, labels={cid: _label(cid) for cid in dose}, uid=f"occ-{anchor}")
     mv = rt.get("movement") or {}
     ci = rt.get("p_fail_ci95")
     bounds = rt.get("p_fail_bounds") if isinstance(rt.get("p_fail_bounds"), Mapping) else None
@@ -579,9 +592,39 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
                         "exceeds_p": a.get("exceeds_p")}
                        for cid, a in (along.get("criteria") or {}).items()],
         "along_assumptions": [_sentence(a) for a in along.get("assumptions") or []],
+        "occupant": occupant,
+        "basis": str(rt.get("acceptance_basis") or "route-aset"),
+        "aset_verdict": _verdict_word((rt.get("route_aset_verdict") or {}).get("verdict") or rt.get("verdict")) or "n/a",
     }
+    view["occupant_warning"] = bool(occupant) and view["aset_verdict"] == "pass" and occupant["verdict"] == "fail"
     view["change"] = _what_would_change(view, acceptance)
     return view
+
+
+def _occupant_view(rt: Mapping[str, Any], along: Mapping[str, Any]) -> dict[str, Any] | None:
+    """The occupant-exposure verdict and, per criterion, the most exposed occupant (words)."""
+    v = rt.get("occupant_verdict")
+    if not isinstance(v, Mapping):
+        return None
+    rows = []
+    groups = [(along.get("criteria") or {}, "dose"), (along.get("instantaneous") or {}, "instant")]
+    for group, kind in groups:
+        for cid, a in group.items():
+            occ = a.get("occupants") if isinstance(a, Mapping) else None
+            if not isinstance(occ, Mapping):
+                continue
+            me = occ.get("most_exposed") if isinstance(occ.get("most_exposed"), Mapping) else {}
+            ci = occ.get("p_any_exceeds_ci95")
+            rows.append({"label": _label(cid), "kind": kind, "max": _trio(occ.get("max")), "limit": a.get("limit"),
+                         "p_any": occ.get("p_any_exceeds"),
+                         "ci": list(ci) if isinstance(ci, (list, tuple)) and len(ci) == 2 else None,
+                         "share_mean": (occ.get("share_exceeding") or {}).get("mean"),
+                         "who": me.get("words")})
+    ci = v.get("p_fail_ci95")
+    return {"verdict": _verdict_word(v.get("verdict")) or "n/a", "p_fail": v.get("p_fail"),
+            "ci": list(ci) if isinstance(ci, (list, tuple)) and len(ci) == 2 else None,
+            "reason": _sentence(v.get("verdict_reason")), "rows": rows, "figure": None,
+            "note": _sentence(along.get("occupants_note"))}
 
 
 def _what_would_change(rt: Mapping[str, Any], acceptance: Any) -> str:
