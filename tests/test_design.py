@@ -171,3 +171,18 @@ def test_report_opens_with_the_design_table_and_the_contributions_figure(tmp_pat
     png = __import__("egressmargin.report.plots", fromlist=["x"]).design_contributions_figure(
         **ctx["figures"][0]["job"][1])
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_design_reason_writes_the_estimate_with_its_interval_never_at_most():
+    """One way to write a probability (issue 21) holds for the design level too: the estimate
+    with its interval beside it, no "at most" / "at least" bound that may sit below it."""
+    from egressmargin.design import Counts, route_design
+
+    passing = route_design("r", {"a": 0.5, "b": 0.5}, {"a": Counts(2000, 3, 0), "b": Counts(2000, 0, 0)}, 0.05)
+    failing = route_design("r", {"a": 0.5, "b": 0.5}, {"a": Counts(2000, 2000, 0), "b": Counts(2000, 0, 0)}, 0.05)
+    assert passing["verdict"] == "pass" and failing["verdict"] == "fail"
+    for r in (passing, failing):
+        text = r["verdict_reason"]
+        assert "at most" not in text and "at least" not in text and "100.0 %" not in text
+    assert "0.075 %" in passing["verdict_reason"]          # 0.5 x 3/2000, distinct from its interval
+    assert "50 %" in failing["verdict_reason"]

@@ -225,6 +225,13 @@ def _report_run(out: Path, notices=()) -> None:
     _summary(out, res)
 
 
+def _table(rows) -> None:
+    """Rows printed as left-aligned columns."""
+    widths = [max(len(str(r[i])) for r in rows) for i in range(len(rows[0]))]
+    for r in rows:
+        print("  ".join(str(x).ljust(w) for x, w in zip(r, widths)))
+
+
 def _summary(out: Path, res: dict) -> None:
 
     def t(x):
@@ -249,9 +256,13 @@ def _summary(out: Path, res: dict) -> None:
         if not sc["routes"]:
             for loc in sc["locations"]:
                 rows.append((sc["id"], f"[{loc['id']}]", "", t(loc["aset_s"]["p50"]), "", "", loc["governing"] or ""))
-    widths = [max(len(str(r[i])) for r in rows) for i in range(len(rows[0]))]
-    for r in rows:
-        print("  ".join(str(x).ljust(w) for x, w in zip(r, widths)))
+    _table(rows)
+    design = res.get("design")
+    if isinstance(design, dict) and design.get("routes"):
+        weights = ", ".join(f"{k} {v:g}" for k, v in (design.get("weights") or {}).items())
+        print(f"\ndesign level, over the weighted design fires ({weights}):")
+        _table([("route", "p_fail", "verdict")] + [(r["id"], probability(r["p_fail"], r.get("p_fail_ci95")),
+                                                    r["verdict"].upper()) for r in design["routes"]])
     pdf = out / "report.pdf"
     print(f"\nresults: {out / 'results.json'}")
     if pdf.exists():

@@ -127,8 +127,11 @@ def weighted_interval(k, n, w, exact=None, z: float = Z_95):
     return np.clip(centre - half, 0.0, 1.0), np.clip(centre + half, 0.0, 1.0)
 
 
-def _pct(x: float) -> str:
-    return f"{100 * x:.1f} %" if x >= 0.001 or x == 0 else f"{100 * x:.2f} %"
+def _est(p: float, ci, limit: float) -> str:
+    """The estimate with its interval beside it (probability_text: one way to write a probability)."""
+    from .probability_text import probability
+
+    return probability(p, ci, level=0.95, limit=limit)
 
 
 def route_design(route_id: str, weights: dict[str, float], counts: dict[str, Counts], max_p_fail: float) -> dict:
@@ -161,7 +164,9 @@ def route_design(route_id: str, weights: dict[str, float], counts: dict[str, Cou
     ci = weighted_interval(k_high, n, w, exact) if present else (0.0, 0.0)
     ci_low = weighted_interval(k_low, n, w, exact) if present else (0.0, 0.0)
     ci, ci_low = (float(ci[0]), float(ci[1])), (float(ci_low[0]), float(ci_low[1]))
-    lim = _pct(max_p_fail)
+    from .probability_text import probability
+
+    lim = probability(max_p_fail)
     unassessed = [s for s in present if not counts[s].assessed]
     if unassessed:
         verdict = "indeterminate"
@@ -169,20 +174,22 @@ def route_design(route_id: str, weights: dict[str, float], counts: dict[str, Cou
                   ", so those draws carry no evidence; supply the series.")
     elif ci[1] <= max_p_fail:
         verdict = "pass"
-        reason = (f"Passes: the design-level probability of failure is at most {_pct(p_high)} (95 % interval "
-                  f"{_pct(ci[0])} to {_pct(ci[1])}), within the acceptance limit of {lim}.")
+        reason = (f"Passes: the design-level probability of failure is estimated at {_est(p_high, ci, max_p_fail)}, "
+                  f"whose upper end is within the acceptance limit of {lim}.")
     elif ci_low[0] > max_p_fail:
         verdict = "fail"
-        reason = (f"Fails: the design-level probability of failure is at least {_pct(p_low)} (95 % interval "
-                  f"{_pct(ci_low[0])} to {_pct(ci_low[1])}), above the acceptance limit of {lim}.")
+        reason = (f"Fails: the design-level probability of failure, counting draws the data cannot decide as passes, "
+                  f"is estimated at {_est(p_low, ci_low, max_p_fail)}, whose lower end is above the acceptance limit "
+                  f"of {lim}.")
     elif p_low <= max_p_fail < p_high:
         verdict = "indeterminate"
-        reason = (f"Indeterminate: the design-level p_fail lies between {_pct(p_low)} and {_pct(p_high)} depending "
+        reason = (f"Indeterminate: the design-level p_fail lies between {probability(p_low)} and "
+                  f"{probability(p_high)} depending "
                   "on draws the data cannot decide; extend the simulations of the scenarios with undecided draws.")
     else:
         verdict = "indeterminate"
-        reason = (f"Indeterminate: the design-level p_fail = {_pct(p_high)} (95 % interval {_pct(ci[0])} to "
-                  f"{_pct(ci[1])}) straddles the acceptance limit of {lim}; more draws per scenario would settle it.")
+        reason = (f"Indeterminate: the design-level p_fail is estimated at {_est(p_high, ci, max_p_fail)}, an "
+                  f"interval that straddles the acceptance limit of {lim}; more draws per scenario would settle it.")
     contributions = {s: round(weights[s] * counts[s].p_high, 6) for s in present}
     note = ("absent from " + ", ".join(absent) + ": contributes nothing from " +
             ("that scenario" if len(absent) == 1 else "those scenarios")) if absent else None
