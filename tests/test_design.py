@@ -185,4 +185,4 @@ def test_design_reason_writes_the_estimate_with_its_interval_never_at_most():
         text = r["verdict_reason"]
         assert "at most" not in text and "at least" not in text and "100.0 %" not in text
     assert "0.075 %" in passing["verdict_reason"]          # 0.5 x 3/2000, distinct from its interval
-    assert "50 %" in failing["verdict_reason"]
+    assert "50.0 %" in failing["verdict_reason"]
