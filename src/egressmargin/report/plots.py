@@ -553,3 +553,51 @@ __all__ = [
     "route_panels",
     "credibility_figure",
 ]
+
+
+# ----------------------------------------------------------------- design-fire heat release
+
+def hrr_figure(t_s: np.ndarray, q_kw: np.ndarray, growth: Mapping[str, Any],
+               end_s: float | None = None, uid: str = "hrr") -> bytes:
+    """The design fire's heat-release rate against time, with its peak and t-squared fit.
+
+    Parameters
+    ----------
+    t_s, q_kw : ndarray
+        Time from ignition [s] and heat-release rate [kW].
+    growth : mapping
+        :func:`egressmargin.hrr.describe_growth` of the curve: the peak is marked; the
+        fitted Q = alpha t^2 is drawn dashed over its growth phase and labelled with
+        alpha and its nearest t-squared class.
+    end_s : float, optional
+        Last time of the scenario's histories [s]; the axis ends there (or at the
+        curve's end when later).
+    uid : str
+        The figure's name in the report (not drawn).
+    """
+    matplotlib, plt = _plt()
+    t = np.asarray(t_s, dtype=float)
+    q = np.asarray(q_kw, dtype=float)
+    idx = _decimate(t, [q])
+    mw = float(np.nanmax(q)) >= 2000.0
+    scale, unit = (1e-3, "MW") if mw else (1.0, "kW")
+    with matplotlib.rc_context(_RC):
+        fig, ax = plt.subplots(figsize=(FIG_WIDTH_IN * 0.62, 1.9))
+        ax.plot(t[idx], q[idx] * scale, color=INK, lw=1.3, label="Heat-release rate, as given")
+        alpha = growth.get("alpha_kw_s2")
+        if alpha:
+            tg = np.linspace(0.0, float(growth.get("growth_end_s") or t[-1]), 60)
+            ax.plot(tg, alpha * tg ** 2 * scale, color=BAND, lw=1.0, ls=(0, (4, 2)),
+                    label=f"Fitted αt², α = {alpha:.4g} kW/s² (nearest: {growth.get('nearest_class')})")
+        peak, tp = growth.get("peak_kw"), growth.get("peak_s")
+        if peak:
+            ax.plot([tp], [peak * scale], marker="o", ms=4, color=LIMIT, ls="none",
+                    label=f"Peak {fmt_num(peak * scale)} {unit} at {fmt_time(tp)}")
+        ax.set_xlabel("Time from ignition [s]")
+        ax.set_ylabel(f"[{unit}]")
+        right = max(float(end_s or 0.0), float(t[-1]) if t.size else 0.0)
+        ax.set_xlim(0.0, right or None)
+        ax.set_ylim(bottom=0.0)
+        ax.legend(loc="lower right", fontsize=6.3)
+        fig.subplots_adjust(left=0.12, right=0.98, bottom=0.22, top=0.95)
+        return finish(fig)
