@@ -418,8 +418,8 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "n_indeterminate": verdicts.count("indeterminate"),
         "n_other": sum(1 for v in verdicts if v not in ("pass", "fail", "indeterminate")),
         "not_supplied": not_supplied,
-        # distinct (location, criterion) pairs: a location several routes or scenarios share counts once
-        "n_not_assessed_on_routes": len({(n["location"], n["criterion"]) for r in summary_rows
+        # distinct (scenario, location, criterion): a location several routes pass counts once
+        "n_not_assessed_on_routes": len({(r["scenario"], n["location"], n["criterion"]) for r in summary_rows
                                          for n in r["not_assessed"]}),
         "detectors": sorted(detectors.values()),
         "credibility": credibility,
@@ -436,7 +436,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
 
 #: Printed names of the study's `basis:` items, in print order (each printed "not stated"
 #: when absent, never left out).
-BASIS_LABELS: dict[str, str] = {
+STUDY_BASIS_LABELS: dict[str, str] = {
     "building": "Building", "occupant_load": "Occupant load (how derived, source)",
     "fire_model": "Fire model", "premovement_source": "Source of pre-movement and alarm times",
     "acceptance_source": "Source of the acceptance limit",
@@ -451,7 +451,7 @@ def _submittal_view(results: Mapping[str, Any], scenarios: list, generated: Any)
     study = results.get("study") or {}
     basis = study.get("basis") if isinstance(study.get("basis"), Mapping) else {}
     rows = []
-    for key, label in BASIS_LABELS.items():
+    for key, label in STUDY_BASIS_LABELS.items():
         v = basis.get(key)
         if key == "fire_model":
             fm = v if isinstance(v, Mapping) else {}
