@@ -122,7 +122,7 @@ def test_criteria_unknown_name_exits_2(cli, name, hint):
 def test_validate_good_study(cli, good_study):
     status, out, err = cli(["validate", good_study])
     assert status == 0
-    assert "OK — 1 scenario(s), 2 location(s), 1 route(s), criteria 'general-2m', no model-uncertainty table" in out
+    assert "OK — 1 scenario, 2 locations per scenario, 1 route, criteria 'general-2m', no model-uncertainty table" in out
     assert without_sign_default(err.splitlines()) == []
 
 

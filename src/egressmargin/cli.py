@@ -253,9 +253,15 @@ def _validate(args) -> int:
     loaded = load(args.study)
     for w in loaded.warnings:
         print(str(w), file=sys.stderr)
-    n_loc = sum(len(s.locations) for s in loaded.study.scenarios)
-    print(f"{args.study}: OK — {len(loaded.study.scenarios)} scenario(s), {n_loc} location(s), "
-          f"{len(loaded.study.routes)} route(s), criteria '{loaded.study.criteria.name}', "
+    scenarios = loaded.study.scenarios
+    per = sorted({len(s.locations) for s in scenarios})
+    n_ids = len({loc.id for s in scenarios for loc in s.locations})
+    # locations counted once: per scenario (scenarios often share one list) and distinct ids
+    n_loc = (f"{per[0]} location{'s' if per[0] != 1 else ''} per scenario" if len(per) == 1
+             else f"{per[0]} to {per[-1]} locations per scenario") + \
+        (f" ({n_ids} distinct)" if len(scenarios) > 1 and n_ids != per[-1] else "")
+    print(f"{args.study}: OK — {len(scenarios)} scenario{'s' if len(scenarios) != 1 else ''}, {n_loc}, "
+          f"{len(loaded.study.routes)} route{'s' if len(loaded.study.routes) != 1 else ''}, criteria '{loaded.study.criteria.name}', "
           f"{'model uncertainty from ' + str(loaded.table.path) if loaded.table else 'no model-uncertainty table'}")
     if getattr(args, "explain", False):
         from .egress.summary import explain_text

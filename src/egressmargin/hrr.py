@@ -54,11 +54,11 @@ def describe_growth(t_s, q_kw) -> dict:
     -------
     dict
         ``peak_kw``, ``peak_s`` (first time at the peak), ``alpha_kw_s2`` (least-squares
-        alpha of Q = alpha t^2 over 0 < t <= the first time Q reaches
+        alpha of Q = alpha t^2 over 0 < t < the first time Q reaches
         :data:`GROWTH_END_SHARE` of its peak; None with fewer than two such points),
         ``growth_end_s``, ``t_g_s`` (time to 1055 kW on the fitted curve), ``nearest_class``
         (the NFPA 72 class whose alpha is nearest in log ratio) and ``class_ratio`` (fitted
-        alpha over that class's alpha).
+        alpha over that class's alpha). ``growth_end_s`` is the last time fitted.
 
     Notes
     -----
@@ -74,7 +74,7 @@ def describe_growth(t_s, q_kw) -> dict:
     if not peak > 0:
         return out
     end = int(np.argmax(q >= GROWTH_END_SHARE * peak))
-    sel = (t > 0) & (np.arange(t.size) <= end) & (q > 0)
+    sel = (t > 0) & (np.arange(t.size) < end) & (q > 0)     # before it reaches that share
     if np.count_nonzero(sel) < 2:
         return out
     ts, qs = t[sel], q[sel]
@@ -82,7 +82,7 @@ def describe_growth(t_s, q_kw) -> dict:
     if not alpha > 0:
         return out
     name = min(GROWTH_CLASSES_S, key=lambda c: abs(math.log(alpha / growth_alpha(GROWTH_CLASSES_S[c]))))
-    out.update(alpha_kw_s2=round(alpha, 6), growth_end_s=round(float(t[end]), 3),
+    out.update(alpha_kw_s2=float(f"{alpha:.6g}"), growth_end_s=round(float(ts[-1]), 3),
                t_g_s=round(math.sqrt(GROWTH_Q_KW / alpha), 1), nearest_class=name,
                class_ratio=round(alpha / growth_alpha(GROWTH_CLASSES_S[name]), 3))
     return out

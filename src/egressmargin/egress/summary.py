@@ -213,6 +213,21 @@ def _num(x, fmt: str) -> str:
     return "-" if x is None or (isinstance(x, float) and not np.isfinite(x)) else format(x, fmt)
 
 
+def grouped_notes(pairs) -> list[str]:
+    """Notes on path elements, each distinct note once with the elements it applies to.
+
+    >>> grouped_notes([(4, "not a row"), (5, "not a row"), (6, "other")])
+    ['elements 4, 5: not a row', 'element 6: other']
+    """
+    by_note: dict[str, list[int]] = {}
+    for index, note in pairs:
+        by_note.setdefault(str(note), [])
+        if index not in by_note[str(note)]:
+            by_note[str(note)].append(index)
+    return [f"element{'s' if len(ix) > 1 else ''} {', '.join(str(i) for i in ix)}: {note}"
+            for note, ix in by_note.items()]
+
+
 def hand_movement(route, rows: list[ElementExplain] | None = None) -> dict:
     """The hand-form movement time of a route alone, everyone together: the one hand
     calculation that ``validate --explain`` and the report (section 2.2) both print.
@@ -269,8 +284,7 @@ def explain_text(study) -> str:
         for r in rows:
             if r.length_basis and r.type == "stair":
                 lines.append(f"  element {r.index} stair length: {r.length_basis}")
-            for note in r.notes:
-                lines.append(f"  element {r.index}: {note}")
+        lines += [f"  {n}" for n in grouped_notes([(r.index, note) for r in rows for note in r.notes])]
         lines.append(f"  {hand_movement(route, rows)['text']}")
         lines.append("")
     for eid, el in study.elements.items():
