@@ -133,6 +133,22 @@ def _sigterm_raises():
 EXIT_SIGINT, EXIT_SIGTERM, EXIT_SIGPIPE = 128 + 2, 128 + 15, 128 + 13
 
 
+def _relative_arg(arg) -> str:
+    """A command-line argument as the manifest records it: an absolute path (alone or after
+    ``--opt=``) relative to the current folder; anything else as given."""
+    import os
+
+    text = str(arg)
+    head, sep, value = text.partition("=") if text.startswith("--") else ("", "", text)
+    if not os.path.isabs(value):
+        return text
+    try:
+        rel = os.path.relpath(value, os.getcwd())
+    except ValueError:          # another drive (Windows): keep the name only
+        rel = os.path.basename(value)
+    return f"{head}{sep}{rel}"
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     argv = sys.argv[1:] if argv is None else list(argv)
@@ -140,7 +156,9 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return 2
-    args.command_line = shlex.join(["egressmargin", *argv])
+    # recorded in the output's manifest: absolute paths written relative to the current
+    # folder, so no absolute path of the machine reaches an output (issue 23)
+    args.command_line = shlex.join(["egressmargin", *[_relative_arg(a) for a in argv]])
     try:
         with _sigterm_raises():
             status = {"run": _run, "demo": _demo, "validate": _validate, "fit-uncertainty": _fit,

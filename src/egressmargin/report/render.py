@@ -1079,9 +1079,9 @@ def write_pdf(html: str, path: Path, progress: Any = None) -> Path:
                                f"({exc.__cause__})") from exc
         if progress is not None:
             progress.stage("PDF writing")
-        # full_fonts: the fonts embedded whole instead of subset glyph by glyph, which took
-        # about a tenth of the PDF time for the same file size (measured on the demo)
-        document.write_pdf(str(path), full_fonts=True)
+        # (full_fonts=True would save about a tenth of this step, but its PDF text cannot be
+        # extracted or searched: measured on the demo, so the fonts stay subset)
+        document.write_pdf(str(path))
     finally:
         logger.setLevel(level)
     return path
