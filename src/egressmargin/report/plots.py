@@ -623,7 +623,7 @@ def hrr_figure(t_s: np.ndarray, q_kw: np.ndarray, growth: Mapping[str, Any],
             ax.plot([tp], [peak * scale], marker="o", ms=4, color=LIMIT, ls="none",
                     label=f"Peak {fmt_num(peak * scale)} {unit} at {fmt_time(tp)}")
         ax.set_xlabel("Time from ignition [s]")
-        ax.set_ylabel(f"[{unit}]")
+        ax.set_ylabel(f"Heat-release rate [{unit}]")
         right = max(float(end_s or 0.0), float(t[-1]) if t.size else 0.0)
         ax.set_xlim(0.0, right or None)
         ax.set_ylim(bottom=0.0)

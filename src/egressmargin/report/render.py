@@ -775,14 +775,19 @@ def _location_figure(figs, sid, loc, name, end_s, t_s, specs) -> dict[str, Any] 
              if cid not in show and str(c.get("status")) != "not assessed"]
     caption = (f"{name}, scenario {sid}: raw prediction"
                + (" with the corrected p05\u2013p95 band" if band else "") + " and the limit of "
-               + "; ".join(f"{spec['label'].lower() if spec['label'][:3] not in ('FED', 'FEC') else spec['label']}"
-                           f" ({_reached_words(crit.get(cid) or {}, band)})" for cid, spec in show.items())
+               + "; ".join(f"{_lower(spec['label'])} ({_reached_words(crit.get(cid) or {}, band)})"
+                           for cid, spec in show.items())
                + "."
-               + (f" Not drawn (limit reached neither raw nor in any draw by the end): {', '.join(quiet)}."
-                  if quiet else ""))
+               + (f" Not drawn (limit reached neither raw nor in any draw by the end): "
+                  f"{'; '.join(_lower(q) for q in quiet)}." if quiet else ""))
     return figs.add("location_figure", caption, t_s=t_s, specs=show,
                     raw_times_s={cid: crit.get(cid, {}).get("raw_s") for cid in show},
                     end_s=end_s, uid=f"fig-{sid}-{loc.get('id')}")
+
+
+def _lower(label: str) -> str:
+    """A criterion's label inside a sentence: lower case, except an abbreviation (FED, FEC)."""
+    return label if label[:3].isupper() else label[:1].lower() + label[1:]
 
 
 def _reached_words(c: Mapping[str, Any], band: bool) -> str:
