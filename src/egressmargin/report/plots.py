@@ -622,7 +622,7 @@ def hrr_figure(t_s: np.ndarray, q_kw: np.ndarray, growth: Mapping[str, Any],
     mw = float(np.nanmax(q)) >= 2000.0
     scale, unit = (1e-3, "MW") if mw else (1.0, "kW")
     with matplotlib.rc_context(_RC):
-        fig, ax = plt.subplots(figsize=(FIG_WIDTH_IN * 0.62, 1.9))
+        fig, ax = plt.subplots(figsize=(FIG_WIDTH_IN, 1.75))   # printed at the full text width
         ax.plot(t[idx], q[idx] * scale, color=INK, lw=1.3, label="Heat-release rate, as given")
         alpha = growth.get("alpha_kw_s2")
         if alpha:
@@ -639,5 +639,5 @@ def hrr_figure(t_s: np.ndarray, q_kw: np.ndarray, growth: Mapping[str, Any],
         ax.set_xlim(0.0, right or None)
         ax.set_ylim(bottom=0.0)
         ax.legend(loc="lower right", fontsize=6.3)
-        fig.subplots_adjust(left=0.12, right=0.98, bottom=0.22, top=0.95)
+        fig.subplots_adjust(left=0.085, right=0.985, bottom=0.23, top=0.95)
         return finish(fig)
