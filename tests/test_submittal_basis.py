@@ -146,6 +146,7 @@ def test_report_prints_not_stated_and_not_signed_off(kit, make_study):
     assert [r["value"] for r in ctx["basis_rows"]][:2] == ["not stated", "not stated"]
     assert ctx["basis_rows"][2]["value"] == "name: not stated; version: not stated; grid: not stated"
     assert ctx["sign_off"] is None
+    assert ctx["heights"]["missing"] == 2          # hall-l1 and stair-l1, each once
     res["study"]["sign_off"] = {"engineer": "E"}
     ctx = build_context(res, {}, generated="2026-05-06 07:08")
     assert ctx["sign_off"]["date"] == "2026-05-06" and not ctx["sign_off"]["date_given"]

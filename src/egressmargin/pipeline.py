@@ -467,13 +467,11 @@ def _range_findings(table, prep, data, cid, li, raw_t, times) -> tuple[str | Non
         return None, []
     reached_all = bool(np.isfinite(raw_t)) and bool(np.isfinite(times).all())
     t_end = float(np.nanmax(np.append(times, raw_t))) if reached_all else float(prep.t_s[-1])
-    finite = times[np.isfinite(times)]
     # the median crossing is the one the report quotes (p50 over all draws, "not reached" kept as such)
     med = summarise(times).get("p50")
     med_words = f"median crossing {med:.0f} s" if med is not None else "median crossing not reached"
     upto = (f"up to the last draw's crossing ({t_end:.0f} s; {med_words})" if reached_all
             else f"up to the end of the data ({t_end:.0f} s; {med_words})")
-    del finite
     notes, items = [], []
     for q in aset.CRITERION_QUANTITIES[cid]:
         if q == "smoke":

@@ -470,17 +470,19 @@ def _submittal_view(results: Mapping[str, Any], scenarios: list, generated: Any)
     stated_h = crit.get("height_m")
     heights = {"stated_m": stated_h, "stated_text": crit.get("height_text") or "", "differs": [],
                "missing": 0}
+    missing: set[str] = set()       # location ids, each counted once over the scenarios
     for sc in scenarios:
         for row in list(sc.get("matrix") or []) + list(sc.get("matrix_unused") or []):
             h = row.get("height_m")
             if h is None:
-                heights["missing"] += 1
+                missing.add(row["id"])
                 row["height_note"] = False
             else:
                 # a difference of more than 0.25 m from the stated height is noted (project choice)
                 row["height_note"] = stated_h is not None and abs(float(h) - float(stated_h)) > 0.25
                 if row["height_note"] and row["id"] not in heights["differs"]:
                     heights["differs"].append(row["id"])
+    heights["missing"] = len(missing)
     scenario_warnings = {w for sc in results.get("scenarios") or [] for w in sc.get("warnings") or []}
     general = [_sentence(w) for w in results.get("warnings") or [] if w not in scenario_warnings]
     return {"basis_rows": rows, "sign_off": sign_off, "heights": heights,
