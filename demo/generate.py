@@ -845,6 +845,8 @@ def scenario_table(sid: str, stretch: float = 1.0, amp: float = 1.0) -> tuple[np
     t_fine = np.arange(0.0, end_s + DT_S / 2, DT_S)
     zones = build(t_fine)
     cols = location_columns(zones, t_fine, connections(), amp)
+    # the design fire's heat-release rate (the study's design_fire: {hrr: {column: HRR}})
+    cols["HRR [kW]"] = (zones["q"], 1)
     t_out = np.arange(0.0, end_s + OUTPUT_STEP_S / 2, OUTPUT_STEP_S)
     sampled = {name: (np.interp(t_out / stretch, t_fine, v), d) for name, (v, d) in cols.items()}
     return t_out, sampled

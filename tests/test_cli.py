@@ -122,7 +122,7 @@ def test_criteria_unknown_name_exits_2(cli, name, hint):
 def test_validate_good_study(cli, good_study):
     status, out, err = cli(["validate", good_study])
     assert status == 0
-    assert "OK — 1 scenario(s), 2 location(s), 1 route(s), criteria 'general-2m', no model-uncertainty table" in out
+    assert "OK — 1 scenario, 2 locations per scenario, 1 route, criteria 'general-2m', no model-uncertainty table" in out
     assert without_sign_default(err.splitlines()) == []
 
 
@@ -164,7 +164,9 @@ def check_contract_keys(res: dict, study: Path) -> None:
     """Every key the contract's results.json section names, with the right kinds of value."""
     assert {"version", "seed", "samples", "inputs", "criteria", "scenarios"} <= set(res)
     assert res["version"] == egressmargin.__version__
-    paths = {Path(i["path"]).resolve(): i["sha256"] for i in res["inputs"]}
+    # paths are relative to the study file (issue 23: no absolute path of the machine)
+    assert not any(Path(i["path"]).is_absolute() for i in res["inputs"])
+    paths = {(study.parent / i["path"]).resolve(): i["sha256"] for i in res["inputs"]}
     for f in (study, study.parent / "fire-a.csv"):  # hashlib as the outside check
         assert paths[f.resolve()] == hashlib.sha256(f.read_bytes()).hexdigest()
     assert res["criteria"]["name"] == "general-2m"
@@ -336,6 +338,9 @@ def test_run_prints_the_warnings_validate_prints(cli, kit, make_study, tmp_path)
     warnings = [line for line in validate_err.splitlines() if ": warning: " in line]
     status, _, run_err = cli(["run", study, "--out", tmp_path / "out", "--no-pdf", "--samples", "20", "--quiet"])
     assert status == 0, run_err
+    # results.json (and so run) names files relative to the study file; validate as given
+    folder = str(Path(study).resolve().parent) + os.sep
+    warnings = [w.replace(folder, "") for w in warnings]
     assert [line for line in run_err.splitlines() if ": warning: " in line] == warnings
     res = json.loads((tmp_path / "out" / "results.json").read_text(encoding="utf-8"))
     assert res["warnings"] == warnings

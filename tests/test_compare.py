@@ -97,8 +97,9 @@ def test_five_metre_visibility_moves_no_time_earlier(compared, two_runs):
 def test_the_differing_input_is_the_criteria_set(compared):
     diff = _load(compared / "comparison.json")["differences"]
     assert [d["role"] for d in diff["inputs"]] == ["criteria"]
-    names = [Path(f["path"]).name for f in diff["inputs"][0]["files"].values()]
-    assert names == ["general-2m.yaml", "small-familiar.yaml"]
+    # a bundled set is shown by name, never by a path on the machine (issue 23)
+    names = [f["path"] for f in diff["inputs"][0]["files"].values()]
+    assert names == ["bundled: general-2m", "bundled: small-familiar"]
     assert diff["criteria"]["names"] == {"A": "general-2m (modified in the study)", "B": "small-familiar"}
     assert diff["criteria"]["differences"] == [{"criterion": "visibility", "field": "limit",
                                                 "values": {"A": "10 m", "B": "5 m"}}]

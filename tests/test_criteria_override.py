@@ -10,6 +10,7 @@ histories' end (590 s); S = 20 m at K = 0.4 1/m, t = 200 s.
 from __future__ import annotations
 
 import hashlib
+from pathlib import Path
 
 import pytest
 import yaml
@@ -36,7 +37,7 @@ def test_bundled_name_replaces_the_studys_set(good_study):
                                              "study_criteria": "general-2m"}
     assert "override" not in base["criteria"]
     crit_inputs = [i for i in other["inputs"] if i["role"] == "criteria"]
-    assert [i["path"].replace("\\", "/").rsplit("/", 1)[-1] for i in crit_inputs] == ["small-familiar.yaml"]
+    assert [i["path"] for i in crit_inputs] == ["bundled: small-familiar"]     # issue 23: no machine path
     assert any("--criteria small-familiar replaces" in w for w in other["warnings"])
 
 
@@ -51,7 +52,9 @@ def test_a_file_is_read_relative_to_the_current_folder(good_study, tmp_path, mon
     assert list(location(res, "hall-l1")["criteria"]) == ["visibility"]
     entry = next(i for i in res["inputs"] if i["role"] == "criteria")
     assert entry["sha256"] == hashlib.sha256(text.encode("utf-8")).hexdigest()
-    assert entry["path"] == str(cwd / "mine.yaml")
+    # shown relative to the study file (issue 23), and it leads to the file read
+    assert not Path(entry["path"]).is_absolute()
+    assert (Path(good_study).parent / entry["path"]).resolve() == (cwd / "mine.yaml").resolve()
 
 
 def test_unknown_set_is_an_input_error(good_study, expect_input_error):

@@ -88,7 +88,7 @@ def test_pipeline_excursion_flagged_with_its_size(tmp_path):
     assert c["outside_validated_range"] is True
     note = c["range_note"]
     assert "250 degC, 50 degC above it" in note and "(20 to 200 degC)" in note
-    assert "up to the end of the data (1200 s)" in note
+    assert "up to the end of the data (1200 s; median crossing not reached)" in note
 
 
 from hypothesis import given, settings  # noqa: E402

@@ -134,6 +134,22 @@ def _sigterm_raises():
 EXIT_SIGINT, EXIT_SIGTERM, EXIT_SIGPIPE = 128 + 2, 128 + 15, 128 + 13
 
 
+def _relative_arg(arg) -> str:
+    """A command-line argument as the manifest records it: an absolute path (alone or after
+    ``--opt=``) relative to the current folder; anything else as given."""
+    import os
+
+    text = str(arg)
+    head, sep, value = text.partition("=") if text.startswith("--") else ("", "", text)
+    if not os.path.isabs(value):
+        return text
+    try:
+        rel = os.path.relpath(value, os.getcwd())
+    except ValueError:          # another drive (Windows): keep the name only
+        rel = os.path.basename(value)
+    return f"{head}{sep}{rel}"
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     argv = sys.argv[1:] if argv is None else list(argv)
@@ -141,7 +157,9 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return 2
-    args.command_line = shlex.join(["egressmargin", *argv])
+    # recorded in the output's manifest: absolute paths written relative to the current
+    # folder, so no absolute path of the machine reaches an output (issue 23)
+    args.command_line = shlex.join(["egressmargin", *[_relative_arg(a) for a in argv]])
     try:
         with _sigterm_raises():
             status = {"run": _run, "demo": _demo, "validate": _validate, "fit-uncertainty": _fit,
@@ -276,9 +294,15 @@ def _validate(args) -> int:
     loaded = load(args.study)
     for w in loaded.warnings:
         print(str(w), file=sys.stderr)
-    n_loc = sum(len(s.locations) for s in loaded.study.scenarios)
-    print(f"{args.study}: OK — {len(loaded.study.scenarios)} scenario(s), {n_loc} location(s), "
-          f"{len(loaded.study.routes)} route(s), criteria '{loaded.study.criteria.name}', "
+    scenarios = loaded.study.scenarios
+    per = sorted({len(s.locations) for s in scenarios})
+    n_ids = len({loc.id for s in scenarios for loc in s.locations})
+    # locations counted once: per scenario (scenarios often share one list) and distinct ids
+    n_loc = (f"{per[0]} location{'s' if per[0] != 1 else ''} per scenario" if len(per) == 1
+             else f"{per[0]} to {per[-1]} locations per scenario") + \
+        (f" ({n_ids} distinct)" if len(scenarios) > 1 and n_ids != per[-1] else "")
+    print(f"{args.study}: OK — {len(scenarios)} scenario{'s' if len(scenarios) != 1 else ''}, {n_loc}, "
+          f"{len(loaded.study.routes)} route{'s' if len(loaded.study.routes) != 1 else ''}, criteria '{loaded.study.criteria.name}', "
           f"{'model uncertainty from ' + str(loaded.table.path) if loaded.table else 'no model-uncertainty table'}")
     for cid, why in loaded.study.criteria.not_applicable.items():
         print(f"  criterion '{cid}' not applicable: {why}")

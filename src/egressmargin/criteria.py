@@ -86,6 +86,10 @@ class CriteriaSet:
     #: criteria declared not applicable for this study: criterion id -> the reason given
     #: (``{<criterion>: {not_applicable: "<reason>"}}``); they are not in ``items``.
     not_applicable: dict[str, str] = field(default_factory=dict)
+    #: Height above the floor the set's series are meant to be taken at (`height:` of a
+    #: criteria file) [m], with its text; None when the set states none.
+    height_m: float | None = None
+    height_text: str = ""
 
     @property
     def visibility_signs(self) -> dict | None:
@@ -111,6 +115,9 @@ class CriteriaSet:
         if self.override is not None:
             out["override"] = dict(self.override)
         out["not_applicable"] = dict(self.not_applicable)
+        if self.height_m is not None:
+            out["height_m"] = round(self.height_m, 4)
+            out["height_text"] = self.height_text
         return {**out, **{cid: {"limit": round(c.limit, 6), "unit": c.unit} for cid, c in self.items.items()}}
 
 
@@ -277,7 +284,7 @@ def criteria_from_document(doc: Located, problems: list[Problem]) -> CriteriaSet
     if not isinstance(data, dict):
         problems.append(Problem(doc.where(()), "expected a mapping with name, description, sources, criteria"))
         return None
-    allowed = {"name", "description", "sources", "criteria"}
+    allowed = {"name", "description", "sources", "criteria", "height"}
     for key in data:
         if key not in allowed:
             problems.append(Problem(doc.where((key,)), f"unknown key '{key}'; expected one of "
@@ -309,9 +316,30 @@ def criteria_from_document(doc: Located, problems: list[Problem]) -> CriteriaSet
         if c:
             items[cid] = c
     stated = _states_signs(crit.get("visibility"))
+    height_m, height_text = _set_height(doc, data.get("height"), problems)
     return CriteriaSet(str(data.get("name", doc.path.stem)), str(data.get("description", "")),
                        [str(s) for s in sources], items, doc.path, signs_default=not stated,
-                       not_applicable=not_applicable)
+                       not_applicable=not_applicable, height_m=height_m, height_text=height_text)
+
+
+def _set_height(doc, value, problems: list[Problem]) -> tuple[float | None, str]:
+    """The optional `height:` of a criteria file: `{value: 2 m, basis: <text>}` or `2 m`.
+
+    The height above the floor at which the set's series are meant to be taken (a
+    location at another height gets a note in the report)."""
+    if value is None:
+        return None, ""
+    text, basis = (value.get("value"), value.get("basis")) if isinstance(value, dict) else (value, None)
+    from .units import UnitProblem, parse_quantity
+    try:
+        h = parse_quantity(text, "length")
+    except UnitProblem as exc:
+        problems.append(Problem(doc.where(("height",)), str(exc)))
+        return None, ""
+    if not h > 0:
+        problems.append(Problem(doc.where(("height",)), f"found {text!r}; expected a height above zero, e.g. 2 m"))
+        return None, ""
+    return float(h), str(text) + (f" ({basis})" if basis else "")
 
 
 def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> CriteriaSet | None:
@@ -384,7 +412,8 @@ def resolve_criteria(value, where, base_dir: Path, problems: list[Problem]) -> C
                        list(base.sources) if base else ["as stated in the study file"], items,
                        base.path if base else None,
                        signs_default=not stated and (base.signs_default if base else True),
-                       not_applicable=not_applicable)
+                       not_applicable=not_applicable,
+                       height_m=base.height_m if base else None, height_text=base.height_text if base else "")
 
 
 def override_criteria(text: str, study_value, problems: list[Problem],

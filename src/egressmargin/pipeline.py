@@ -27,6 +27,7 @@ from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
 from .yamlfile import load_located
 from .records import RouteResult, route_json
+from .paths import relative_text, shown_path
 from .verdict import ci_method, decide, draw_outcomes, needs_more_samples, planned_looks, worst_outcome
 
 #: Samples used to draw the corrected p05-p95 band on the report's time plots.
@@ -63,6 +64,8 @@ class Loaded:
     findings: list[tuple[Finding, bool]] = field(default_factory=list)
     #: Ensemble scenarios: every member's histories, in the order of ``spec.ensemble``.
     members: dict[str, list[ScenarioData]] = field(default_factory=dict)
+    #: Design-fire heat-release rate per scenario id: (times from ignition [s], kW, file or None).
+    hrr: dict = field(default_factory=dict)
 
 
 def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
@@ -138,13 +141,14 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
             members[spec.id], w_e, p_e = ensemble.read_members(spec, read_member, options.progress)
             warnings.extend(w_e)
             problems.extend(p_e)
+    hrr = _read_hrr(study, problems)
     problems.extend(data_problems(study, data, options.samples))   # what only the data can tell (memory, detectors)
     if any(not p.warning for p in problems):
         raise InputError(problems + [w for w in warnings if w.warning])
     findings = screen(study, data)
     warnings.extend(p for p, (_, acknowledged) in zip(_finding_problems(study, data, findings), findings)
                     if not acknowledged)
-    return Loaded(study, table, data, res, warnings, findings=findings, members=members)
+    return Loaded(study, table, data, res, warnings, findings=findings, members=members, hrr=hrr)
 
 
 def _rough_rset_s(study: Study, sid: str) -> float | None:
@@ -221,6 +225,35 @@ def _named_table(study_path: Path) -> Path | None:
     except (InputError, AttributeError):
         return None
     return study_path.parent / value if isinstance(value, str) and value.strip() else None
+
+
+def _read_hrr(study: Study, problems: list[Problem]) -> dict:
+    """Each scenario's design-fire heat-release rate (`design_fire: {hrr: ...}`), read with its
+    unit; problems are added to ``problems``. A column of the histories counts from ignition
+    as they do; a file of its own is taken as counting from ignition (project choice)."""
+    from .hrr import read_curve
+
+    out = {}
+    for spec in study.scenarios:
+        ref = spec.hrr
+        if ref is None:
+            continue
+        try:
+            if ref.file is None:
+                if spec.time is None or spec.histories is None:
+                    continue
+                t, q = read_curve(spec.histories, spec.time.column, spec.time.unit, ref.column, ref.unit, ref.where,
+                                  spec.delimiter, spec.decimal, spec.units_row,
+                                  shown=relative_text(str(spec.histories), study.base_dir))
+                t = t - (spec.ignition_s if spec.ignition_s is not None else float(t[0]))
+            else:
+                t, q = read_curve(ref.file, ref.time, ref.time_unit, ref.column, ref.unit, ref.where,
+                                  shown=relative_text(str(ref.file), study.base_dir))
+        except InputError as exc:
+            problems.extend(exc.problems)
+            continue
+        out[spec.id] = (t, q, ref.file)
+    return out
 
 
 def _on_ignition_clock(spec, data: ScenarioData, problems: list[Problem]) -> ScenarioData:
@@ -358,6 +391,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     locations = []
     governing_raw = []
     range_warnings: list[str] = []
+    range_records: list[dict] = []
     for li, lid in enumerate(prep.ids):
         if spec.locations[li].role == "detector":
             # a detection point: not assessed for tenability, and not counted as "not assessed"
@@ -384,11 +418,12 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                     entry["partial"] = True     # a dose-raising series (CO2) is missing: time is an upper bound
                 if r.grid_bound_s is not None and np.isfinite(r.grid_bound_s[li]):
                     entry["grid_bound_s"] = round(float(r.grid_bound_s[li]), 3)
-                flag = _outside_range(table, prep, data, cid, li, rr.times[li, 0], times, factors)
+                flag, found = _range_findings(table, prep, data, cid, li, rr.times[li, 0], times)
                 entry["outside_validated_range"] = bool(flag)
                 if flag:
                     entry["range_note"] = flag
                     range_warnings.append(f"scenario {spec.id}, location {lid}, {cid}: {flag}")
+                    range_records += [{"location": lid, **f} for f in found]
             else:
                 na.append(cid)
                 entry.update({"raw_s": None, "corrected_s": {"p05": None, "p50": None, "p95": None},
@@ -399,7 +434,8 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         gov = min(reached, key=reached.get) if reached else None
         raws = {cid: crits[cid]["raw_s"] for cid in crits if crits[cid].get("raw_s") is not None}
         governing_raw.append(min(raws, key=raws.get) if raws else None)
-        locations.append({"id": lid, "title": spec.locations[li].title, "criteria": crits,
+        locations.append({"id": lid, "title": spec.locations[li].title, "height_m": spec.locations[li].height_m,
+                          "criteria": crits,
                           "aset_raw_s": _t(raw_aset[li]), "aset_s": summarise(loc_aset[li]),
                           "governing": gov, "governing_raw": governing_raw[-1], "not_assessed": na})
     # sensitivity factor rows, evaluated once per scenario
@@ -499,12 +535,16 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                 entry["along_route"]["ensemble_note"] = ensemble.ALONG_ROUTE_NOTE
         entry["draw_counts"] = design.counts_from_outcomes(draw_outcomes(out.aset, out.rset, end_v),
                                                            v.deterministic, assessed_any).as_results()
+        if isinstance(entry.get("movement"), dict):      # the hand calculation validate --explain prints
+            entry["movement"]["hand"] = egress_summary.hand_movement(route)
         routes.append(entry)
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
         if ex is not None:
             route_plots[route.id]["occupant_dose"] = exposure.person_bands(ex)
-    scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": str(data.path),
+    _mark_bearing(range_records, routes)
+    scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": shown_path(data.path, study.base_dir),
                 "warnings": range_warnings,
+                "range_warnings": range_records,
                 "ignition_s": data.ignition_s, "clock": data.clock_note or "times count from the histories' first time (0 s), taken as ignition",
                 "locations": locations, "routes": routes,
                 "shared_elements": egress_summary.shared_keys(egress.nodes, study.elements) if routes_here else []}
@@ -513,12 +553,19 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     if ens is not None:
         scenario["ensemble"] = ens.results()
         ens.annotate_locations(locations, prep.ids, loc_aset)
+    hrr_plot = None
+    if spec.id in loaded.hrr:
+        from .hrr import describe_growth
+        t_h, q_h, f_h = loaded.hrr[spec.id]
+        scenario["hrr"] = {"source": (shown_path(f_h, study.base_dir) if f_h is not None else "histories"),
+                           "column": spec.hrr.column, **describe_growth(t_h, q_h)}
+        hrr_plot = {"t_s": t_h, "q_kw": q_h}
     cred, cred_plot = credibility(loaded, index, crit)
     if cred is not None:
         scenario["credibility"] = cred
     detectors = {loc.id for loc in spec.locations if loc.role == "detector"}
     plot = {"t_s": data.t_s, "locations": _plot_locations(prep, crit, factors, corr, detectors) if plots else {},
-            "routes": route_plots, "credibility": cred_plot}
+            "routes": route_plots, "credibility": cred_plot, "hrr": hrr_plot}
     return scenario, plot
 
 
@@ -527,6 +574,21 @@ def _occupants(route, prep, crit, fac, S, eg, max_p_fail, s_max, schedule):
     corrected for the planned looks, as the route verdict's)."""
     ex = exposure.occupant_exposure(route, prep, crit, fac, S, eg.routes[route.id])
     return ex, exposure.occupant_verdict(ex, eg.routes[route.id].rset, max_p_fail, s_max, schedule=schedule)
+
+
+def _mark_bearing(records: list[dict], routes: list[dict]) -> None:
+    """Set ``bears_on_verdict`` on each range excursion: True when it is at the location and
+    criterion that govern a route (its median ASET) and leaves the range before that
+    crossing; ``routes`` names those routes. Other excursions cannot move a governing time."""
+    for rec in records:
+        rec["routes"] = []
+        for rt in routes:
+            t_gov = (rt.get("aset_s") or {}).get("p50")
+            if (rt.get("governing_location") == rec["location"] and rt.get("governing_criterion") == rec["criterion"]
+                    and t_gov is not None and rec["first_outside_s"] <= t_gov):
+                rec["routes"].append(rt.get("id"))
+                rec["governing_crossing_s"] = t_gov
+        rec["bears_on_verdict"] = bool(rec["routes"])
 
 
 def _limit_value(c):
@@ -550,6 +612,12 @@ class _MoreSamples:
 
 
 def _outside_range(table, prep, data, cid, li, raw_t, times, factors) -> str | None:
+    """The range warning in words (see :func:`_range_findings`), or None."""
+    text, _ = _range_findings(table, prep, data, cid, li, raw_t, times)
+    return text
+
+
+def _range_findings(table, prep, data, cid, li, raw_t, times) -> tuple[str | None, list[dict]]:
     """A warning, in words, where predictions that matter lie outside the table's validated range.
 
     The predictions that matter run up to the latest crossing (raw and every corrected draw), or to
@@ -561,11 +629,15 @@ def _outside_range(table, prep, data, cid, li, raw_t, times, factors) -> str | N
     from .uncertainty import FALLING, range_excursion
 
     if table is None:
-        return None
+        return None, []
     reached_all = bool(np.isfinite(raw_t)) and bool(np.isfinite(times).all())
     t_end = float(np.nanmax(np.append(times, raw_t))) if reached_all else float(prep.t_s[-1])
-    upto = f"up to the crossing at {t_end:.0f} s" if reached_all else f"up to the end of the data ({t_end:.0f} s)"
-    notes = []
+    # the median crossing is the one the report quotes (p50 over all draws, "not reached" kept as such)
+    med = summarise(times).get("p50")
+    med_words = f"median crossing {med:.0f} s" if med is not None else "median crossing not reached"
+    upto = (f"up to the last draw's crossing ({t_end:.0f} s; {med_words})" if reached_all
+            else f"up to the end of the data ({t_end:.0f} s; {med_words})")
+    notes, items = [], []
     for q in aset.CRITERION_QUANTITIES[cid]:
         if q == "smoke":
             kind = prep.smoke_kind[li]
@@ -583,7 +655,40 @@ def _outside_range(table, prep, data, cid, li, raw_t, times, factors) -> str | N
         exc = range_excursion(prep.t_s, series, t_end, st.range_min, st.range_max, falling=sk in FALLING)
         if exc is not None:
             notes.append(_excursion_words(sk, st, exc, upto))
-    return "; ".join(notes) if notes else None
+            items.append(_excursion_record(sk, st, exc, cid, med))
+    return ("; ".join(notes) if notes else None), items
+
+
+def _excursion_record(q, st, exc, cid, median_crossing_s) -> dict:
+    """One validated-range excursion as a record (results.json scenario ``range_warnings``).
+
+    ``beyond`` is how far the farthest counted value lies outside the range, in the
+    table's range unit; ``excursion_rel`` the same as a share of the range's width (the
+    size the appendix table sorts by)."""
+    from .uncertainty import FALLING
+    from .units import display_unit, from_internal
+
+    unit = st.range_unit or display_unit(q)
+
+    def show(x):
+        return float(from_internal(np.array([x]), q, unit)[0])
+
+    lo, hi = show(st.range_min), show(st.range_max)
+    above = show(exc["peak"]) - hi if exc["above_by"] > 0 else 0.0
+    below = lo - show(exc["trough"]) if exc["below_by"] > 0 else 0.0
+    if exc["stays_outside"]:
+        falls = q in FALLING
+        extreme = show(exc["trough"] if falls else exc["peak"])
+        beyond = (extreme - hi) if falls else (lo - extreme)
+        side = "above" if falls else "below"
+    else:
+        extreme = show(exc["peak"]) if above >= below else show(exc["trough"])
+        beyond, side = (above, "above") if above >= below else (below, "below")
+    width = abs(hi - lo) or 1.0
+    return {"criterion": cid, "quantity": q, "range": {"min": round(lo, 6), "max": round(hi, 6), "unit": unit},
+            "side": side, "extreme": round(extreme, 6), "beyond": round(abs(beyond), 6),
+            "excursion_rel": round(abs(beyond) / width, 6), "first_outside_s": round(exc["first_outside_s"], 3),
+            "stays_outside": bool(exc["stays_outside"]), "median_crossing_s": median_crossing_s}
 
 
 def _excursion_words(q, st, exc, upto) -> str:
@@ -775,12 +880,13 @@ def build_results(loaded: Loaded, options: RunOptions):
             outcomes.append(assess_scenario(loaded, *job))
     scenarios = [sc for sc, _ in outcomes]
     plots = {spec.id: pl for spec, (_, pl) in zip(study.scenarios, outcomes)}
-    inputs = [{"path": str(study.path), "sha256": sha256_of(study.path), "role": "study"}]
+    base = study.base_dir            # every path shown relative to the study file (paths.shown_path)
+    inputs = [{"path": shown_path(study.path, base), "sha256": sha256_of(study.path), "role": "study"}]
     if study.criteria.path is not None:
-        inputs.append({"path": str(study.criteria.path), "sha256": sha256_of(study.criteria.path),
+        inputs.append({"path": shown_path(study.criteria.path, base), "sha256": sha256_of(study.criteria.path),
                        "role": "criteria"})
     if loaded.table is not None and loaded.table.path is not None:
-        inputs.append({"path": str(loaded.table.path), "sha256": sha256_of(loaded.table.path),
+        inputs.append({"path": shown_path(loaded.table.path, base), "sha256": sha256_of(loaded.table.path),
                        "role": "model uncertainty"})
     seen = set()
     for spec in study.scenarios:
@@ -790,18 +896,24 @@ def build_results(loaded: Loaded, options: RunOptions):
             if str(d.path) in seen:
                 continue
             seen.add(str(d.path))
-            inputs.append({"path": str(d.path), "sha256": d.sha256, "role": f"histories ({spec.id})",
+            inputs.append({"path": shown_path(d.path, base), "sha256": d.sha256, "role": f"histories ({spec.id})",
                            "rows": d.rows, "t_start_s": float(d.t_s[0]), "t_end_s": float(d.t_s[-1]),
                            "columns": [{"column": c.column, "series": c.series, "location": c.location,
                                         "unit_as_read": c.unit_as_read} for c in d.columns]})
+    for sid, (_, _, f_h) in loaded.hrr.items():
+        if f_h is not None and shown_path(f_h, base) not in {i["path"] for i in inputs}:
+            inputs.append({"path": shown_path(f_h, base), "sha256": sha256_of(f_h),
+                           "role": f"heat-release rate ({sid})"})
     results = {
         "version": __version__, "seed": seed, "samples": S,
         "study": {"title": study.title, "reference": study.reference, "prepared_by": study.prepared_by,
-                  "prepared_for": study.prepared_for, "paper": study.paper, "path": str(study.path),
-                  "sha256": sha256_of(study.path), "report": dict(study.report)},
+                  "prepared_for": study.prepared_for, "paper": study.paper, "path": shown_path(study.path, base),
+                  "sha256": sha256_of(study.path), "report": dict(study.report),
+                  # basis of design and sign-off as given (no date added: results.json carries none)
+                  "basis": dict(study.basis), "sign_off": dict(study.sign_off) if study.sign_off else None},
         "inputs": inputs,
         "criteria": study.criteria.as_results(),
-        "uncertainty": loaded.table.as_results() if loaded.table else None,
+        "uncertainty": _shown_table(loaded.table, base),
         "egress_method": egress_method(),
         "acceptance": {"max_p_fail": study.max_p_fail, "max_samples": study.max_samples,
                        "interval_method": ci_method(len(planned_looks(S, max(study.max_samples, S))),
@@ -809,7 +921,7 @@ def build_results(loaded: Loaded, options: RunOptions):
                        "basis": study.acceptance_basis},
         "raw_only": bool(options.raw_only),
         "assumptions": assumptions(loaded),
-        "warnings": [str(w) for w in loaded.warnings] + [w for sc in scenarios for w in sc["warnings"]],
+        "warnings": [relative_text(str(w), base) for w in loaded.warnings] + [w for sc in scenarios for w in sc["warnings"]],
         "scenarios": scenarios,
     }
     found = getattr(loaded, "findings", [])
@@ -820,6 +932,16 @@ def build_results(loaded: Loaded, options: RunOptions):
         limit = study.max_p_fail if study.max_design_p_fail is None else study.max_design_p_fail
         results["design"] = design.design_results(scenarios, study.scenario_weights, limit, study.weights_source)
     return results, plots
+
+
+def _shown_table(table, base):
+    """The uncertainty table as applied, its path relative to the study file."""
+    if table is None:
+        return None
+    out = table.as_results()
+    if out.get("path"):
+        out["path"] = shown_path(out["path"], base)
+    return out
 
 
 #: Below this much work (samples x locations x rows, summed over scenarios) one process is
@@ -934,6 +1056,7 @@ def run(study_path: Path, options: RunOptions) -> Path:
     inputs += [d.path for d in loaded.data.values()]
     inputs += [d.path for runs in loaded.resolutions.values() for _, d in runs]
     inputs += [d.path for ms in loaded.members.values() for d in ms]
+    inputs += [f for _, _, f in loaded.hrr.values() if f is not None]
     try:
         with outputs.claim(out, inputs, force=options.force, purpose="run") as target:
             results, plots = build_results(loaded, options)
@@ -954,7 +1077,8 @@ def write_outputs(results: dict, plots: dict, out: Path, options: RunOptions,
     (disk full, no permission) is an InputError naming the path.
     """
     if target is None:
-        inputs = [Path(f["path"]) for f in results.get("inputs") or []]
+        inputs = [Path(f["path"]) for f in results.get("inputs") or []
+                  if not str(f["path"]).startswith("bundled: ")]   # relative to the study file
         try:
             with outputs.claim(out, inputs, force=options.force, purpose="run") as own:
                 write_outputs(results, plots, out, options, own)

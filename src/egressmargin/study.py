@@ -37,16 +37,22 @@ NAMED_ELEMENT_KEYS = {"id", "title", "upstream"}
 #: zero it gives zero people or zero capacity).
 POSITIVE_DISTRIBUTIONS = ("lognormal", "uniform", "triangular")
 TOP_KEYS = {"title", "criteria", "uncertainty", "samples", "seed", "acceptance", "scenarios", "egress", "credibility",
-            "reference", "prepared_by", "prepared_for", "paper", "max_samples", "elements", "report"}
+            "reference", "prepared_by", "prepared_for", "paper", "max_samples", "elements", "report",
+            "basis", "sign_off"}
 SCENARIO_KEYS = {"id", "title", "histories", "time", "units_row", "locations", "ambient", "resolutions",
                  "ignition", "design_fire"}
-LOCATION_KEYS = {"id", "title", "temperature_profile", "role", *SERIES_KEYS}
+LOCATION_KEYS = {"id", "title", "temperature_profile", "role", "height", *SERIES_KEYS}
 #: A location may acknowledge plausibility findings by code (plausibility.CODES).
 LOCATION_KEYS = LOCATION_KEYS | {"accept_warnings"}
 #: A location's role: an occupied point assessed for tenability, or a detection point only.
 LOCATION_ROLES = ("occupied", "detector")
 #: Optional description of a scenario's design fire, printed in the report as given.
-DESIGN_FIRE_KEYS = ("growth", "peak_hrr", "sprinklers", "ventilation", "yields", "notes")
+DESIGN_FIRE_KEYS = ("growth", "peak_hrr", "sprinklers", "ventilation", "yields", "notes", "hrr")
+#: Basis of design (top-level `basis:`), printed in the report as given, in this order.
+BASIS_KEYS = ("building", "occupant_load", "fire_model", "premovement_source", "acceptance_source")
+FIRE_MODEL_KEYS = ("name", "version", "grid")
+#: The responsible engineer's sign-off (top-level `sign_off:`).
+SIGN_OFF_KEYS = ("engineer", "licence", "organisation", "date")
 ROUTE_KEYS = {"id", "title", "scenarios", "occupants", "detection", "alarm", "premovement", "path",
               "exposed_at", "movement", "exposure", "flow_factor", "speed_factor", "start_at"}
 #: A scenario's CSV format: field delimiters it may declare (``delimiter:``), and decimal marks (``decimal:``).
@@ -96,6 +102,7 @@ class LocationSpec:
     where: str
     role: str = "occupied"          # "detector": detection only, not assessed for tenability
     accept_warnings: tuple[str, ...] = ()   # plausibility codes acknowledged here (plausibility.CODES)
+    height_m: float | None = None   # height of the measuring point above the floor (`height:`) [m]
 
 
 @dataclass
@@ -123,6 +130,9 @@ class ScenarioSpec:
     decimal: str = "."
     #: An ensemble of fire runs sharing the column mapping (``histories`` is the first's); None: one run.
     ensemble: list["MemberSpec"] | None = None
+    #: Heat-release-rate curve of the design fire (`design_fire: {hrr: ...}`), or None.
+    hrr: "HrrRef | None" = None
+    where: str = ""
 
 
 @dataclass
@@ -133,6 +143,20 @@ class MemberSpec:
     histories: Path
     weight: float
     parameters: dict
+    where: str = ""
+
+
+@dataclass
+class HrrRef:
+    """Where a design fire's heat-release rate is read: a column of the scenario's histories
+    (``file`` None) or a column of its own CSV file (relative to the study) with a time column.
+    ``unit`` None: from the header (``name [unit]``), as for every series."""
+
+    column: str
+    unit: str | None
+    file: Path | None = None
+    time: str | None = None
+    time_unit: str | None = None
     where: str = ""
 
 
@@ -246,6 +270,10 @@ class Study:
     scenario_weights: dict[str, float] | None = None
     weights_source: str = ""
     max_design_p_fail: float | None = None
+    #: Basis of design as given (`basis:`; absent keys left out, the report says "not stated").
+    basis: dict = field(default_factory=dict)
+    #: The responsible engineer's sign-off as given (`sign_off:`), or None.
+    sign_off: dict | None = None
 
     @property
     def base_dir(self) -> Path:
@@ -459,6 +487,8 @@ def check_study(path: str | Path, criteria_override: str | None = None
     if paper.lower() not in ("a4", "letter"):
         ck.err(("paper",), f"found '{paper}'; expected A4 or letter")
 
+    basis = _basis(ck, data.get("basis"))
+    sign_off = _sign_off(ck, data.get("sign_off"))
     scenarios = _scenarios(ck, data.get("scenarios"), base)
     loc_ids = {s.id: {loc.id: loc for loc in s.locations} for s in scenarios}
     named, broken = _named_elements(ck, data.get("elements"))
@@ -484,7 +514,7 @@ def check_study(path: str | Path, criteria_override: str | None = None
                  max_gci=max_gci, warnings=[p for p in ck.problems if p.warning], elements=named,
                  report=report, scenario_weights=scenario_weights,
                  weights_source=ck.text(data.get("weights_source"), ("weights_source",)),
-                 max_design_p_fail=max_design_p_fail), scenarios, ck.problems
+                 max_design_p_fail=max_design_p_fail, basis=basis, sign_off=sign_off), scenarios, ck.problems
 
 
 def _max_design_p_fail(ck, acc) -> float | None:
@@ -689,9 +719,12 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
         members = _ensemble(ck, sc, kp, base, resolutions) if "ensemble" in sc else None   # an ensemble of fire runs
         if members and not resolutions:
             hist = members[0].histories       # the reference member (with resolutions: the finest grid's)
+        hrr = None
+        if design_fire is not None and "hrr" in design_fire:
+            hrr = _hrr(ck, design_fire.pop("hrr"), kp + ("design_fire", "hrr"), base)
         out.append(ScenarioSpec(sid, ck.text(sc.get("title"), kp + ("title",), default=sid), hist, time,
                                 units_row, locations, amb_t, amb_o2, resolutions, ck.doc.where(kp),
-                                design_fire, ignition_s=ignition))
+                                design_fire, ignition_s=ignition, hrr=hrr))
         out[-1].delimiter, out[-1].decimal = _csv_format(ck, sc, kp)
         out[-1].ensemble = members
     return out
@@ -895,9 +928,13 @@ def _locations(ck, value, kp) -> list[LocationSpec]:
             ck.err(lkp + ("role",), f"found {_show(role)}; expected one of {', '.join(LOCATION_ROLES)} "
                    f"(detector: a detection point, not assessed for tenability){did_you_mean(str(role), LOCATION_ROLES)}")
             role = "occupied"
+        height = None
+        if "height" in loc:
+            height = ck.quantity(loc["height"], lkp + ("height",), "length", positive=True)
         out.append(LocationSpec(lid, ck.text(loc.get("title"), lkp + ("title",), default=lid), series, profile,
                                 ck.doc.where(lkp), role, _accept_warnings(ck, loc.get("accept_warnings"),
-                                                                          lkp + ("accept_warnings",))))
+                                                                          lkp + ("accept_warnings",)),
+                                height_m=height))
     return out
 
 
@@ -928,7 +965,9 @@ def _design_fire(ck, value, kp) -> dict | None:
         if key not in value:
             continue
         v = value[key]
-        if key == "yields" and isinstance(v, dict):
+        if key == "hrr":
+            out[key] = v            # parsed by _hrr
+        elif key == "yields" and isinstance(v, dict):
             bad = [k for k, x in v.items() if isinstance(x, (dict, list)) or x is None]
             if bad:
                 ck.err(kp + (key,), f"found {_show(v)}; expected a mapping of species to yields as text, "
@@ -939,6 +978,81 @@ def _design_fire(ck, value, kp) -> dict | None:
             out[key] = v
         else:
             ck.err(kp + (key,), f"found {_show(v)}; expected text (or a number), shown in the report as given")
+    return out
+
+
+def _hrr(ck, value, kp, base: Path) -> HrrRef | None:
+    """`design_fire: {hrr: {column, unit}}` (a column of the scenario's histories) or
+    `{hrr: {file, time, column}}` (a CSV of its own, relative to the study file). A
+    column's unit comes from `unit:` or the header (`name [unit]`), never a guess."""
+    if not ck.keys(value, kp, {"column", "unit", "file", "time"},
+                   "a heat-release-rate curve ({column, unit} or {file, time, column})"):
+        return None
+    col = value.get("column")
+    if not isinstance(col, str) or not col.strip():
+        ck.err(kp, f"missing 'column'; expected the heat-release-rate column, e.g. {{column: HRR, unit: kW}}")
+        return None
+    unit = value.get("unit")
+    if unit is not None:
+        msg = check_unit(str(unit), "hrr")
+        if msg:
+            ck.err(kp + ("unit",), msg)
+            return None
+        unit = str(unit)
+    where = ck.doc.where(kp)
+    if "file" not in value:
+        if "time" in value:
+            ck.err(kp + ("time",), "'time' goes with 'file'; a column of the scenario's histories uses its time")
+            return None
+        return HrrRef(col.strip(), unit, where=where)
+    f = value["file"]
+    if not isinstance(f, str) or not f.strip():
+        ck.err(kp + ("file",), f"found {_show(f)}; expected a CSV path relative to the study file")
+        return None
+    path = base / f
+    if not path.is_file():
+        ck.err(kp + ("file",), f"file '{f}' not found; expected a CSV file relative to the study file")
+        return None
+    if "time" not in value:
+        ck.err(kp, "missing 'time'; expected the time column of the heat-release-rate file, e.g. time: Time")
+        return None
+    t = _series_ref(ck, "time", value["time"], kp + ("time",))
+    if t is None:
+        return None
+    return HrrRef(col.strip(), unit, path, t.column, t.unit, where)
+
+
+def _basis(ck, value) -> dict:
+    """The top-level `basis:` as given: text per key, `fire_model` a mapping of text."""
+    if value is None or not ck.keys(value, ("basis",), set(BASIS_KEYS), "the basis of design"):
+        return {}
+    out: dict = {}
+    for key in BASIS_KEYS:
+        if key not in value:
+            continue
+        v = value[key]
+        if key == "fire_model":
+            if not ck.keys(v, ("basis", key), set(FIRE_MODEL_KEYS), "the fire model ({name, version, grid})"):
+                continue
+            out[key] = {k: ck.text(v[k], ("basis", key, k)) for k in FIRE_MODEL_KEYS if k in v}
+        else:
+            out[key] = ck.text(v, ("basis", key))
+    return out
+
+
+def _sign_off(ck, value) -> dict | None:
+    """The top-level `sign_off:` as given; `date` text or a YAML date (ISO 8601 kept)."""
+    import datetime as _dt
+    if value is None or not ck.keys(value, ("sign_off",), set(SIGN_OFF_KEYS), "the sign-off"):
+        return None
+    out = {}
+    for key in SIGN_OFF_KEYS:
+        if key not in value:
+            continue
+        v = value[key]
+        out[key] = v.isoformat() if isinstance(v, _dt.date) else ck.text(v, ("sign_off", key))
+    if not out.get("engineer"):
+        ck.err(("sign_off",), "missing 'engineer'; expected the name of the responsible engineer")
     return out
 
 

@@ -37,6 +37,7 @@ INTERNAL_UNITS: dict[str, str] = {
     "rti": "m^0.5*s^0.5",
     "fraction": "dimensionless",
     "mass_extinction": "m^2/kg",
+    "hrr": "kW",                     # heat-release rate of a design fire (report only)
 }
 
 #: A short example of what each quantity accepts, for error messages.
@@ -60,6 +61,7 @@ EXAMPLES: dict[str, str] = {
     "rti": "m^0.5*s^0.5",
     "fraction": "percent or a plain number",
     "mass_extinction": "m^2/kg",
+    "hrr": "kW or MW",
 }
 
 #: Unit spellings common in CSV exports and hand-written studies, mapped explicitly to

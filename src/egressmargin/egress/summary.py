@@ -18,7 +18,7 @@ from .movement import element_properties, hand_speeds
 from .placement import element_places
 
 __all__ = ["ElementExplain", "ElementRecord", "LocationRecord", "SharedElementRecord", "explain_route",
-           "explain_text",
+           "explain_text", "hand_movement",
            "premovement_meaning", "route_keys", "shared_keys", "to_json"]
 
 
@@ -224,6 +224,46 @@ def _num(x, fmt: str) -> str:
     return "-" if x is None or (isinstance(x, float) and not np.isfinite(x)) else format(x, fmt)
 
 
+def grouped_notes(pairs) -> list[str]:
+    """Notes on path elements, each distinct note once with the elements it applies to.
+
+    >>> grouped_notes([(4, "not a row"), (5, "not a row"), (6, "other")])
+    ['elements 4, 5: not a row', 'element 6: other']
+    """
+    by_note: dict[str, list[int]] = {}
+    for index, note in pairs:
+        by_note.setdefault(str(note), [])
+        if index not in by_note[str(note)]:
+            by_note[str(note)].append(index)
+    return [f"element{'s' if len(ix) > 1 else ''} {', '.join(str(i) for i in ix)}: {note}"
+            for note, ix in by_note.items()]
+
+
+def hand_movement(route, rows: list[ElementExplain] | None = None) -> dict:
+    """The hand-form movement time of a route alone, everyone together: the one hand
+    calculation that ``validate --explain`` and the report (section 2.2) both print.
+
+    travel = sum of length / speed over the elements (:func:`explain_route`), flow = N /
+    least capacity; the movement time is their sum (SFPE Handbook 5th ed. ch. 59, hand
+    method; from memory).
+
+    Returns
+    -------
+    dict
+        ``travel_s``, ``occupants``, ``capacity_p_s``, ``flow_s``, ``total_s``,
+        ``controlling`` (index, type and id of the least-capacity element) and ``text``.
+    """
+    rows = explain_route(route) if rows is None else rows
+    ctrl = next(r for r in rows if r.controlling)
+    travel = sum(r.length_m / r.speed_m_s for r in rows if r.length_m > 0)
+    flow_t = route.occupants / ctrl.capacity_p_s
+    text = (f"hand movement time (route alone, everyone together): travel {travel:.1f} s + "
+            f"{route.occupants} / {ctrl.capacity_p_s:.3f} = {flow_t:.1f} s -> {travel + flow_t:.1f} s")
+    return {"travel_s": round(travel, 3), "occupants": route.occupants, "capacity_p_s": round(ctrl.capacity_p_s, 6),
+            "flow_s": round(flow_t, 3), "total_s": round(travel + flow_t, 3),
+            "controlling": {"index": ctrl.index, "type": ctrl.type, "id": ctrl.id}, "text": text}
+
+
 def explain_text(study) -> str:
     """The hand calculation of every route, as text for ``egressmargin validate --explain``.
 
@@ -257,17 +297,12 @@ def explain_text(study) -> str:
         for r in rows:
             if r.length_basis and r.type == "stair":
                 lines.append(f"  element {r.index} stair length: {r.length_basis}")
-            for note in r.notes:
-                lines.append(f"  element {r.index}: {note}")
+        lines += [f"  {n}" for n in grouped_notes([(r.index, note) for r in rows for note in r.notes])]
         for r in rows:
             lines.append(f"  element {r.index} ({r.type}) at {r.at}: "
                          f"{'given' if r.at_how == 'given' else 'assigned ' + r.at_how}; "
                          f"waiting to enter it at {r.queue_at}")
-        ctrl = next(r for r in rows if r.controlling)
-        travel = sum(r.length_m / r.speed_m_s for r in rows if r.length_m > 0)
-        flow_t = route.occupants / ctrl.capacity_p_s
-        lines.append(f"  hand movement time (route alone, everyone together): travel {travel:.1f} s + "
-                     f"{route.occupants} / {ctrl.capacity_p_s:.3f} = {flow_t:.1f} s -> {travel + flow_t:.1f} s")
+        lines.append(f"  {hand_movement(route, rows)['text']}")
         lines.append("")
     for eid, el in study.elements.items():
         users = [r for r in study.routes if any(e.get("id") == eid for e in r.path)]

@@ -86,22 +86,62 @@ def _plain(text: Any) -> str:
     return str(text).replace("$", r"\$")
 
 
+class _NoPyplot:
+    """The three pyplot calls the figures use, on bare Agg figures: no pyplot import (it
+    costs about as much as drawing several figures) and no global figure registry."""
+
+    @staticmethod
+    def figure(figsize=None, **kwargs):
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        from matplotlib.figure import Figure
+
+        fig = Figure(figsize=figsize, **kwargs)
+        FigureCanvasAgg(fig)
+        return fig
+
+    @classmethod
+    def subplots(cls, nrows=1, ncols=1, figsize=None, squeeze=True, **kwargs):
+        fig = cls.figure(figsize=figsize)
+        return fig, fig.subplots(nrows, ncols, squeeze=squeeze, **kwargs)
+
+    @staticmethod
+    def close(fig) -> None:
+        """Nothing to release: the figure is in no registry."""
+
+
 def _plt():
     import matplotlib
 
-    matplotlib.use("Agg", force=False)
-    import matplotlib.pyplot as plt
+    return matplotlib, _NoPyplot
 
-    return matplotlib, plt
+
+def preload() -> None:
+    """Import what drawing needs, so that forked drawing processes share one import."""
+    import matplotlib.backends.backend_agg  # noqa: F401
+    import matplotlib.figure  # noqa: F401
 
 
 def finish(fig: Any) -> bytes:
-    """The figure as PNG bytes; closes it."""
+    """The figure as an opaque RGB PNG (no alpha channel); closes it.
+
+    The figures are opaque (white background), so the alpha channel carries nothing; the
+    PDF engine re-encodes every PNG, and an RGBA one twice (colour and a separate alpha
+    mask), which cost about a tenth of the PDF step on the demo. compress_level 1: a little
+    larger PNGs in report.html, written faster (project choice, measured on the demo). No
+    metadata: the same numbers give the same bytes.
+    """
+    from PIL import Image
+
     _, plt = _plt()
     buf = io.BytesIO()
     try:
-        # No metadata: the same numbers give the same bytes.
-        fig.savefig(buf, format="png", dpi=FIG_DPI, metadata={"Software": None})
+        fig.set_dpi(FIG_DPI)
+        fig.canvas.draw()
+        w, h = fig.canvas.get_width_height(physical=True)
+        rgba = Image.frombuffer("RGBA", (w, h), fig.canvas.buffer_rgba(), "raw", "RGBA", 0, 1)
+        background = Image.new("RGB", (w, h), (255, 255, 255))
+        background.paste(rgba, mask=rgba.getchannel("A"))
+        background.save(buf, format="PNG", compress_level=1, dpi=(FIG_DPI, FIG_DPI))
     finally:
         plt.close(fig)
     return buf.getvalue()
@@ -796,3 +836,51 @@ __all__ = [
     "design_contributions_figure",
     "ensemble_figure",
 ]
+
+
+# ----------------------------------------------------------------- design-fire heat release
+
+def hrr_figure(t_s: np.ndarray, q_kw: np.ndarray, growth: Mapping[str, Any],
+               end_s: float | None = None, uid: str = "hrr") -> bytes:
+    """The design fire's heat-release rate against time, with its peak and t-squared fit.
+
+    Parameters
+    ----------
+    t_s, q_kw : ndarray
+        Time from ignition [s] and heat-release rate [kW].
+    growth : mapping
+        :func:`egressmargin.hrr.describe_growth` of the curve: the peak is marked; the
+        fitted Q = alpha t^2 is drawn dashed over its growth phase and labelled with
+        alpha and its nearest t-squared class.
+    end_s : float, optional
+        Last time of the scenario's histories [s]; the axis ends there (or at the
+        curve's end when later).
+    uid : str
+        The figure's name in the report (not drawn).
+    """
+    matplotlib, plt = _plt()
+    t = np.asarray(t_s, dtype=float)
+    q = np.asarray(q_kw, dtype=float)
+    idx = _decimate(t, [q])
+    mw = float(np.nanmax(q)) >= 2000.0
+    scale, unit = (1e-3, "MW") if mw else (1.0, "kW")
+    with matplotlib.rc_context(_RC):
+        fig, ax = plt.subplots(figsize=(FIG_WIDTH_IN, 1.75))   # printed at the full text width
+        ax.plot(t[idx], q[idx] * scale, color=INK, lw=1.3, label="Heat-release rate, as given")
+        alpha = growth.get("alpha_kw_s2")
+        if alpha:
+            tg = np.linspace(0.0, float(growth.get("growth_end_s") or t[-1]), 60)
+            ax.plot(tg, alpha * tg ** 2 * scale, color=BAND, lw=1.0, ls=(0, (4, 2)),
+                    label=f"Fitted αt², α = {alpha:.4g} kW/s² (nearest: {growth.get('nearest_class')})")
+        peak, tp = growth.get("peak_kw"), growth.get("peak_s")
+        if peak:
+            ax.plot([tp], [peak * scale], marker="o", ms=4, color=LIMIT, ls="none",
+                    label=f"Peak {fmt_num(peak * scale)} {unit} at {fmt_time(tp)}")
+        ax.set_xlabel("Time from ignition [s]")
+        ax.set_ylabel(f"Heat-release rate [{unit}]")
+        right = max(float(end_s or 0.0), float(t[-1]) if t.size else 0.0)
+        ax.set_xlim(0.0, right or None)
+        ax.set_ylim(bottom=0.0)
+        ax.legend(loc="lower right", fontsize=6.3)
+        fig.subplots_adjust(left=0.085, right=0.985, bottom=0.23, top=0.95)
+        return finish(fig)

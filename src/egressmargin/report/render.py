@@ -367,7 +367,9 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
                                    pd_sc.get("t_s"), (pd_sc.get("locations") or {}).get(lid) or {})
             if fig:
                 loc_figures.append(fig)
+        hrr_view = _hrr_view(sc, pd_sc.get("hrr"), end_s, figs)
         scenarios.append({
+            "hrr": hrr_view,
             "anchor": f"sc{i + 1}", "id": sid, "name": _named(sc), "title": sc.get("title"),
             "end_s": end_s, "histories": sc.get("histories"), "ignition_s": sc.get("ignition_s"),
             "design_fire": [(DESIGN_FIRE_LABELS.get(k, str(k)), _given(v))
@@ -426,7 +428,9 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "n_indeterminate": verdicts.count("indeterminate"),
         "n_other": sum(1 for v in verdicts if v not in ("pass", "fail", "indeterminate")),
         "not_supplied": not_supplied,
-        "n_not_assessed_on_routes": sum(len(r["not_assessed"]) for r in summary_rows),
+        # distinct (scenario, location, criterion): a location several routes pass counts once
+        "n_not_assessed_on_routes": len({(r["scenario"], n["location"], n["criterion"]) for r in summary_rows
+                                         for n in r["not_assessed"]}),
         "detectors": sorted(detectors.values()),
         "credibility": credibility,
         "inputs": _inputs_view(results.get("inputs") or []),
@@ -435,6 +439,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "n_figures": len(figs.items),
         "design": design,
     }
+    ctx.update(_submittal_view(results, scenarios, generated))
     return ctx
 
 
@@ -491,6 +496,116 @@ def _design_view(design: Any, figs: "_Figures") -> dict[str, Any] | None:
     return {"weights": list(weights.items()), "source": design.get("weights_source") or "",
             "max_p_fail": design.get("max_p_fail"), "method": design.get("interval_method"),
             "rows": rows, "figure": fig}
+
+
+# ------------------------------------------------- basis of design, sign-off, heights, HRR
+
+#: Printed names of the study's `basis:` items, in print order (each printed "not stated"
+#: when absent, never left out).
+STUDY_BASIS_LABELS: dict[str, str] = {
+    "building": "Building", "occupant_load": "Occupant load (how derived, source)",
+    "fire_model": "Fire model", "premovement_source": "Source of pre-movement and alarm times",
+    "acceptance_source": "Source of the acceptance limit",
+}
+FIRE_MODEL_LABELS: dict[str, str] = {"name": "name", "version": "version", "grid": "grid"}
+NOT_STATED = "not stated"
+
+
+def _submittal_view(results: Mapping[str, Any], scenarios: list, generated: Any) -> dict[str, Any]:
+    """Basis of design and sign-off as given (absent items "not stated"), the locations'
+    heights against the criteria set's stated height, and the range-warning tables."""
+    study = results.get("study") or {}
+    basis = study.get("basis") if isinstance(study.get("basis"), Mapping) else {}
+    rows = []
+    for key, label in STUDY_BASIS_LABELS.items():
+        v = basis.get(key)
+        if key == "fire_model":
+            fm = v if isinstance(v, Mapping) else {}
+            parts = [f"{FIRE_MODEL_LABELS[k]}: {fm.get(k) or NOT_STATED}" for k in FIRE_MODEL_LABELS]
+            rows.append({"label": label, "value": "; ".join(parts), "stated": bool(fm)})
+        else:
+            rows.append({"label": label, "value": str(v) if v not in (None, "") else NOT_STATED,
+                         "stated": v not in (None, "")})
+    so = study.get("sign_off") if isinstance(study.get("sign_off"), Mapping) else None
+    sign_off = None
+    if so:
+        sign_off = {k: so.get(k) or NOT_STATED for k in ("engineer", "licence", "organisation")}
+        sign_off["date"] = so.get("date") or (str(generated)[:10] if generated else NOT_STATED)
+        sign_off["date_given"] = bool(so.get("date"))
+    crit = results.get("criteria") or {}
+    stated_h = crit.get("height_m")
+    heights = {"stated_m": stated_h, "stated_text": crit.get("height_text") or "", "differs": [],
+               "missing": 0}
+    missing: set[str] = set()       # location ids, each counted once over the scenarios
+    for sc in scenarios:
+        for row in list(sc.get("matrix") or []) + list(sc.get("matrix_unused") or []):
+            h = row.get("height_m")
+            if h is None:
+                missing.add(row["id"])
+                row["height_note"] = False
+            else:
+                # a difference of more than 0.25 m from the stated height is noted (project choice)
+                row["height_note"] = stated_h is not None and abs(float(h) - float(stated_h)) > 0.25
+                if row["height_note"] and row["id"] not in heights["differs"]:
+                    heights["differs"].append(row["id"])
+    heights["missing"] = len(missing)
+    scenario_warnings = {w for sc in results.get("scenarios") or [] for w in sc.get("warnings") or []}
+    general = [_sentence(w) for w in results.get("warnings") or [] if w not in scenario_warnings]
+    return {"basis_rows": rows, "sign_off": sign_off, "heights": heights,
+            "range_tables": _range_tables(results), "general_warnings": general}
+
+
+def _hrr_view(sc: Mapping[str, Any], pd_hrr: Any, end_s: Any, figs: "_Figures") -> dict[str, Any] | None:
+    """The scenario's design-fire heat-release rate: its growth numbers and one figure."""
+    g = sc.get("hrr") if isinstance(sc.get("hrr"), Mapping) else None
+    if g is None:
+        return None
+    sid = str(sc.get("id"))
+    words = _growth_words(g)
+    fig = None
+    if isinstance(pd_hrr, Mapping) and pd_hrr.get("t_s") is not None:
+        fig = figs.add("hrr_figure", f"Design fire of scenario {sid}: heat-release rate as given "
+                       f"({'column ' + str(g.get('column')) + ' of the histories' if g.get('source') == 'histories' else str(g.get('source')) + ', column ' + str(g.get('column'))}); {words}.",
+                       t_s=pd_hrr["t_s"], q_kw=pd_hrr["q_kw"], growth=dict(g), end_s=end_s, uid=f"fig-hrr-{sid}")
+    return {"figure": fig, "words": words, **g}
+
+
+def _growth_words(g: Mapping[str, Any]) -> str:
+    """Peak and fitted t-squared growth of a heat-release-rate curve, in words."""
+    peak = g.get("peak_kw")
+    text = (f"peak {fmt_num(peak / 1000.0) + ' MW' if peak and peak >= 2000 else fmt_num(peak) + ' kW'} "
+            f"first at {fmt_time(g.get('peak_s'))}")
+    if g.get("alpha_kw_s2"):
+        text += (f"; fitted t-squared growth α = {g['alpha_kw_s2']:.4g} kW/s² up to "
+                 f"{fmt_time(g.get('growth_end_s'))} (1055 kW at {fmt_num(g.get('t_g_s'))} s), nearest the "
+                 f"{g.get('nearest_class')} class of NFPA 72 Annex B ({fmt_num(g.get('class_ratio'))} × its α)")
+    return text
+
+
+def _range_tables(results: Mapping[str, Any]) -> dict[str, Any]:
+    """Validated-range excursions: the appendix table (one row per quantity and location, the
+    largest excursion) and the summary's list (those that bear on a route's verdict)."""
+    rows: dict[tuple, dict[str, Any]] = {}
+    bearing = []
+    for sc in results.get("scenarios") or []:
+        for w in sc.get("range_warnings") or []:
+            if not isinstance(w, Mapping):
+                continue
+            key = (str(w.get("quantity")), str(w.get("location")))
+            size = float(w.get("excursion_rel") or 0.0)
+            row = rows.get(key)
+            if row is None or size > row["excursion_rel"]:
+                rows[key] = {**w, "scenario": sc.get("id"), "excursion_rel": size,
+                             "scenarios": (row or {}).get("scenarios", []), "criteria": (row or {}).get("criteria", [])}
+            r = rows[key]
+            if sc.get("id") not in r["scenarios"]:
+                r["scenarios"].append(sc.get("id"))
+            if w.get("criterion") not in r["criteria"]:
+                r["criteria"].append(w.get("criterion"))
+            if w.get("bears_on_verdict"):
+                bearing.append({**w, "scenario": sc.get("id")})
+    table = sorted(rows.values(), key=lambda r: (-r["excursion_rel"], r["quantity"], r["location"]))
+    return {"rows": table, "bearing": bearing}
 
 
 def _ordered_design_fire(df: Any) -> list[tuple[str, Any]]:
@@ -576,8 +691,8 @@ def _route_view(rt, sid, anchor, end_s, loc_titles, acceptance, samples, figs) -
         "share_not_detected": rt.get("share_not_detected"),
         "components": [{"label": COMPONENT_LABELS.get(c, c), **_trio(v)} for c, v in comps.items()],
         "movement": {k: mv.get(k) for k in ("travel_s", "flow_s", "controlling_element",
-                                             "controlling_type", "capacity_p_s")} if mv else None,
-        "movement_notes": [_sentence(n) for n in mv.get("notes") or []],
+                                             "controlling_type", "capacity_p_s", "hand")} if mv else None,
+        "movement_notes": [_sentence(n) for n in _grouped_movement_notes(mv.get("notes") or [])],
         "elements": _element_rows(rt.get("elements")),
         "inputs": [(str(k), _given(v)) for k, v in (rt.get("inputs") or {}).items()]
         if isinstance(rt.get("inputs"), Mapping) else [],
@@ -625,6 +740,23 @@ def _occupant_view(rt: Mapping[str, Any], along: Mapping[str, Any]) -> dict[str,
             "ci": list(ci) if isinstance(ci, (list, tuple)) and len(ci) == 2 else None,
             "reason": _sentence(v.get("verdict_reason")), "rows": rows, "figure": None,
             "note": _sentence(along.get("occupants_note"))}
+
+
+def _grouped_movement_notes(notes) -> list[str]:
+    """Route movement notes with a note shared by several path elements (``path element N:
+    text``) said once for all of them."""
+    import re
+
+    from ..egress.summary import grouped_notes
+
+    pairs, other = [], []
+    for n in notes:
+        m = re.match(r"path element (\d+): (.*)$", str(n), flags=re.S)
+        if m:
+            pairs.append((int(m.group(1)), m.group(2)))
+        else:
+            other.append(str(n))
+    return ["path " + g for g in grouped_notes(pairs)] + other
 
 
 def _what_would_change(rt: Mapping[str, Any], acceptance: Any) -> str:
@@ -707,6 +839,7 @@ def _matrix_row(loc, name, criterion_ids, routes) -> dict[str, Any]:
                           "partial": bool(c.get("missing_series")),
                           "outside": bool(c.get("outside_validated_range"))})
     return {"id": str(loc.get("id")), "name": name, "cells": cells, "routes": routes,
+            "height_m": loc.get("height_m"),
             "aset_raw_s": loc.get("aset_raw_s"), "aset_s": _trio(loc.get("aset_s")),
             "governing": _label(loc["governing"]) if loc.get("governing") else None}
 
@@ -762,12 +895,34 @@ def _location_figure(figs, sid, loc, name, end_s, t_s, specs) -> dict[str, Any] 
     band = any(s.get("band") is not None for s in show.values())
     quiet = [_label(cid) for cid, c in crit.items()
              if cid not in show and str(c.get("status")) != "not assessed"]
-    caption = (f"{name}, scenario {sid}: the quantities whose limit is reached, raw prediction"
-               + (" with the corrected p05\u2013p95 band" if band else "") + " and the limit."
-               + (f" Not drawn (limit not reached by the end): {', '.join(quiet)}." if quiet else ""))
+    caption = (f"{name}, scenario {sid}: raw prediction"
+               + (" with the corrected p05\u2013p95 band" if band else "") + " and the limit of "
+               + "; ".join(f"{_lower(spec['label'])} ({_reached_words(crit.get(cid) or {}, band)})"
+                           for cid, spec in show.items())
+               + "."
+               + (f" Not drawn (limit reached neither raw nor in any draw by the end): "
+                  f"{'; '.join(_lower(q) for q in quiet)}." if quiet else ""))
     return figs.add("location_figure", caption, t_s=t_s, specs=show,
                     raw_times_s={cid: crit.get(cid, {}).get("raw_s") for cid in show},
                     end_s=end_s, uid=f"fig-{sid}-{loc.get('id')}")
+
+
+def _lower(label: str) -> str:
+    """A criterion's label inside a sentence: lower case, except an abbreviation (FED, FEC)."""
+    return label if label[:3].isupper() else label[:1].lower() + label[1:]
+
+
+def _reached_words(c: Mapping[str, Any], band: bool) -> str:
+    """What the figure shows of one criterion's limit: reached by the raw curve (when), by
+    the band, or only in a few draws (then neither curve nor band reaches it)."""
+    raw, p = c.get("raw_s"), float(c.get("p_reached") or 0.0)
+    share = f"{100 * p:.0f}\u00a0%" if p >= 0.01 else "under 1\u00a0%"
+    if raw is not None:
+        return f"the raw curve reaches it at {fmt_time(raw)}; reached in {share} of the draws"
+    if band and p >= 0.05:
+        return f"the raw curve does not reach it; the band does (reached in {share} of the draws)"
+    return (f"reached only in {share} of the draws: neither the raw curve nor the "
+            + ("band" if band else "drawn curve") + " reaches it")
 
 
 def _credibility(scenarios_in, plotdata, figs) -> list[dict[str, Any]]:
@@ -896,8 +1051,12 @@ def _column_maps(inputs) -> list[dict[str, Any]]:
         by_loc: dict[str, list[str]] = {}
         for c in cols:
             unit = fmt_unit(c.get("unit_as_read"))
+            # a header written `name [unit]` carries its unit: print the unit once, as read
+            name = str(c.get("column"))
+            if name.endswith("]") and " [" in name:
+                name = name[:name.rindex(" [")]
             by_loc.setdefault(str(c.get("location") or "\u2014"), []).append(
-                f"{c.get('series')} {c.get('column')}" + (f" [{unit}]" if unit else ""))
+                f"{c.get('series')} {name}" + (f" [{unit}]" if unit else ""))
         text = "; ".join(f"{loc}: {', '.join(items)}" for loc, items in by_loc.items())
         maps.setdefault(text, []).append(str(f.get("path")))
     return [{"files": files, "text": text} for text, files in maps.items()]
@@ -930,6 +1089,7 @@ def draw_figures(figures: list[dict[str, Any]], progress: Any = None) -> None:
     if workers > 1:
         from concurrent.futures import ProcessPoolExecutor, as_completed
 
+        plots.preload()      # imported once here, not once per forked process
         with ProcessPoolExecutor(workers, mp_context=mp.get_context("fork")) as pool:
             futures = {pool.submit(_draw, job): k for k, job in enumerate(jobs)}
             images: list[bytes | None] = [None] * len(jobs)
@@ -980,7 +1140,32 @@ def _render(results, plotdata, paper, generated=None, progress=None):
     draw_figures(ctx["figures"], progress)
     css = (templates_dir() / "report.css").read_text(encoding="utf-8")
     ctx["css"] = Markup(css)  # the stylesheet is ours, not user text
-    return _environment().get_template("report.html.j2").render(**ctx), ctx["figures"]
+    for k, fig in enumerate(ctx["figures"]):
+        fig["number"] = _FIG_TOKEN.format(k)
+    html = _environment().get_template("report.html.j2").render(**ctx)
+    return _number_in_reading_order(html, ctx["figures"]), ctx["figures"]
+
+
+#: Stand-in for a figure's number while the template is rendered (see _number_in_reading_order).
+_FIG_TOKEN = "@@fig{:05d}@@"
+
+
+def _number_in_reading_order(html: str, figures: list[dict[str, Any]]) -> str:
+    """Number the figures in the order they first appear in ``html`` (reading order), so a
+    section's place in the template, not the order figures were added, decides their
+    numbers; figures the page does not show are numbered after the rest."""
+    import re
+
+    order: list[int] = []
+    for m in re.finditer(r"@@fig(\d{5})@@", html):
+        k = int(m.group(1))
+        if k not in order:
+            order.append(k)
+    order += [k for k in range(len(figures)) if k not in order]
+    numbers = {k: n + 1 for n, k in enumerate(order)}
+    for k, fig in enumerate(figures):
+        fig["number"] = numbers[k]
+    return re.sub(r"@@fig(\d{5})@@", lambda m: str(numbers[int(m.group(1))]), html)
 
 
 def _fetcher():
@@ -1023,6 +1208,8 @@ def write_pdf(html: str, path: Path, progress: Any = None) -> Path:
                                f"({exc.__cause__})") from exc
         if progress is not None:
             progress.stage("PDF writing")
+        # (full_fonts=True would save about a tenth of this step, but its PDF text cannot be
+        # extracted or searched: measured on the demo, so the fonts stay subset)
         document.write_pdf(str(path))
     finally:
         logger.setLevel(level)
