@@ -291,9 +291,10 @@ def _summary(out: Path, res: dict) -> None:
 
 def _validate(args) -> int:
     from .pipeline import load
+    from .paths import relative_text
     loaded = load(args.study)
-    for w in loaded.warnings:
-        print(str(w), file=sys.stderr)
+    for w in loaded.warnings:       # as `run` prints them (from results.json): paths relative to the study file
+        print(relative_text(str(w), loaded.study.base_dir), file=sys.stderr)
     scenarios = loaded.study.scenarios
     per = sorted({len(s.locations) for s in scenarios})
     n_ids = len({loc.id for s in scenarios for loc in s.locations})

@@ -159,11 +159,14 @@ class Ensemble:
             out[cid] = aset.CriterionResult(times, assessed, first.missing, bound, partial)
         return out
 
-    def results(self) -> list[dict]:
-        """results.json ``scenario.ensemble``."""
+    def results(self, base_dir=None) -> list[dict]:
+        """results.json ``scenario.ensemble`` (paths relative to the study folder ``base_dir``)."""
+        from .paths import shown_path
+
         counts = np.bincount(self.member_of_draw, minlength=len(self.specs))
         S = len(self.member_of_draw)
-        return [{"member": m.id, "histories": str(d.path), "weight": m.weight,
+        return [{"member": m.id, "histories": shown_path(d.path, base_dir) if base_dir else str(d.path),
+                 "weight": m.weight,
                  "probability": round(float(p), 6), "parameters": dict(m.parameters),
                  "share_of_draws": round(int(c) / S, 6), "draws": int(c), "end_s": rounded(d.end_s)}
                 for m, d, p, c in zip(self.specs, self.data, self.probabilities, counts)]

@@ -551,7 +551,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     if spec.design_fire:
         scenario["design_fire"] = spec.design_fire
     if ens is not None:
-        scenario["ensemble"] = ens.results()
+        scenario["ensemble"] = ens.results(study.base_dir)
         ens.annotate_locations(locations, prep.ids, loc_aset)
     hrr_plot = None
     if spec.id in loaded.hrr:
