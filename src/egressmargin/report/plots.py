@@ -759,6 +759,8 @@ def design_contributions_figure(routes: Sequence[Mapping[str, Any]], scenarios: 
         ax.set_yticklabels([_plain(rt.get("id")) for rt in routes])
         ax.set_xlabel("Design-level probability of failure (contribution of each design fire)")
         ax.set_xlim(left=0.0)
+        from matplotlib.ticker import FuncFormatter
+        ax.xaxis.set_major_formatter(FuncFormatter(lambda x, _: f"{100 * x:g} %"))   # as the text writes it
         ax.grid(axis="y", visible=False)
         ax.legend(loc="upper center", bbox_to_anchor=(0.5, 1.0 + 0.55 / height), ncol=min(len(scenarios) + 1, 5))
         fig.subplots_adjust(left=0.2, right=0.98, bottom=0.42 / height, top=1 - 0.5 / height)
