@@ -480,6 +480,8 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
                     "exceeds_p_bounds": {"low": share(exceeds), "high": share(exceeds | undetermined)},
                     "share_undetermined": share(undetermined),
                     "within_limit_at_p95": summary["p95"] is not None and summary["p95"] < c.limit}
+    if exposure is not None and exposure.end_each_s is not None:
+        end = exposure.end_each_s            # an ensemble: each draw's own member's end
     beyond = share(exit_t > end)
     placed = element_places(route)
     extra = {}
