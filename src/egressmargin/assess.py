@@ -676,7 +676,7 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
             row += 2
     draws = [EgressDraws(*(st[name] for name in _STREAMS),
                          parameters={p: st[f"premovement.{p}"] for p in _PARAMETER_NAMES}) for st in streams]
-    eg = scenario_egress(routes, prep, factors, draws, named, scale=scales, width_scale=widths)
+    eg = scenario_egress(routes, prep, factors, draws, named, scale=scales, width_scale=widths, per_person=False)
     out = {}
     for k in settings:
         route = routes[k]

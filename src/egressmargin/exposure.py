@@ -49,7 +49,7 @@ array, so the working memory does not grow with the number of draws: at most abo
 kept per draw is a few (S,) arrays per criterion, plus each person's value in the first
 :data:`FIGURE_DRAWS` draws for the dose-by-occupant figure. The flow model's per-person
 arrays themselves take S x N x 8 bytes each (128 MB for 1000 x 16000), two or three per
-path element.
+path element; :func:`egressmargin.sizing.kept_bytes` counts them and the blocks before a run.
 """
 
 from __future__ import annotations

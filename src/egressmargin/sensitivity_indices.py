@@ -328,7 +328,7 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
             axis=1)
     else:
         loc_aset = np.repeat(aset.location_aset(aset.evaluate(prep, criteria, {}, 1, with_bound=False)), R, axis=1)
-    eg = assess.scenario_egress(routes, prep, factors, draws, named)
+    eg = assess.scenario_egress(routes, prep, factors, draws, named, per_person=False)   # margins only
     groups = _sharing_groups(routes)
     out = {}
     for i, route in enumerate(routes):
