@@ -318,3 +318,21 @@ def test_sensitivity_indices_with_a_model_error_put_the_member_first(tmp_path):
     idx = {r["input"]: r for r in res["scenarios"][0]["routes"][0]["sensitivity_indices"]}
     assert set(idx) == {MEMBER_INPUT, "model error: temperature"}
     assert idx[MEMBER_INPUT]["total"] > 0.95 and idx["model error: temperature"]["total"] < 0.05
+
+
+def test_occupant_verdict_of_an_ensemble_settles_at_the_planned_looks_per_member(tmp_path):
+    """The smoky member (weight 1/4) makes some occupant exceed in every one of its draws and the clean
+    one in none (closed form: P = 1/4 exactly, stratified). Against max_p_fail 0.25 on the occupants'
+    basis the interval straddles the limit at every look, so the route goes to max_samples (40, 80, 160
+    draws), the exposure evaluated per member at each look: still exactly 40 of 160 draws."""
+    path = _co_pair(tmp_path, samples=40)
+    doc = yaml.safe_load(path.read_text())
+    doc["acceptance"] = {"max_p_fail": 0.25, "basis": "occupants"}
+    doc["max_samples"] = 160
+    path.write_text(yaml.safe_dump(doc))
+    res, _ = results_for(path)
+    rt = res["scenarios"][0]["routes"][0]
+    occ = rt["occupant_verdict"]
+    assert occ["samples_used"] == 160 and occ["p_fail"] == 0.25 and occ["verdict"] == "indeterminate"
+    assert rt["along_route"]["criteria"]["fed_toxic"]["occupants"]["p_any_exceeds"] == 0.25
+    assert {m["member"]: m["draws"] for m in rt["by_member"]} == {"smoky": 40, "clean": 120}
