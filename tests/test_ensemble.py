@@ -297,14 +297,14 @@ def test_sensitivity_covers_the_ensemble_member(tmp_path):
     variance is the member's: first-order and total Sobol' indices 1 (Sobol' 2001, by definition with one
     input). The one-at-a-time row spans the members' margins at median inputs: ASET 200 s and 400 s
     (closed form: linear rise) against the same RSET, a swing of 200 s."""
-    from egressmargin.ensemble import MEMBER_INPUT
+    from egressmargin.ensemble import MEMBER_INPUT, MEMBER_ROW
 
     res, _ = results_for(_three(tmp_path, samples=64))
     rt = res["scenarios"][0]["routes"][0]
     idx = rt["sensitivity_indices"]
     assert [r["input"] for r in idx] == [MEMBER_INPUT]
     assert idx[0]["first_order"] == pytest.approx(1.0, abs=0.05) and idx[0]["total"] == pytest.approx(1.0, abs=0.05)
-    row = next(r for r in rt["sensitivity"] if r["input"].startswith(MEMBER_INPUT))
+    row = next(r for r in rt["sensitivity"] if r["input"] == MEMBER_ROW)
     assert (row["low"], row["high"]) == ("member a-01", "member a-03")
     assert row["swing_s"] == pytest.approx(200.0, abs=1e-6) and row["kind"] == "ensemble"
 

@@ -31,7 +31,7 @@ from . import aset
 from .stats import rounded, summarise
 from .verdict import FAIL, UNKNOWN, draw_outcomes
 
-__all__ = ["ENSEMBLE_STREAM_TAG", "MEMBER_INPUT", "member_at", "assign_members", "Ensemble", "build"]
+__all__ = ["ENSEMBLE_STREAM_TAG", "MEMBER_INPUT", "MEMBER_ROW", "member_at", "assign_members", "Ensemble", "build"]
 
 #: Entropy word of the member-assignment stream, apart from the model-error streams
 #: (seeded with (seed, scenario index)) and the egress streams (project choice: any fixed
@@ -41,6 +41,10 @@ ENSEMBLE_STREAM_TAG = 104729
 
 #: Name of the ensemble member as an uncertain input (Sobol' indices, one-at-a-time table).
 MEMBER_INPUT = "ensemble member (fire run)"
+#: The one-at-a-time table's row for the fire run, and what it holds.
+MEMBER_ROW = "ensemble member: range over members"
+MEMBER_ROW_NOTE = ("margin at median inputs on each member's own histories; low: the member with the lowest "
+                   "margin, high: the member with the highest (not a p05-p95 sweep)")
 
 
 def member_at(weights, u) -> np.ndarray:
@@ -228,8 +232,9 @@ class Ensemble:
         for rid, vals in margins.items():
             m = np.array([v for v, _ in vals])
             lo, hi = int(np.argmin(m)), int(np.argmax(m))
-            row = _swing(MEMBER_INPUT + ": lowest and highest margin at median inputs over the members",
-                         f"member {self.specs[lo].id}", f"member {self.specs[hi].id}", m[lo], m[hi], "ensemble")
+            row = _swing(MEMBER_ROW, f"member {self.specs[lo].id}", f"member {self.specs[hi].id}", m[lo], m[hi],
+                         "ensemble")
+            row["note"] = MEMBER_ROW_NOTE
             row["lower_bound_members"] = [self.specs[k].id for k, (_, c) in enumerate(vals) if c]
             out[rid] = row
         return out
