@@ -336,3 +336,13 @@ def test_occupant_verdict_of_an_ensemble_settles_at_the_planned_looks_per_member
     assert occ["samples_used"] == 160 and occ["p_fail"] == 0.25 and occ["verdict"] == "indeterminate"
     assert rt["along_route"]["criteria"]["fed_toxic"]["occupants"]["p_any_exceeds"] == 0.25
     assert {m["member"]: m["draws"] for m in rt["by_member"]} == {"smoky": 40, "clean": 120}
+
+
+def test_memory_estimate_counts_the_members_copy_of_the_kept_times(tmp_path):
+    """An ensemble's exposure works on each member's copy of its draws' per-person times: the sizing
+    counts the route's path elements twice (1 corridor -> 2; occupants 3, bounded x 1.1 -> 4)."""
+    from egressmargin.pipeline import load
+    from egressmargin.study import _kept_persons
+
+    loaded = load(_co_pair(tmp_path))
+    assert _kept_persons(loaded.study, "fire-a", 40) == ((4, 2),)

@@ -1576,10 +1576,15 @@ def _kept(study: Study, route) -> bool:
 
 def _kept_persons(study: Study, sid: str, n_samples: int) -> tuple:
     """(occupants as drawn, path elements) of each route of scenario ``sid`` whose per-person
-    times the flow model keeps (:func:`egressmargin.sizing.kept_bytes`)."""
+    times the flow model keeps (:func:`egressmargin.sizing.kept_bytes`). An ensemble scenario
+    counts the elements twice: each member's exposure works on a copy of its draws' times
+    (``ensemble._take``), up to every draw for a member of large weight."""
     from .sizing import occupant_count_bound
 
-    return tuple((occupant_count_bound(r.occupants_dist or {"fixed": float(r.occupants)}, n_samples), len(r.path))
+    spec = next((sc for sc in study.scenarios if sc.id == sid), None)
+    copies = 2 if spec is not None and getattr(spec, "ensemble", None) else 1
+    return tuple((occupant_count_bound(r.occupants_dist or {"fixed": float(r.occupants)}, n_samples),
+                  len(r.path) * copies)
                  for r in study.routes if (r.scenarios is None or sid in r.scenarios) and _kept(study, r))
 
 
