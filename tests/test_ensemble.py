@@ -216,3 +216,133 @@ def test_process_pool_gives_the_same_results_as_a_serial_run(tmp_path):
     pooled, _ = results_for(path, workers=2)
     assert pooled["scenarios"] == serial["scenarios"]
     assert serial["scenarios"][0]["routes"][0]["p_fail"] == 0.5
+
+
+def test_a_borderline_ensemble_takes_the_planned_extra_draws(tmp_path):
+    """Members weighted 1 : 19, the first failing for certain and the second passing (closed form:
+    p_fail = 1/20 = 0.05, exactly the acceptance limit): the Clopper-Pearson interval straddles the
+    limit at every look, so the route takes every planned look up to max_samples (100, 200, 400),
+    the members assigned to the 400 draws again, stratified (Cochran 1977, ch. 8: 20 and 380 draws)."""
+    _csv(tmp_path / "fast.csv", 200.0)
+    _csv(tmp_path / "slow.csv", 500.0)
+    members = [{"histories": "fast.csv", "weight": 1}, {"histories": "slow.csv", "weight": 19}]
+    path = _study(tmp_path, members, samples=100, uncertainty=True)
+    doc = yaml.safe_load(path.read_text())
+    doc["acceptance"] = {"max_p_fail": 0.05}
+    doc["max_samples"] = 400
+    path.write_text(yaml.safe_dump(doc))
+    res, _ = results_for(path)
+    rt = res["scenarios"][0]["routes"][0]
+    assert rt["samples_used"] == 400
+    assert rt["p_fail"] == 0.05 and rt["verdict"] == "indeterminate"
+    assert rt["draw_counts"] == {**rt["draw_counts"], "draws": 400, "fail": 20}
+    assert {m["member"]: (m["draws"], m["p_fail"]) for m in rt["by_member"]} == {"fast": (20, 1.0),
+                                                                                 "slow": (380, 0.0)}
+    assert res["scenarios"][0]["ensemble"][0]["draws"] == 5       # the main draw keeps `samples`
+
+
+def _co_pair(tmp_path, samples=40):
+    """Two members on one column map: 'smoky' holds 4000 ppm CO throughout, 'clean' none; the
+    temperature stays at 20 degC in both (weights 1 : 3)."""
+    t = np.arange(0.0, 901.0, 5.0)
+    for name, co in (("smoky", 4000.0), ("clean", 0.0)):
+        lines = ["Time [s],T1 [degC],CO1 [ppm]"] + [f"{float(a)!r},20.0,{co!r}" for a in t]
+        (tmp_path / f"{name}.csv").write_text("\n".join(lines) + "\n")
+    members = [{"histories": "smoky.csv", "weight": 1}, {"histories": "clean.csv", "weight": 3}]
+    path = _study(tmp_path, members, samples=samples)
+    doc = yaml.safe_load(path.read_text())
+    doc["criteria"] = {"base": "general-2m", "only": ["fed_toxic"],
+                       "fed_toxic": {"limit": 0.3, "method": "iso13571"}}
+    doc["scenarios"][0]["locations"] = [{"id": "a", "temperature": "T1", "co": "CO1"}]
+    doc["egress"][0].update({"occupants": 3, "start_at": "a", "exposure": "along-route",
+                             "path": [{"corridor": {"length": "10 m", "width": "2 m", "at": "a"}}]})
+    path.write_text(yaml.safe_dump(doc))
+    return path
+
+
+def test_every_occupants_dose_is_evaluated_on_each_draws_own_member(tmp_path):
+    """Only member 'smoky' has CO: every occupant's dose is > 0 exactly in its draws. The last
+    occupant's dose there is the ISO 13571:2012 CO term, C t / 35000 ppm min, with C = 4000 ppm
+    and t the time from ignition to leaving the corridor (every stay is in location 'a')."""
+    from egressmargin import aset, assess
+    from egressmargin.ensemble import MemberPrep, build
+    from egressmargin.pipeline import load
+
+    path = _co_pair(tmp_path)
+    loaded = load(path)
+    study = loaded.study
+    spec, crit, route = study.scenarios[0], study.criteria, study.routes[0]
+    ens = build(spec, loaded.members["fire-a"], crit, 40, study.seed, 0, study.routes)
+    ens.evaluate(crit, {}, 40)
+    prep = MemberPrep(ens, aset.prepare(loaded.data["fire-a"], crit, None, None))
+    eg = assess.scenario_egress([route], prep, {}, [assess.egress_uniforms(study.seed, 0, 40)], study.elements,
+                                per_person=True)
+    ex = ens.occupant_exposure(route, crit, {}, eg.routes["r"])
+    ce = ex.criteria["fed_toxic"]
+    smoky = ens.member_of_draw == 0
+    assert smoky.sum() == 10
+    assert np.all(ce.worst[smoky] > 0) and np.all(ce.worst[~smoky] == 0)
+    assert np.all(np.nan_to_num(ce.persons[smoky], nan=1.0) > 0) and np.all(np.nan_to_num(ce.persons[~smoky]) == 0)
+    assert ce.last[smoky] == pytest.approx(4000.0 * ex.exit_s[smoky] / 60.0 / 35000.0, rel=1e-6)
+    assert np.array_equal(ce.any_exceeds, smoky)                   # about 0.6 > 0.3 in 'smoky', 0 in 'clean'
+    res, _ = results_for(path)
+    ar = res["scenarios"][0]["routes"][0]["along_route"]
+    assert ar["criteria"]["fed_toxic"]["occupants"]["p_any_exceeds"] == 0.25      # the smoky member's weight
+    assert ar["criteria"]["fed_toxic"]["exceeds_p"] == 0.25
+    assert "per member" in ar["ensemble_note"] and "reference" not in ar["ensemble_note"]
+
+
+def test_sensitivity_covers_the_ensemble_member(tmp_path):
+    """With the member the only uncertain input (fixed egress, no model-error table), all the margin's
+    variance is the member's: first-order and total Sobol' indices 1 (Sobol' 2001, by definition with one
+    input). The one-at-a-time row spans the members' margins at median inputs: ASET 200 s and 400 s
+    (closed form: linear rise) against the same RSET, a swing of 200 s."""
+    from egressmargin.ensemble import MEMBER_INPUT, MEMBER_ROW
+
+    res, _ = results_for(_three(tmp_path, samples=64))
+    rt = res["scenarios"][0]["routes"][0]
+    idx = rt["sensitivity_indices"]
+    assert [r["input"] for r in idx] == [MEMBER_INPUT]
+    assert idx[0]["first_order"] == pytest.approx(1.0, abs=0.05) and idx[0]["total"] == pytest.approx(1.0, abs=0.05)
+    row = next(r for r in rt["sensitivity"] if r["input"] == MEMBER_ROW)
+    assert (row["low"], row["high"]) == ("member a-01", "member a-03")
+    assert row["swing_s"] == pytest.approx(200.0, abs=1e-6) and row["kind"] == "ensemble"
+
+
+def test_sensitivity_indices_with_a_model_error_put_the_member_first(tmp_path):
+    """A 1 % model error on the temperature rise moves the crossings by about 1 % (2-4 s), the member by
+    100-200 s: the member's total index is near 1 and the factor's near 0."""
+    from egressmargin.ensemble import MEMBER_INPUT
+
+    res, _ = results_for(_three(tmp_path, samples=64, uncertainty=True))
+    idx = {r["input"]: r for r in res["scenarios"][0]["routes"][0]["sensitivity_indices"]}
+    assert set(idx) == {MEMBER_INPUT, "model error: temperature"}
+    assert idx[MEMBER_INPUT]["total"] > 0.95 and idx["model error: temperature"]["total"] < 0.05
+
+
+def test_occupant_verdict_of_an_ensemble_settles_at_the_planned_looks_per_member(tmp_path):
+    """The smoky member (weight 1/4) makes some occupant exceed in every one of its draws and the clean
+    one in none (closed form: P = 1/4 exactly, stratified). Against max_p_fail 0.25 on the occupants'
+    basis the interval straddles the limit at every look, so the route goes to max_samples (40, 80, 160
+    draws), the exposure evaluated per member at each look: still exactly 40 of 160 draws."""
+    path = _co_pair(tmp_path, samples=40)
+    doc = yaml.safe_load(path.read_text())
+    doc["acceptance"] = {"max_p_fail": 0.25, "basis": "occupants"}
+    doc["max_samples"] = 160
+    path.write_text(yaml.safe_dump(doc))
+    res, _ = results_for(path)
+    rt = res["scenarios"][0]["routes"][0]
+    occ = rt["occupant_verdict"]
+    assert occ["samples_used"] == 160 and occ["p_fail"] == 0.25 and occ["verdict"] == "indeterminate"
+    assert rt["along_route"]["criteria"]["fed_toxic"]["occupants"]["p_any_exceeds"] == 0.25
+    assert {m["member"]: m["draws"] for m in rt["by_member"]} == {"smoky": 40, "clean": 120}
+
+
+def test_memory_estimate_counts_the_members_copy_of_the_kept_times(tmp_path):
+    """An ensemble's exposure works on each member's copy of its draws' per-person times: the sizing
+    counts the route's path elements twice (1 corridor -> 2; occupants 3, bounded x 1.1 -> 4)."""
+    from egressmargin.pipeline import load
+    from egressmargin.study import _kept_persons
+
+    loaded = load(_co_pair(tmp_path))
+    assert _kept_persons(loaded.study, "fire-a", 40) == ((4, 2),)

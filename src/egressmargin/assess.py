@@ -480,6 +480,8 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
                     "exceeds_p_bounds": {"low": share(exceeds), "high": share(exceeds | undetermined)},
                     "share_undetermined": share(undetermined),
                     "within_limit_at_p95": summary["p95"] is not None and summary["p95"] < c.limit}
+    if exposure is not None and exposure.end_each_s is not None:
+        end = exposure.end_each_s            # an ensemble: each draw's own member's end
     beyond = share(exit_t > end)
     placed = element_places(route)
     extra = {}
@@ -674,7 +676,7 @@ def scenario_sensitivity(routes: list[RouteSpec], prep, sweep_factors, sweep_ind
             row += 2
     draws = [EgressDraws(*(st[name] for name in _STREAMS),
                          parameters={p: st[f"premovement.{p}"] for p in _PARAMETER_NAMES}) for st in streams]
-    eg = scenario_egress(routes, prep, factors, draws, named, scale=scales, width_scale=widths)
+    eg = scenario_egress(routes, prep, factors, draws, named, scale=scales, width_scale=widths, per_person=False)
     out = {}
     for k in settings:
         route = routes[k]

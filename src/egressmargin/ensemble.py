@@ -31,12 +31,34 @@ from . import aset
 from .stats import rounded, summarise
 from .verdict import FAIL, UNKNOWN, draw_outcomes
 
-__all__ = ["ENSEMBLE_STREAM_TAG", "assign_members", "Ensemble", "build"]
+__all__ = ["ENSEMBLE_STREAM_TAG", "MEMBER_INPUT", "MEMBER_ROW", "member_at", "assign_members", "Ensemble", "build"]
 
 #: Entropy word of the member-assignment stream, apart from the model-error streams
 #: (seeded with (seed, scenario index)) and the egress streams (project choice: any fixed
 #: number not used as a scenario index or by another stream).
 ENSEMBLE_STREAM_TAG = 104729
+
+
+#: Name of the ensemble member as an uncertain input (Sobol' indices, one-at-a-time table).
+MEMBER_INPUT = "ensemble member (fire run)"
+#: The one-at-a-time table's row for the fire run, and what it holds.
+MEMBER_ROW = "ensemble member: range over members"
+MEMBER_ROW_NOTE = ("margin at median inputs on each member's own histories; low: the member with the lowest "
+                   "margin, high: the member with the highest (not a p05-p95 sweep)")
+
+
+def member_at(weights, u) -> np.ndarray:
+    """The member m whose stretch of [0, 1) holds each uniform ``u``: c_{m-1} <= u < c_m.
+
+    c_m are the cumulative weights over their sum (inverse transform of the discrete
+    distribution of members), as :func:`assign_members` maps its stratified positions.
+
+    >>> member_at([1, 1, 2], [0.1, 0.3, 0.5, 0.99]).tolist()
+    [0, 1, 2, 2]
+    """
+    w = np.asarray(weights, float)
+    cum = np.cumsum(w) / w.sum()
+    return np.minimum(np.searchsorted(cum, np.asarray(u, float), side="right"), len(w) - 1)
 
 
 def assign_members(weights, S: int, seed: int, scenario_index: int) -> np.ndarray:
@@ -62,17 +84,41 @@ def assign_members(weights, S: int, seed: int, scenario_index: int) -> np.ndarra
     >>> np.bincount(assign_members([1, 1, 2], 400, 1, 0)).tolist()
     [100, 100, 200]
     """
-    w = np.asarray(weights, float)
-    cum = np.cumsum(w) / w.sum()
     rng = np.random.default_rng([seed, ENSEMBLE_STREAM_TAG, scenario_index])
     u = rng.random()
     positions = (np.arange(S) + u) / S
-    member = np.minimum(np.searchsorted(cum, positions, side="right"), len(w) - 1)
+    member = member_at(weights, positions)
     return member[rng.permutation(S)]
 
 
 def _subset(factors: dict, idx: np.ndarray) -> dict:
     return {k: v[idx] for k, v in factors.items()}
+
+
+def _take(record, idx: np.ndarray, S: int, seen: dict | None = None):
+    """A copy of a per-draw record (a dataclass, list or dict of them) on draws ``idx``.
+
+    Every array whose first axis has the S draws is indexed; anything else is kept. An
+    array object met twice (an element's ``arrive_each_s`` is the previous element's
+    ``leave_each_s``) is taken once, so the copies share as the originals do.
+    """
+    import dataclasses
+
+    seen = {} if seen is None else seen
+    if isinstance(record, np.ndarray):
+        if record.ndim == 0 or record.shape[0] != S:
+            return record
+        if id(record) not in seen:
+            seen[id(record)] = (record, record[idx])       # keep the original alive: ids stay unique
+        return seen[id(record)][1]
+    if dataclasses.is_dataclass(record) and not isinstance(record, type):
+        return dataclasses.replace(record, **{f.name: _take(getattr(record, f.name), idx, S, seen)
+                                              for f in dataclasses.fields(record) if f.init})
+    if isinstance(record, list):
+        return [_take(x, idx, S, seen) for x in record]
+    if isinstance(record, dict):
+        return {k: _take(v, idx, S, seen) for k, v in record.items()}
+    return record
 
 
 @dataclass
@@ -94,6 +140,7 @@ class Ensemble:
     raw_loc_aset: list = field(default_factory=list)    # (L,) raw location ASET per member
     detection: dict = field(default_factory=dict)       # id(rule) -> (uniforms (S,), detection (S,))
     crit: object = None                                 # the criteria set evaluated
+    index: int = 0                                      # the scenario's index (the assignment's stream)
 
     @property
     def probabilities(self) -> np.ndarray:
@@ -111,6 +158,86 @@ class Ensemble:
 
     def indices(self, m: int) -> np.ndarray:
         return np.flatnonzero(self.member_of_draw == m)
+
+    def with_members(self, member_of_draw) -> "Ensemble":
+        """The same members with another assignment of draws (not yet evaluated)."""
+        return Ensemble(self.specs, self.data, np.asarray(member_of_draw, int), self.scenario, self.rules,
+                        self.seed, crit=self.crit, index=self.index)
+
+    def resized(self, S: int) -> "Ensemble":
+        """The same members over S draws, assigned (stratified) again from the same stream:
+        a later look of the sequential rule (:func:`egressmargin.verdict.planned_looks`)."""
+        return self.with_members(assign_members([m.weight for m in self.specs], S, self.seed, self.index))
+
+    def _prepared(self, d, crit):
+        return aset.prepare(d, crit, self.scenario.ambient_temperature_c, self.scenario.ambient_o2)
+
+    def occupant_exposure(self, route, crit, factors: dict, egress):
+        """Every occupant's exposure, each member's draws on that member's own histories.
+
+        For each member, :func:`egressmargin.exposure.occupant_exposure` runs on the member's
+        prepared series, its own draws' factors and its draws of the route's egress
+        (``egress``: an :class:`egressmargin.assess.RouteEgress` over every draw, with the
+        per-person times); :func:`egressmargin.exposure.assemble_exposures` puts the
+        per-draw results back in draw order. A draw is undetermined by its own member's end.
+        """
+        from .exposure import assemble_exposures, occupant_exposure, occupant_stays
+
+        S = len(self.member_of_draw)
+        parts = []
+        for m, d in enumerate(self.data):
+            idx = self.indices(m)
+            if not idx.size:
+                continue
+            prep = self._prepared(d, crit)
+            parts.append((idx, occupant_exposure(route, prep, crit, _subset(factors, idx), idx.size,
+                                                 _take(egress, idx, S))))
+            del prep
+        counts = np.asarray(egress.inputs.counts)
+        exit_each = egress.flow.elements[-1].leave_each_s
+        return assemble_exposures(parts, S, occupant_stays(route, egress), counts,
+                                  exit_each[np.arange(S), counts - 1], float(self.ends_s.max()), self.end_per_draw)
+
+    def median_margins(self, routes, crit, factors0: dict, named=None) -> dict[str, list[tuple[float, bool]]]:
+        """Per route, each member's margin at median inputs [s] and whether it is a lower bound.
+
+        Margin = route ASET - RSET with every model-error factor at ``factors0`` (one value
+        per key: the medians) and every egress input at its median, on the member's own
+        histories (detector rules included); where no limit is reached by the member's
+        end, the end stands for the ASET (a lower bound), as in
+        :func:`egressmargin.assess.scenario_sensitivity`.
+        """
+        from . import assess
+
+        out = {r.id: [] for r in routes}
+        f0 = {k: np.asarray(v, float).reshape(-1)[:1] for k, v in factors0.items()}
+        for d in self.data:
+            prep = self._prepared(d, crit)
+            loc = aset.location_aset(aset.evaluate(prep, crit, f0, 1, with_bound=False))
+            eg = assess.scenario_egress(routes, prep, f0, [assess.EgressDraws.median()] * len(routes), named,
+                                        per_person=False)
+            for r in routes:
+                a = float(assess.route_aset(loc, prep.ids, r.exposed_at)[0])
+                censored = not np.isfinite(a)
+                out[r.id].append(((d.end_s if censored else a) - float(eg.routes[r.id].rset[0]), censored))
+            del prep
+        return out
+
+    def member_rows(self, margins: dict[str, list[tuple[float, bool]]]) -> dict[str, dict]:
+        """The one-at-a-time table's row for the fire run: per route, the members with the
+        lowest and the highest margin at median inputs (:meth:`median_margins`)."""
+        from .assess import _swing
+
+        out = {}
+        for rid, vals in margins.items():
+            m = np.array([v for v, _ in vals])
+            lo, hi = int(np.argmin(m)), int(np.argmax(m))
+            row = _swing(MEMBER_ROW, f"member {self.specs[lo].id}", f"member {self.specs[hi].id}", m[lo], m[hi],
+                         "ensemble")
+            row["note"] = MEMBER_ROW_NOTE
+            row["lower_bound_members"] = [self.specs[k].id for k, (_, c) in enumerate(vals) if c]
+            out[rid] = row
+        return out
 
     def evaluate(self, crit, factors: dict, S: int, with_bound: bool = True) -> dict:
         """Every criterion's (L, S) times, each member evaluated on its own draws' factors.
@@ -208,11 +335,15 @@ class MemberPrep:
     The egress model reads a fire's series only through a detector rule
     (:func:`egressmargin.assess.detection_times`, which calls :meth:`member_detection`);
     every other attribute is the reference member's. Draw counts other than the
-    ensemble's (the sensitivity sweep, the median-input run) use the reference member.
+    ensemble's (the one-at-a-time sweep, the median-input run) use the reference member.
     """
 
     def __init__(self, ens: "Ensemble", base):
         self._ens, self._base = ens, base
+
+    def for_ensemble(self, ens: "Ensemble") -> "MemberPrep":
+        """The same reference series with another assignment of draws to members."""
+        return MemberPrep(ens, self._base)
 
     def __getattr__(self, name):
         return getattr(self._base, name)
@@ -238,9 +369,8 @@ class MemberPrep:
 
 
 #: Said of an ensemble route's dose along the route (results and report).
-ALONG_ROUTE_NOTE = ("ensemble: the dose along the route is evaluated on the reference member's histories for every "
-                    "draw (per-member doses along the route are not implemented yet); the ASET, the verdict and the "
-                    "detection use each draw's own member")
+ALONG_ROUTE_NOTE = ("ensemble: every occupant's exposure and the dose along the route are evaluated per member, "
+                    "each draw on its own member's histories (as the ASET, the verdict and the detection)")
 
 
 def build(spec, members_data, crit, S: int, seed: int, index: int, routes=()) -> Ensemble | None:
@@ -256,7 +386,7 @@ def build(spec, members_data, crit, S: int, seed: int, index: int, routes=()) ->
     member = assign_members([m.weight for m in spec.ensemble], S, seed, index)
     rules = [(ri, r.detection) for ri, r in enumerate(routes)
              if (r.scenarios is None or spec.id in r.scenarios) and isinstance(r.detection, DetectorRule)]
-    return Ensemble(list(spec.ensemble), list(members_data), member, spec, rules, seed)
+    return Ensemble(list(spec.ensemble), list(members_data), member, spec, rules, seed, index=index)
 
 
 def read_members(spec, read, progress=None) -> tuple[list, list, list]:

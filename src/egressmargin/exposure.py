@@ -49,7 +49,7 @@ array, so the working memory does not grow with the number of draws: at most abo
 kept per draw is a few (S,) arrays per criterion, plus each person's value in the first
 :data:`FIGURE_DRAWS` draws for the dose-by-occupant figure. The flow model's per-person
 arrays themselves take S x N x 8 bytes each (128 MB for 1000 x 16000), two or three per
-path element.
+path element; :func:`egressmargin.sizing.kept_bytes` counts them and the blocks before a run.
 """
 
 from __future__ import annotations
@@ -66,7 +66,7 @@ from .tenability.irritants import IRRITANT_GASES
 from .verdict import FAIL, PASS, UNKNOWN
 
 __all__ = ["Stay", "CriterionExposure", "OccupantExposure", "occupant_stays", "occupant_exposure",
-           "INSTANT_CRITERIA", "BLOCK_ELEMENTS", "PERSON_BLOCK_ELEMENTS", "FIGURE_DRAWS"]
+           "assemble_exposures", "INSTANT_CRITERIA", "BLOCK_ELEMENTS", "PERSON_BLOCK_ELEMENTS", "FIGURE_DRAWS"]
 
 #: Criteria met at an instant (a limit on a value, not a dose).
 INSTANT_CRITERIA = ("temperature", "visibility", "heat_flux", "layer_height", "fec_irritant")
@@ -185,6 +185,8 @@ class OccupantExposure:
     exit_s: np.ndarray
     end_s: float
     outcomes: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int8))
+    #: (S,) end of each draw's data where draws end at different times (an ensemble); else None
+    end_each_s: np.ndarray | None = None
 
     @property
     def assessed(self) -> bool:
@@ -382,6 +384,59 @@ def occupant_exposure(route, prep: aset.Prepared, criteria: CriteriaSet, factors
             _block(run, prep, rows, stays, where, times, sl, present, inside, counts)
     results = {cid: (r.result() if isinstance(r, _Running) else r) for cid, r in results.items()}
     ex = OccupantExposure(results, stays, counts, exit_each[np.arange(S), counts - 1], end)
+    ex.outcomes = occupant_outcomes(ex, S)
+    return ex
+
+
+#: The per-draw (S,) arrays of a :class:`CriterionExposure`, in draw order.
+_PER_DRAW = ("worst", "any_exceeds", "any_undetermined", "share_exceeding", "worst_order", "worst_stay", "last",
+             "last_undetermined")
+
+
+def assemble_exposures(parts, S: int, stays: list[Stay], counts, exit_s, end_s: float,
+                       end_each_s=None) -> OccupantExposure:
+    """One exposure record over S draws from records on disjoint subsets of them.
+
+    Parameters
+    ----------
+    parts : list of (numpy.ndarray, OccupantExposure)
+        Draw indices (ascending, disjoint, together every draw) and the record evaluated
+        on those draws, in that order (an ensemble: each member's draws on its own
+        histories, :meth:`egressmargin.ensemble.Ensemble.occupant_exposure`).
+    S : int
+        Draws.
+    stays, counts, exit_s
+        Of the whole set of draws: every occupant's stays, the occupant count (S,) and
+        the last occupant's exit (S,) [s].
+    end_s : float
+        The latest end of data [s] (the wording of the verdict).
+    end_each_s : numpy.ndarray, optional
+        (S,) each draw's own end of data [s].
+
+    Returns
+    -------
+    OccupantExposure
+        Every per-draw array placed at its draws; each person's values for the figure
+        (the first :data:`FIGURE_DRAWS` draws) likewise; a criterion is assessed where
+        some part assesses it (draws of a part that does not are PASS for it); the
+        outcomes follow per draw (:func:`occupant_outcomes`).
+    """
+    F = min(S, FIGURE_DRAWS)
+    crits = {}
+    for cid, ce0 in parts[0][1].criteria.items():
+        N = ce0.persons.shape[1]
+        arrays = {name: np.zeros(S, getattr(ce0, name).dtype) for name in _PER_DRAW}
+        persons = np.full((F, N), np.nan)
+        for idx, ex in parts:
+            ce = ex.criteria[cid]
+            for name in _PER_DRAW:
+                arrays[name][idx] = getattr(ce, name)
+            k = int(np.count_nonzero(idx < F))        # ascending: the part's first k draws are below F
+            persons[idx[:k]] = ce.persons[:k]
+        assessed = any(ex.criteria[cid].assessed for _, ex in parts)
+        crits[cid] = CriterionExposure(cid, ce0.kind, ce0.limit, assessed, persons=persons, **arrays)
+    ex = OccupantExposure(crits, stays, np.asarray(counts), np.asarray(exit_s, float), float(end_s),
+                          end_each_s=None if end_each_s is None else np.asarray(end_each_s, float))
     ex.outcomes = occupant_outcomes(ex, S)
     return ex
 

@@ -454,8 +454,8 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     # the occupants take part in the verdict)
     keep_persons = True if study.acceptance_basis != "route-aset" else None
 
-    def egress_at(n: int, fac_n: dict):
-        return assess.scenario_egress(specs_here, prep, fac_n, [assess.egress_uniforms(seed, ri, n)
+    def egress_at(n: int, fac_n: dict, prep_n=prep):
+        return assess.scenario_egress(specs_here, prep_n, fac_n, [assess.egress_uniforms(seed, ri, n)
                                                                 for ri, _ in routes_here], study.elements,
                                       per_person=keep_persons)
 
@@ -463,8 +463,8 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     # raw deterministic margin: raw ASET against RSET at median inputs
     egress_med = assess.scenario_egress(specs_here, prep, {}, [assess.EgressDraws.median()] * len(specs_here),
                                         study.elements) if routes_here else None
-    more = _MoreSamples(table, prep, crit, seed, index, raw)
-    s_max = max(study.max_samples, S) if ens is None else S     # ensembles: `samples` draws (README)
+    more = _MoreSamples(table, prep, crit, seed, index, raw, ens)
+    s_max = max(study.max_samples, S)
     schedule = planned_looks(S, s_max)      # the sequential rule's planned looks (verdict.py)
     bigger: dict[int, object] = {}
     sensitivities = None
@@ -478,47 +478,56 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         # When the occupants take part in the verdict, their verdict is settled the same way.
         def draw_at(n: int, route=route):
             if n == S:
-                fac_n, loc_n, eg_n = factors, loc_aset, egress
+                fac_n, loc_n, eg_n, ens_n = factors, loc_aset, egress, ens
             else:
                 fac_n, loc_n = more.at(n)
+                ens_n = more.ensemble_at(n)           # an ensemble: members assigned to the n draws again
                 if n not in bigger:
                     bigger.clear()                                   # keep one count: memory
-                    bigger[n] = egress_at(n, fac_n)
+                    bigger[n] = egress_at(n, fac_n, prep if ens_n is None else prep.for_ensemble(ens_n))
                 eg_n = bigger[n]
             o = assess.outcome(route, prep, loc_n, raw_aset, governing_raw, eg_n.routes[route.id])
-            return o, eg_n, fac_n
+            return o, eg_n, fac_n, ens_n
 
         ex = v_occ = None
         for look, n in enumerate(schedule):
-            out, eg, fac_r = draw_at(n)
+            out, eg, fac_r, ens_r = draw_at(n)
+            end_r = end_v if ens_r is None else ens_r.end_per_draw
             if occupants_count:
-                ex, v_occ = _occupants(route, prep, crit, fac_r, n, eg, study.max_p_fail, s_max, schedule)
-            more_needed = (needs_more_samples(out.aset, out.rset, end_v, study.max_p_fail, looks=len(schedule))
+                ex, v_occ = _occupants(route, prep, crit, fac_r, n, eg, study.max_p_fail, s_max, schedule, ens_r)
+            more_needed = (needs_more_samples(out.aset, out.rset, end_r, study.max_p_fail, looks=len(schedule))
                            or (occupants_count and ex.assessed and exposure.unsettled(v_occ, study.max_p_fail)))
             if look == len(schedule) - 1 or not more_needed:
                 break
         s_used = n
         if ex is None and route.along_route:
-            ex, v_occ = _occupants(route, prep, crit, fac_r, s_used, eg, study.max_p_fail, s_max, schedule)
+            ex, v_occ = _occupants(route, prep, crit, fac_r, s_used, eg, study.max_p_fail, s_max, schedule, ens_r)
         margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])
         route_locs = [locations[prep.ids.index(loc)] for loc in route.exposed_at]
         assessed_any = any(c.get("status") == "assessed" for loc in route_locs for c in loc["criteria"].values())
-        v = decide(out.aset, out.rset, end_v, study.max_p_fail, assessed=assessed_any, max_samples=s_max,
+        v = decide(out.aset, out.rset, end_r, study.max_p_fail, assessed=assessed_any, max_samples=s_max,
                    looks=len(schedule), schedule=schedule)
         la = out.extras.get("location_aware")
-        v_la = None if la is None else decide(la.aset_s, la.leave_s, end_v, study.max_p_fail, assessed=assessed_any,
-                                              outcomes=worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end_v)),
+        v_la = None if la is None else decide(la.aset_s, la.leave_s, end_r, study.max_p_fail, assessed=assessed_any,
+                                              outcomes=worst_outcome(draw_outcomes(la.aset_s, la.leave_s, end_r)),
                                               looks=len(schedule), schedule=schedule)
         if sensitivities is None:          # every route's sweep in one flow run of the scenario
             sf, si, sa = sweep
             sensitivities = assess.scenario_sensitivity(specs_here, prep, sf, si, sa,
                                                         {k: _label(k) for k in si_keys(si)}, study.elements)
             indices = sensitivity_indices.scenario_indices(specs_here, prep, crit, ppfs, {k: _label(k) for k in ppfs},
-                                                           study.elements, end, seed, index, samples=S)
+                                                           study.elements, end, seed, index, samples=S, ensemble=ens)
+            if ens is not None and len(ens.specs) > 1:       # the fire run as one more row of the table
+                member_rows = ens.member_rows(ens.median_margins(specs_here, crit, sf, study.elements))
+                for rid, row in member_rows.items():
+                    rows_r = sensitivities[rid]
+                    rows_r.append(dict(row, base_margin_s=rows_r[0]["base_margin_s"] if rows_r else None,
+                                       lower_bound=bool(row["lower_bound_members"])))
+                    rows_r.sort(key=lambda r: -(r["swing_s"] if r["swing_s"] is not None else np.inf))
         v_route = v
         v = exposure.governing(study.acceptance_basis, v_route, v_occ)
         result = RouteResult(
-            route=route, outcome=out, flow=eg.routes[route.id], nodes=eg.nodes, end_s=end_v, margin_raw_s=margin_raw,
+            route=route, outcome=out, flow=eg.routes[route.id], nodes=eg.nodes, end_s=end_r, margin_raw_s=margin_raw,
             not_assessed=[{"location": loc["id"], "criterion": cid} for loc in route_locs
                           for cid in loc["not_assessed"]],
             partial=sorted({f"{cid} at {loc['id']}" for loc in route_locs
@@ -530,10 +539,10 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             route_aset_verdict=v_route, basis=study.acceptance_basis)
         entry = route_json(result)
         if ens is not None:
-            entry["by_member"] = ens.by_member(out.aset, out.rset)
+            entry["by_member"] = ens_r.by_member(out.aset, out.rset)
             if entry.get("along_route"):
                 entry["along_route"]["ensemble_note"] = ensemble.ALONG_ROUTE_NOTE
-        entry["draw_counts"] = design.counts_from_outcomes(draw_outcomes(out.aset, out.rset, end_v),
+        entry["draw_counts"] = design.counts_from_outcomes(draw_outcomes(out.aset, out.rset, end_r),
                                                            v.deterministic, assessed_any).as_results()
         if isinstance(entry.get("movement"), dict):      # the hand calculation validate --explain prints
             entry["movement"]["hand"] = egress_summary.hand_movement(route)
@@ -569,10 +578,12 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     return scenario, plot
 
 
-def _occupants(route, prep, crit, fac, S, eg, max_p_fail, s_max, schedule):
+def _occupants(route, prep, crit, fac, S, eg, max_p_fail, s_max, schedule, ens=None):
     """Every occupant's exposure on the route and the occupant-exposure verdict (its interval
-    corrected for the planned looks, as the route verdict's)."""
-    ex = exposure.occupant_exposure(route, prep, crit, fac, S, eg.routes[route.id])
+    corrected for the planned looks, as the route verdict's); an ensemble's draws each on
+    their own member (:meth:`egressmargin.ensemble.Ensemble.occupant_exposure`)."""
+    ex = (exposure.occupant_exposure(route, prep, crit, fac, S, eg.routes[route.id]) if ens is None
+          else ens.occupant_exposure(route, crit, fac, eg.routes[route.id]))
     return ex, exposure.occupant_verdict(ex, eg.routes[route.id].rset, max_p_fail, s_max, schedule=schedule)
 
 
@@ -598,17 +609,28 @@ def _limit_value(c):
 class _MoreSamples:
     """The scenario's ASET draws at a larger sample count, computed once per count."""
 
-    def __init__(self, table, prep, crit, seed, index, raw):
+    def __init__(self, table, prep, crit, seed, index, raw, ens=None):
         self.table, self.prep, self.crit, self.seed, self.index, self.raw = table, prep, crit, seed, index, raw
+        self.ens = ens                  # an ensemble: its members are assigned to the larger count again
         self.cache: dict[int, tuple[dict, np.ndarray]] = {}
+        self.ensembles: dict[int, object] = {}
 
     def at(self, S: int):
         if S not in self.cache:
             factors = draw_scenario_factors(self.table, self.prep, S, self.seed, self.index) if self.table else {}
-            res = (aset.evaluate(self.prep, self.crit, factors, S, with_bound=False) if factors
-                   else _repeat_draws(self.raw, S))
+            if self.ens is not None:
+                ens_n = self.ens.resized(S)
+                res = ens_n.evaluate(self.crit, factors, S, with_bound=False)    # each member on its own draws
+                self.ensembles = {S: ens_n}
+            else:
+                res = (aset.evaluate(self.prep, self.crit, factors, S, with_bound=False) if factors
+                       else _repeat_draws(self.raw, S))
             self.cache = {S: (factors, aset.location_aset(res))}    # keep one count: memory
         return self.cache[S]
+
+    def ensemble_at(self, S: int):
+        """The ensemble at S draws (None: one set of histories)."""
+        return self.ensembles.get(S) if self.ens is not None else None
 
 
 def _outside_range(table, prep, data, cid, li, raw_t, times, factors) -> str | None:

@@ -18,9 +18,12 @@ al. 2010 table 2, eq. (f)), with bootstrap 95 % intervals, all by SALib
 Usher 2017, Iwanaga et al. 2022). Checked against the Ishigami function's published
 indices in the tests.
 
-An extra input (e.g. an ensemble member chosen by weight) is one more
-:class:`UncertainInput` with its own ``kind``, mapped from its column in
-:func:`scenario_indices`.
+An extra input is one more :class:`UncertainInput` with its own ``kind``, mapped from
+its column in :func:`scenario_indices`. An ensemble scenario (several fire runs) has one:
+the ensemble member (``kind`` "member"), its uniform mapped to a member by the
+cumulative weights (:func:`egressmargin.ensemble.member_at`, the inverse transform the
+stratified assignment uses), each row's ASET, detector rules and end of data on its
+member.
 
 References
 ----------
@@ -87,7 +90,8 @@ class UncertainInput:
     kind : str
         "factor": ``key`` is a model-error table row; "egress": ``key`` is a stream of
         :class:`egressmargin.assess.EgressDraws` (``premovement.<parameter>`` for a
-        parameter) of route ``route``.
+        parameter) of route ``route``; "member": the ensemble member (fire run) of an
+        ensemble scenario.
     key : str
     route : int or None
         Index of the route (egress inputs).
@@ -226,7 +230,7 @@ def _sharing_groups(routes) -> list[set[int]]:
 
 def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, named, end_s: float, seed: int,
                      scenario_index: int, chunk: int = 4096, N: int = BASE_SAMPLES,
-                     samples: int | None = None) -> dict[str, dict]:
+                     samples: int | None = None, ensemble=None) -> dict[str, dict]:
     """Sobol' indices of every route's margin and failure indicator in one scenario.
 
     Parameters
@@ -249,6 +253,11 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
         Base samples (reduced by :func:`base_samples`).
     samples : int, optional
         The verdict's sample count: N is not larger (:func:`base_samples`).
+    ensemble : egressmargin.ensemble.Ensemble, optional
+        The scenario's fire runs (with ``prep`` its
+        :class:`egressmargin.ensemble.MemberPrep`): with two members or more, the member
+        is one more input, and each row's ASET (unchunked), detector rules and end of
+        data are its member's.
 
     Returns
     -------
@@ -272,6 +281,9 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
     from .verdict import PASS, draw_outcomes
 
     inputs = uncertain_inputs(routes, factor_ppfs, labels)
+    if ensemble is not None and len(ensemble.specs) > 1:
+        from .ensemble import MEMBER_INPUT
+        inputs.append(UncertainInput(MEMBER_INPUT, "member", "member"))
     D = len(inputs)
     method = {"method": METHOD, "base_samples": 0, "evaluations": 0, "inputs": D,
               "bootstrap_resamples": BOOTSTRAP_RESAMPLES,
@@ -302,14 +314,21 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
             d.parameters = {**d.parameters, x.key.split(".", 1)[1]: U[:, j]}
         else:
             setattr(d, x.key, U[:, j])
-    if factors:
+    jm = next((j for j, x in enumerate(inputs) if x.kind == "member"), None)
+    if jm is not None:                  # each row on its own member (inverse transform of the weights)
+        from .ensemble import member_at
+        ens_rows = ensemble.with_members(member_at(ensemble.probabilities, U[:, jm]))
+        loc_aset = aset.location_aset(ens_rows.evaluate(criteria, factors, R, with_bound=False))
+        prep = prep.for_ensemble(ens_rows)          # detector rules read each row's own member
+        end_s = ens_rows.end_per_draw
+    elif factors:
         loc_aset = np.concatenate(
             [aset.location_aset(aset.evaluate(prep, criteria, {k: v[a:a + chunk] for k, v in factors.items()},
                                               min(chunk, R - a), with_bound=False)) for a in range(0, R, chunk)],
             axis=1)
     else:
         loc_aset = np.repeat(aset.location_aset(aset.evaluate(prep, criteria, {}, 1, with_bound=False)), R, axis=1)
-    eg = assess.scenario_egress(routes, prep, factors, draws, named)
+    eg = assess.scenario_egress(routes, prep, factors, draws, named, per_person=False)   # margins only
     groups = _sharing_groups(routes)
     out = {}
     for i, route in enumerate(routes):

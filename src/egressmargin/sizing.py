@@ -23,6 +23,17 @@ routes of a scenario at once. A scenario whose routes carry P occupants in all a
 
 (``scenarios`` entries may give P as a fourth number; without it the term is zero). For
 an occupant count given as a distribution, P uses :func:`occupant_count_bound`.
+
+Every occupant's exposure (routes with ``exposure: along-route``, or every route when
+``acceptance.basis`` is ``occupants`` or ``both``) needs the flow model's per-person times
+of every path element kept (``egress/flow.py`` ``ElementPass.arrive_each_s``,
+``pass_each_s``, ``leave_each_s``: about two new (samples, occupants) arrays per element)
+and works through them in blocks. A kept route of P_r occupants and E_r path elements adds
+
+    S * P_r * E_r * BYTES_PER_SAMPLE_OCCUPANT_ELEMENT
+      + E_r * min(S * P_r, exposure.PERSON_BLOCK_ELEMENTS) * 8 * EXPOSURE_ARRAYS_PER_ELEMENT
+
+(``scenarios`` entries give the kept routes' (P_r, E_r) pairs as a fifth item).
 """
 
 from __future__ import annotations
@@ -45,6 +56,18 @@ BYTES_PER_SAMPLE_ROUTE = 512
 #: start times spread across occupants or not, along-route exposure or not; rounded up
 #: to 8 float64 values).
 BYTES_PER_SAMPLE_OCCUPANT = 64
+#: Bytes per sample, occupant and path element of the per-person times kept for the
+#: exposure (project measurement, ``bench/memory_per_person.py``: with along-route exposure
+#: and 2500 occupants, going from 1 to 8 corridors raised the peak resident memory of
+#: `run --no-pdf` by 344 MB at 400 samples and 452 MB at 800: 15.4 B per sample x
+#: occupant x element, two float64 arrays per element; without exposure 2.3 B). Rounded up
+#: to 2 float64 values.
+BYTES_PER_SAMPLE_OCCUPANT_ELEMENT = 16
+#: The exposure's working arrays per path element, each of one block of
+#: min(samples x occupants, exposure.PERSON_BLOCK_ELEMENTS) float64 (the same measurement:
+#: the part that does not grow with the samples, 236 MB over 7 elements of 4 MB blocks,
+#: is 8.5 such arrays per element; project choice: rounded up to 10).
+EXPOSURE_ARRAYS_PER_ELEMENT = 10
 #: The sensitivity sweep draws the occupant count 10 % higher (assess.py: a +/-10 % sweep).
 OCCUPANT_SWEEP = 1.1
 #: Copies of a location's series held at once (raw, corrected, running maxima, dose
@@ -59,8 +82,10 @@ def estimate_bytes(samples: int, scenarios) -> int:
     ----------
     samples : int
         The most Monte Carlo samples a run may draw [-].
-    scenarios : iterable of (int, int, int)
-        Per scenario: locations, routes assessed on it, and rows of its histories.
+    scenarios : iterable of tuples
+        Per scenario: locations, routes assessed on it, rows of its histories; optionally
+        the occupants of its routes (fourth) and the (occupants, path elements) of each
+        route whose per-person times are kept for the exposure (fifth).
 
     Examples
     --------
@@ -76,7 +101,31 @@ def estimate_bytes(samples: int, scenarios) -> int:
         occupants = shape[3] if len(shape) > 3 else 0
         total += int(samples) * (locations * BYTES_PER_SAMPLE_LOCATION + routes * BYTES_PER_SAMPLE_ROUTE)
         total += int(samples) * int(occupants) * BYTES_PER_SAMPLE_OCCUPANT
+        total += kept_bytes(samples, shape[4] if len(shape) > 4 else ())
         total += locations * rows * 8 * SERIES_COPIES
+    return total
+
+
+def kept_bytes(samples: int, kept) -> int:
+    """Bytes of the per-person times kept for the exposure and of the exposure's blocks.
+
+    ``kept``: (occupants, path elements) of each route whose per-person times are kept.
+
+    Examples
+    --------
+    1000 occupants through 3 elements over 2000 draws: 2000 * 1000 * 3 * 16 bytes kept
+    plus 3 blocks of 500 000 values * 8 bytes * 10 arrays = 96 MB + 120 MB.
+
+    >>> kept_bytes(2000, [(1000, 3)])
+    216000000
+    """
+    from .exposure import PERSON_BLOCK_ELEMENTS
+
+    total = 0
+    for occupants, elements in kept:
+        sn = int(samples) * int(occupants)
+        total += sn * int(elements) * BYTES_PER_SAMPLE_OCCUPANT_ELEMENT
+        total += int(elements) * min(sn, PERSON_BLOCK_ELEMENTS) * 8 * EXPOSURE_ARRAYS_PER_ELEMENT
     return total
 
 

@@ -1660,7 +1660,8 @@ def data_problems(study: Study, data: dict, samples: int | None = None) -> list[
     def shapes_at(n_samples):
         return [(len(d.location_ids), sum(1 for r in study.routes if r.scenarios is None or sid in r.scenarios),
                  len(d.t_s), sum(occupant_count_bound(r.occupants_dist or {"fixed": float(r.occupants)}, n_samples)
-                                 for r in study.routes if r.scenarios is None or sid in r.scenarios))
+                                 for r in study.routes if r.scenarios is None or sid in r.scenarios),
+                 _kept_persons(study, sid, n_samples))
                 for sid, d in data.items()]
     shapes = shapes_at(drawn)
     # Every scenario keeps its `samples` draws to the end; the extra draws that settle a
@@ -1682,6 +1683,25 @@ def data_problems(study: Study, data: dict, samples: int | None = None) -> list[
     return problems
 
 
+def _kept(study: Study, route) -> bool:
+    """Whether the route's per-person times are kept for every occupant's exposure."""
+    return bool(route.along_route) or getattr(study, "acceptance_basis", "route-aset") != "route-aset"
+
+
+def _kept_persons(study: Study, sid: str, n_samples: int) -> tuple:
+    """(occupants as drawn, path elements) of each route of scenario ``sid`` whose per-person
+    times the flow model keeps (:func:`egressmargin.sizing.kept_bytes`). An ensemble scenario
+    counts the elements twice: each member's exposure works on a copy of its draws' times
+    (``ensemble._take``), up to every draw for a member of large weight."""
+    from .sizing import occupant_count_bound
+
+    spec = next((sc for sc in study.scenarios if sc.id == sid), None)
+    copies = 2 if spec is not None and getattr(spec, "ensemble", None) else 1
+    return tuple((occupant_count_bound(r.occupants_dist or {"fixed": float(r.occupants)}, n_samples),
+                  len(r.path) * copies)
+                 for r in study.routes if (r.scenarios is None or sid in r.scenarios) and _kept(study, r))
+
+
 def _occupant_memory_problem(study: Study, n_samples: int, shapes, key: str, cli_samples) -> Problem | None:
     """The memory problem located at the occupant count of the largest route, when the flow
     model's (samples x occupants) arrays are at least half of what the run needs; else None.
@@ -1691,12 +1711,12 @@ def _occupant_memory_problem(study: Study, n_samples: int, shapes, key: str, cli
     largest count of that route that fits with everything else unchanged, and the most
     samples that fit with the counts unchanged.
     """
-    from .sizing import (BYTES_PER_SAMPLE_OCCUPANT, OCCUPANT_SWEEP, available_memory, estimate_bytes,
-                         format_bytes, occupant_count_bound)
+    from .sizing import (BYTES_PER_SAMPLE_OCCUPANT, BYTES_PER_SAMPLE_OCCUPANT_ELEMENT, OCCUPANT_SWEEP,
+                         available_memory, estimate_bytes, format_bytes, occupant_count_bound)
 
     available, total = available_memory()
     need = estimate_bytes(n_samples, shapes)
-    occupant_bytes = sum(n_samples * sh[3] * BYTES_PER_SAMPLE_OCCUPANT for sh in shapes)
+    occupant_bytes = need - estimate_bytes(n_samples, [sh[:3] for sh in shapes])   # flow model and kept times
     if available is None or not study.routes or occupant_bytes * 2 < need \
             or need - occupant_bytes > available:       # too many samples whatever the counts: say so at samples
         return None
@@ -1706,10 +1726,13 @@ def _occupant_memory_problem(study: Study, n_samples: int, shapes, key: str, cli
     # bytes per occupant of this route: it counts once in every scenario it is assessed on (of those sized)
     n_scen = min(len(shapes), max(1, sum(1 for sc in study.scenarios
                                          if route.scenarios is None or sc.id in route.scenarios)))
-    per_occupant = n_scen * n_samples * BYTES_PER_SAMPLE_OCCUPANT * OCCUPANT_SWEEP
-    rest = need - n_scen * n_samples * bounds[route.id] * BYTES_PER_SAMPLE_OCCUPANT
+    # the route's own per-occupant bytes: the flow model's, and its kept per-person times per element
+    b_route = BYTES_PER_SAMPLE_OCCUPANT + (BYTES_PER_SAMPLE_OCCUPANT_ELEMENT * len(route.path)
+                                           if _kept(study, route) else 0)
+    per_occupant = n_scen * n_samples * b_route * OCCUPANT_SWEEP
+    rest = need - n_scen * n_samples * bounds[route.id] * b_route
     fits = max(int((available - rest) // per_occupant), 0)
-    while fits > 0 and rest + n_scen * n_samples * BYTES_PER_SAMPLE_OCCUPANT * occupant_count_bound(
+    while fits > 0 and rest + n_scen * n_samples * b_route * occupant_count_bound(
             {"fixed": float(fits)}, n_samples) > available:       # the bound rounds up: step down to what fits
         fits -= 1
     fixed = estimate_bytes(0, shapes)
@@ -1732,7 +1755,10 @@ def _occupant_memory_problem(study: Study, n_samples: int, shapes, key: str, cli
     paren = "" if samples_words == "samples" else f" ({samples_words})"
     return Problem(where, f"{count} on route '{route.id}' with {n_samples} samples{paren} need about "
                           f"{format_bytes(need)} of memory: the flow model follows every occupant in every draw "
-                          f"(counted 10 % high for the sensitivity sweep); this machine has "
+                          f"(counted 10 % high for the sensitivity sweep)"
+                          + (f" and keeps their times at each of the route's {len(route.path)} path elements for "
+                             "their exposure" if _kept(study, route) else "")
+                          + f"; this machine has "
                           f"{format_bytes(available)} available{whole}; expected {limit}"
                           + (f", or {samples_words} at most about {most_samples} with these counts" if most_samples
                              else " (no number of samples fits these counts)"))
