@@ -253,3 +253,28 @@ def test_stair_just_outside_the_table_within_one_inch_is_accepted(kit, make_stud
     status, _, err = cli(["validate", make_study(kit.study.replace("riser: 178 mm, tread: 279 mm",
                                                                    "riser: 150 mm, tread: 300 mm"))])
     assert status == 0, err
+
+
+# ------------------------------------------------------------------ the report
+
+def test_report_lists_findings_where_routes_pass_and_the_acknowledged_ones(kit, make_study, cli, tmp_path):
+    """A finding at a location a route passes is in the report's summary (it bears on a verdict);
+    an acknowledged one is printed with the inputs, not as a warning (issue 20)."""
+    study = make_study(csv=_csv(kit, "O2_hall [percent]", lambda t: 0.209 - 0.00005 * t))
+    out = tmp_path / "out"
+    status, _, err = cli(["run", study, "--no-pdf", "--html", "--quiet", "--out", out, "--samples", "20"])
+    assert status == 0, err
+    html = (out / "report.html").read_text(encoding="utf-8")
+    summary = html[html.index('id="summary"'):html.index('id="basis"')]
+    assert "Inputs that look implausible where the routes pass" in summary
+    assert "north-stair" in summary and "o2-fraction-as-percent" in summary
+
+    text = kit.study.replace("        extinction: K_hall\n",
+                             "        extinction: K_hall\n        accept_warnings: [o2-fraction-as-percent]\n")
+    acked = make_study(text, _csv(kit, "O2_hall [percent]", lambda t: 0.209 - 0.00005 * t), name="acked.yaml")
+    out2 = tmp_path / "out2"
+    status, _, err = cli(["run", acked, "--no-pdf", "--html", "--quiet", "--out", out2, "--samples", "20"])
+    assert status == 0, err
+    html = (out2 / "report.html").read_text(encoding="utf-8")
+    assert "Inputs that look implausible where the routes pass" not in html
+    assert "Plausibility findings acknowledged by the study" in html and "o2-fraction-as-percent" in html

@@ -440,6 +440,7 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
         "design": design,
     }
     ctx.update(_submittal_view(results, scenarios, generated))
+    ctx.update(_plausibility_view(results))
     return ctx
 
 
@@ -509,6 +510,39 @@ STUDY_BASIS_LABELS: dict[str, str] = {
 }
 FIRE_MODEL_LABELS: dict[str, str] = {"name": "name", "version": "version", "grid": "grid"}
 NOT_STATED = "not stated"
+
+
+def _plausibility_view(results: Mapping[str, Any]) -> dict[str, Any]:
+    """The plausibility screen's findings (results.json ``plausibility``) as the report shows them.
+
+    ``plausibility_bearing``: findings not acknowledged at a location some route of the
+    scenario passes (``exposed_at`` or ``start_at``), or about the whole scenario, each with the
+    routes concerned, for the summary (they bear on a verdict); ``plausibility_acknowledged``:
+    findings the study acknowledged (``accept_warnings``), printed with the inputs so that a
+    reader sees what was accepted.
+    """
+    found = [f for f in results.get("plausibility") or [] if isinstance(f, Mapping)]
+    routes_at: dict[tuple, list[str]] = {}
+    for sc in results.get("scenarios") or []:
+        for rt in sc.get("routes") or []:
+            places = list(rt.get("exposed_at") or [])
+            start = (rt.get("inputs") or {}).get("start_at")
+            if start and start != "-":
+                places.append(start)
+            for loc in places:
+                routes_at.setdefault((sc.get("id"), loc), [])
+                if rt.get("id") not in routes_at[(sc.get("id"), loc)]:
+                    routes_at[(sc.get("id"), loc)].append(rt.get("id"))
+            routes_at.setdefault((sc.get("id"), None), []).append(rt.get("id"))
+    bearing = []
+    for f in found:
+        if f.get("acknowledged"):
+            continue
+        routes = routes_at.get((f.get("scenario"), f.get("location")), [])
+        if routes:
+            bearing.append({**f, "routes": routes})
+    return {"plausibility_bearing": bearing,
+            "plausibility_acknowledged": [f for f in found if f.get("acknowledged")]}
 
 
 def _submittal_view(results: Mapping[str, Any], scenarios: list, generated: Any) -> dict[str, Any]:
