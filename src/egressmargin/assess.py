@@ -418,19 +418,22 @@ def location_aware(route: RouteSpec, egress: RouteEgress, loc_aset: np.ndarray, 
 
 
 def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: int, egress: RouteEgress,
-                     exposure=None) -> dict:
-    """Dose received by the last occupant on the way out, per FED criterion.
+                     exposure) -> dict:
+    """Dose received on the way out, per dose criterion: the last occupant's and every occupant's.
 
-    The dose follows :func:`location_history`: at ``start_at`` during detection, alarm
-    and pre-movement, then at each element's location while queuing for it and walking
-    it. Dose at a location is the increase of that location's cumulative dose over the
-    stay (trapezoidal rule on the histories' grid, as for the location ASET).
+    The last occupant's stays follow :func:`location_history`: at ``start_at`` during
+    detection, alarm and pre-movement, then at each element's locations while waiting to
+    enter it and walking it. The doses come from ``exposure``
+    (:class:`egressmargin.exposure.OccupantExposure`, every person's own doses: Purser's
+    "or" on the person's own two doses): every dose criterion of the set is listed
+    (hypoxia included), each with the last occupant's percentiles and the ``occupants``
+    block; the instantaneous limits met while present are listed under ``instantaneous``.
+    ``factors`` and ``S`` are the draws the exposure was computed on.
 
-    With ``exposure`` (:class:`egressmargin.exposure.OccupantExposure`) every dose
-    criterion of the set is listed (hypoxia included), the last occupant's dose is
-    that person's own (Purser's "or" on their own two doses) and each criterion gains
-    the ``occupants`` block; the instantaneous limits met while present are listed
-    under ``instantaneous``.
+    Where the last occupant is still inside when the histories end and the limit is not yet
+    reached, the dose is not determined (conditions after the end are unknown): such draws
+    count as exceeding in ``exceeds_p`` (the conservative reading) and make the percentiles
+    they touch null, never a dose that looks within the limit.
     """
     history = location_history(route, egress)
     exit_t = egress.flow.exit_s
@@ -438,7 +441,7 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
     rows = np.array([prep.ids.index(x) for x in locs])
     end = prep.t_s[-1]
     out = {}
-    for cid in (aset.DOSE_CRITERIA if exposure is not None else ("fed_toxic", "fed_heat")):
+    for cid in aset.DOSE_CRITERIA:
         c = criteria.items.get(cid)
         if c is None:
             continue
@@ -446,51 +449,24 @@ def along_route_dose(route: RouteSpec, prep, criteria: CriteriaSet, factors, S: 
         if not ok[rows].any():
             out[cid] = {"status": "not assessed", "limit": c.limit}
             continue
-        if exposure is not None:
-            ce = exposure.criteria[cid]
-            dose, undetermined = ce.last, ce.last_undetermined
-            summary = summarise(np.where(undetermined, np.nan, dose), 4)
-            exceeds = dose >= c.limit
-            out[cid] = {"status": "assessed", "limit": c.limit, **summary,
-                        "exceeds_p": share(exceeds | undetermined),
-                        "exceeds_p_bounds": {"low": share(exceeds), "high": share(exceeds | undetermined)},
-                        "share_undetermined": share(undetermined),
-                        "within_limit_at_p95": summary["p95"] is not None and summary["p95"] < c.limit,
-                        "occupants": occupants_json(ce, exposure, egress.rset)}
-            continue
-        fld = aset.dose_field(prep, c, factors, S, rows)
-        dose = np.zeros(S)
-        for h in history:
-            j = locs.index(h.location)
-            t_in = np.where(np.isfinite(h.t_in), h.t_in, end)
-            t_out = np.where(np.isfinite(h.t_out), h.t_out, end)
-            times_in, times_out = np.zeros((S, len(rows))), np.zeros((S, len(rows)))
-            times_in[:, j], times_out[:, j] = t_in, t_out
-            d = fld.at_times(times_out) - fld.at_times(times_in)
-            dose += np.where(ok[rows][j], d[:, j], 0.0)
-        # Where the last occupant is still inside when the histories end and the limit is not
-        # yet reached, the dose is not determined (conditions after the end are unknown): such
-        # draws are counted as exceeding in exceeds_p (the conservative reading) and make the
-        # percentiles they touch null, never a dose that looks within the limit.
-        undetermined = (exit_t > end) & ~(dose >= c.limit)
+        ce = exposure.criteria[cid]
+        dose, undetermined = ce.last, ce.last_undetermined
         summary = summarise(np.where(undetermined, np.nan, dose), 4)
         exceeds = dose >= c.limit
         out[cid] = {"status": "assessed", "limit": c.limit, **summary,
                     "exceeds_p": share(exceeds | undetermined),
                     "exceeds_p_bounds": {"low": share(exceeds), "high": share(exceeds | undetermined)},
                     "share_undetermined": share(undetermined),
-                    "within_limit_at_p95": summary["p95"] is not None and summary["p95"] < c.limit}
-    if exposure is not None and exposure.end_each_s is not None:
+                    "within_limit_at_p95": summary["p95"] is not None and summary["p95"] < c.limit,
+                    "occupants": occupants_json(ce, exposure, egress.rset)}
+    if exposure.end_each_s is not None:
         end = exposure.end_each_s            # an ensemble: each draw's own member's end
     beyond = share(exit_t > end)
     placed = element_places(route)
-    extra = {}
-    if exposure is not None:
-        extra["instantaneous"] = {
-            cid: ({"status": "assessed", "limit": ce.limit, "occupants": occupants_json(ce, exposure, egress.rset)}
-                  if ce.assessed else {"status": "not assessed", "limit": ce.limit})
-            for cid, ce in exposure.criteria.items() if ce.kind == "instant"}
-        extra["occupants_note"] = OCCUPANTS_NOTE
+    extra = {"instantaneous": {
+        cid: ({"status": "assessed", "limit": ce.limit, "occupants": occupants_json(ce, exposure, egress.rset)}
+              if ce.assessed else {"status": "not assessed", "limit": ce.limit})
+        for cid, ce in exposure.criteria.items() if ce.kind == "instant"}, "occupants_note": OCCUPANTS_NOTE}
     return {"criteria": out, **extra, "last_occupant_exit_s": summarise(exit_t, 1),
             "share_beyond_end": beyond,
             "history": [{"location": h.location, "what": h.what, "from_s": summarise(h.t_in, 1),
