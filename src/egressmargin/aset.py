@@ -366,6 +366,8 @@ def _dose_grid(prep: Prepared, criterion: Criterion, names, fac: dict, varying: 
     """
     key = (criterion.id, tuple(sorted(criterion.params.items())), rows.tobytes())
     cached = prep.dose_grids.get(key)
+    if cached is None:
+        cached = _grid_of_superset(prep, key, rows)
     if cached is not None:
         grid, c_vary, c_nodes, c_fixed = cached
         fits = True
@@ -388,6 +390,23 @@ def _dose_grid(prep: Prepared, criterion: Criterion, names, fac: dict, varying: 
         grid[m] = cumulative_dose(criterion, prep.t_s, corrected_inputs(prep, names, f, rows), grid.shape[1:])
     prep.dose_grids[key] = (grid, varying, nodes, fixed)
     return prep.dose_grids[key]
+
+
+def _grid_of_superset(prep: Prepared, key: tuple, rows: np.ndarray):
+    """A cached grid of the same criterion over more locations, cut to ``rows``; None if none.
+
+    A location's curves on the grid do not depend on the other locations, so the cut is
+    the grid these rows would get at the same nodes (an evaluation of a few locations,
+    e.g. the routes' for the Sobol' design, reuses the scenario's grid).
+    """
+    for (cid, params, rb), (grid, vary, nodes, fixed) in prep.dose_grids.items():
+        if (cid, params) != key[:2] or rb == key[2]:
+            continue
+        have = np.frombuffer(rb, dtype=rows.dtype)
+        pos = np.searchsorted(have, rows)
+        if pos.size and pos.max() < have.size and np.array_equal(have[pos], rows):
+            return grid[:, pos], vary, nodes, fixed
+    return None
 
 
 def dose_field(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
@@ -754,8 +773,10 @@ class CriterionResult:
 
 
 def criterion_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
-                    with_bound: bool = True) -> CriterionResult:
+                    with_bound: bool = True, only: np.ndarray | None = None) -> CriterionResult:
     ok, missing = status(prep, criterion)
+    if only is not None:      # locations nobody asks about are left out (NaN times, not assessed)
+        ok = ok & only
     if criterion.id in DOSE_CRITERIA:
         times, bound = dose_times(prep, criterion, factors, S, ok, with_bound)
         return CriterionResult(times, ok, missing, bound, ok & partial(prep, criterion))
@@ -765,9 +786,14 @@ def criterion_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.
 
 
 def evaluate(prep: Prepared, criteria: CriteriaSet, factors: dict[str, np.ndarray], S: int,
-             with_bound: bool = True) -> dict[str, CriterionResult]:
-    """Every criterion's (L, S) times for the given factor samples."""
-    return {cid: criterion_times(prep, c, factors, S, with_bound) for cid, c in criteria.items.items()}
+             with_bound: bool = True, only: np.ndarray | None = None) -> dict[str, CriterionResult]:
+    """Every criterion's (L, S) times for the given factor samples.
+
+    ``only`` (L,) bool, optional: evaluate these locations only; the others get NaN times
+    and count as not assessed (for callers that read a few locations, e.g. the routes').
+    A location's times do not depend on which other locations are evaluated.
+    """
+    return {cid: criterion_times(prep, c, factors, S, with_bound, only) for cid, c in criteria.items.items()}
 
 
 def location_aset(results: dict[str, CriterionResult]) -> np.ndarray:

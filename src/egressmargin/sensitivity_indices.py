@@ -40,6 +40,8 @@ analysis. Journal of Open Source Software 2(9), 97.
 
 from __future__ import annotations
 
+import dataclasses
+
 import warnings
 from dataclasses import dataclass
 
@@ -302,13 +304,20 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
             d.parameters = {**d.parameters, x.key.split(".", 1)[1]: U[:, j]}
         else:
             setattr(d, x.key, U[:, j])
+    # only the locations a route is exposed at enter a margin: the others are not evaluated;
+    # the design reads the scenario's cached dose grids and keeps its own out of them
+    exposed = {x for r in routes for x in r.exposed_at}
+    used = np.array([lid in exposed for lid in prep.ids], bool)
+    if isinstance(prep, aset.Prepared):
+        prep = dataclasses.replace(prep, dose_grids=dict(prep.dose_grids))
     if factors:
         loc_aset = np.concatenate(
             [aset.location_aset(aset.evaluate(prep, criteria, {k: v[a:a + chunk] for k, v in factors.items()},
-                                              min(chunk, R - a), with_bound=False)) for a in range(0, R, chunk)],
-            axis=1)
+                                              min(chunk, R - a), with_bound=False, only=used))
+             for a in range(0, R, chunk)], axis=1)
     else:
-        loc_aset = np.repeat(aset.location_aset(aset.evaluate(prep, criteria, {}, 1, with_bound=False)), R, axis=1)
+        loc_aset = np.repeat(aset.location_aset(aset.evaluate(prep, criteria, {}, 1, with_bound=False, only=used)),
+                             R, axis=1)
     eg = assess.scenario_egress(routes, prep, factors, draws, named)
     groups = _sharing_groups(routes)
     out = {}
