@@ -364,21 +364,10 @@ def _dose_grid(prep: Prepared, criterion: Criterion, names, fac: dict, varying: 
     The grid spans the Monte Carlo samples; the sensitivity rows (medians, 5th and 95th
     percentiles) and the along-route dose fall inside that span and reuse it.
     """
-    key = (criterion.id, tuple(sorted(criterion.params.items())), rows.tobytes())
-    cached = prep.dose_grids.get(key)
-    if cached is None:
-        cached = _grid_of_superset(prep, key, rows)
+    cached = _fitting_grid(prep, criterion, names, fac, rows)
     if cached is not None:
-        grid, c_vary, c_nodes, c_fixed = cached
-        fits = True
-        for q in names:
-            lo, hi = float(fac[q].min()), float(fac[q].max())
-            if q in c_nodes:
-                fits &= c_nodes[q][0] <= lo and hi <= c_nodes[q][-1]
-            else:
-                fits &= lo == hi == c_fixed[q]
-        if fits:
-            return cached
+        return cached
+    key = (criterion.id, tuple(sorted(criterion.params.items())), rows.tobytes())
     k = len(varying)
     G = (3 if _linear_in(criterion, varying) else GRID_NODES.get(k, 4)) if k else 1
     nodes = {q: np.linspace(fac[q].min(), fac[q].max(), G) for q in varying}
@@ -390,6 +379,25 @@ def _dose_grid(prep: Prepared, criterion: Criterion, names, fac: dict, varying: 
         grid[m] = cumulative_dose(criterion, prep.t_s, corrected_inputs(prep, names, f, rows), grid.shape[1:])
     prep.dose_grids[key] = (grid, varying, nodes, fixed)
     return prep.dose_grids[key]
+
+
+def _fitting_grid(prep: Prepared, criterion: Criterion, names, fac: dict, rows: np.ndarray):
+    """The cached grid of ``rows`` (or cut from one over more locations) whose nodes span ``fac``; else None."""
+    key = (criterion.id, tuple(sorted(criterion.params.items())), rows.tobytes())
+    cached = prep.dose_grids.get(key)
+    if cached is None:
+        cached = _grid_of_superset(prep, key, rows)
+    if cached is None:
+        return None
+    grid, c_vary, c_nodes, c_fixed = cached
+    fits = True
+    for q in names:
+        lo, hi = float(fac[q].min()), float(fac[q].max())
+        if q in c_nodes:
+            fits &= c_nodes[q][0] <= lo and hi <= c_nodes[q][-1]
+        else:
+            fits &= lo == hi == c_fixed[q]
+    return cached if fits else None
 
 
 def _grid_of_superset(prep: Prepared, key: tuple, rows: np.ndarray):
@@ -706,8 +714,16 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
         out[rows_all] = _exact_all_draws(prep, criterion, fac, rows_all, S)
         bound[rows_all] = 0.0
         return out, (bound if with_bound else None)
+    nodes = 3 if _linear_in(criterion, varying) else GRID_NODES[1]
     for start in range(0, rows_all.size, chunk):
         rows = rows_all[start:start + chunk]
+        if k == 1 and S <= nodes and _fitting_grid(prep, criterion, names, fac, rows) is None:
+            # Few draws and no grid to reuse (an ensemble member's share of the draws):
+            # integrating each draw exactly costs no more than building the grid would.
+            out[rows] = _exact_all_draws(prep, criterion, fac, rows, S)
+            bound[rows] = 0.0
+            single = False
+            continue
         fld = dose_field(prep, criterion, factors, S, rows)
         if fld.grid.shape[0] == 1:
             out[rows] = np.repeat(node_crossings(prep.t_s, fld.grid, criterion.limit), S, axis=0).T

@@ -1,0 +1,80 @@
+"""Shortcuts of the engine that must not change a result: checked against the full evaluation.
+
+* ``aset.evaluate(..., only=mask)`` evaluates a few locations (the Sobol' design reads the
+  routes' locations only): their times equal those of the evaluation of every location.
+* A grid cached for more locations is cut to fewer (the locations' curves on a grid do not
+  depend on each other): the times equal those of a fresh grid over the same nodes.
+* A handful of draws with no grid to reuse (an ensemble member's share) is integrated
+  exactly: every draw equals a per-draw loop (trapezoidal rule, first crossing), bound 0.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from egressmargin import aset
+from egressmargin.criteria import CriteriaSet, Criterion
+from egressmargin.histories import ScenarioData
+from egressmargin.tenability.crossing import first_crossing
+
+
+def _data(L: int = 6, N: int = 601, seed: int = 3):
+    rng = np.random.default_rng(seed)
+    t = np.linspace(0.0, 1200.0, N)
+    grow = (t / t[-1])[None, :] ** rng.uniform(1.0, 2.5, (L, 1))
+    series = {"temperature": 20.0 + rng.uniform(60, 220, (L, 1)) * grow,
+              "co": rng.uniform(800, 5000, (L, 1)) * 1e-6 * grow}
+    return ScenarioData("s", t, [f"l{i}" for i in range(L)], series, {k: np.ones(L, bool) for k in series})
+
+
+def _crit() -> CriteriaSet:
+    return CriteriaSet("t", "", ["t"], {
+        "temperature": Criterion("temperature", 60.0, "60 degC", "degC"),
+        "fed_toxic": Criterion("fed_toxic", 0.3, "0.3", "-", {"method": "iso13571"}),
+        "fed_heat": Criterion("fed_heat", 0.3, "0.3", "-", {"radiant_threshold": 2.5})})
+
+
+def _factors(S: int, seed: int = 5) -> dict:
+    rng = np.random.default_rng(seed)
+    return {"temperature": np.exp(0.15 * rng.standard_normal(S)), "co": np.exp(0.3 * rng.standard_normal(S))}
+
+
+def test_only_some_locations_gives_their_times_unchanged():
+    crit, S = _crit(), 300
+    full = aset.evaluate(aset.prepare(_data(), crit), crit, _factors(S), S, with_bound=False)
+    mask = np.array([False, True, False, False, True, False])
+    part = aset.evaluate(aset.prepare(_data(), crit), crit, _factors(S), S, with_bound=False, only=mask)
+    for cid in crit.items:
+        np.testing.assert_array_equal(part[cid].times[mask], full[cid].times[mask])
+        assert np.all(np.isnan(part[cid].times[~mask]))
+        assert not part[cid].assessed[~mask].any()
+
+
+def test_grid_cut_from_more_locations_equals_a_fresh_grid():
+    crit, S = _crit(), 300
+    f = _factors(S)
+    fresh = aset.prepare(_data(), crit)
+    mask = np.array([True, False, False, True, True, False])
+    want = aset.evaluate(fresh, crit, f, S, with_bound=False, only=mask)      # grids over 3 rows
+    cached = aset.prepare(_data(), crit)
+    aset.evaluate(cached, crit, f, S)                                          # grids over all 6 rows
+    n_grids = len(cached.dose_grids)
+    got = aset.evaluate(cached, crit, f, S, with_bound=False, only=mask)      # cut from them
+    assert len(cached.dose_grids) == n_grids                                   # nothing rebuilt
+    for cid in crit.items:
+        np.testing.assert_array_equal(got[cid].times, want[cid].times)
+
+
+def test_few_draws_without_a_grid_are_integrated_exactly():
+    crit = _crit()
+    prep = aset.prepare(_data(), crit)
+    S = 7                                            # fewer draws than the 41 grid nodes
+    f = {"temperature": _factors(S)["temperature"]}  # one varying factor: the grid path otherwise
+    res = aset.evaluate(prep, crit, f, S)["fed_heat"]
+    assert not any(k[0] == "fed_heat" for k in prep.dose_grids)   # no heat grid was built
+    np.testing.assert_array_equal(res.grid_bound_s, np.zeros(prep.n_loc))
+    c = crit.items["fed_heat"]
+    for s in range(S):                               # per-draw loop: trapezoidal rule, first crossing
+        inputs = aset.corrected_inputs(prep, ["temperature"], {"temperature": float(f["temperature"][s])})
+        dose = aset.cumulative_dose(c, prep.t_s, inputs, (prep.n_loc, len(prep.t_s)))
+        np.testing.assert_allclose(res.times[:, s], first_crossing(prep.t_s, dose, c.limit), rtol=0, atol=1e-9)
