@@ -78,3 +78,28 @@ def test_few_draws_without_a_grid_are_integrated_exactly():
         inputs = aset.corrected_inputs(prep, ["temperature"], {"temperature": float(f["temperature"][s])})
         dose = aset.cumulative_dose(c, prep.t_s, inputs, (prep.n_loc, len(prep.t_s)))
         np.testing.assert_allclose(res.times[:, s], first_crossing(prep.t_s, dose, c.limit), rtol=0, atol=1e-9)
+
+
+def test_identical_series_prefilter_keeps_the_pairwise_findings():
+    """The screen's sampled prefilter must find exactly what numpy.allclose pair by pair finds."""
+    from egressmargin import plausibility
+
+    rng = np.random.default_rng(11)
+    base = rng.uniform(20.0, 300.0, 1801)
+    twin = base.copy()                               # identical
+    near = base.copy()
+    near[1] += 50.0                                  # equal at most samples, differs between probes
+    inf_a = base.copy()
+    inf_a[5] = np.inf                                # equal infinities count as close (numpy.isclose)
+    series = {"a": {"temperature": base}, "b": {"temperature": twin}, "c": {"temperature": near},
+              "d": {"temperature": inf_a}, "e": {"temperature": inf_a.copy()},
+              "f": {"temperature": np.full(1801, np.nan)}, "g": {"temperature": np.full(1801, np.nan)},
+              "h": {"temperature": base[:900]}}
+    got = sorted((f.location, f.message.split("location '")[1][0])
+                 for f in plausibility.duplicate_checks("s", {}, series) if f.code == "identical-series")
+    want = sorted((b, a) for i, a in enumerate(series) for b in list(series)[i + 1:]
+                  if series[a]["temperature"].shape == series[b]["temperature"].shape
+                  and np.allclose(series[a]["temperature"], series[b]["temperature"],
+                                  rtol=plausibility.IDENTICAL_RTOL, atol=0.0))
+    assert got == want
+    assert ("b", "a") in got and ("e", "d") in got and not any("c" in p for p in got)
