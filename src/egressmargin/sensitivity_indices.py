@@ -226,6 +226,57 @@ def _sharing_groups(routes) -> list[set[int]]:
     return [{j for j in range(len(routes)) if find(j) == find(i)} for i in range(len(routes))]
 
 
+def _design_rsets(routes, groups, inputs, U, prep, factors, draws, named) -> dict[str, np.ndarray]:
+    """(R,) RSET of every route at the design's rows, each group of routes run on its distinct rows only.
+
+    Routes that share no named element do not move each other, and a route's RSET reads
+    only its own egress inputs and, through a detector rule, the model-error factors. In
+    the Saltelli design the rows A_B^(j) of an input j that a group does not read repeat
+    row A for that group, so the flow model runs once per distinct row of the group's
+    columns and the RSETs are copied back to every row (the flow model works draw by
+    draw: the same RSETs as one run over all rows). An ensemble's reference member reads
+    detection per member where the draw count matches, so its design runs in one piece.
+    """
+    from . import aset, assess
+    from .study import DetectorRule
+
+    R = U.shape[0]
+    if not isinstance(prep, aset.Prepared):
+        eg = assess.scenario_egress(routes, prep, factors, draws, named)
+        return {r.id: eg.routes[r.id].rset for r in routes}
+    out = {}
+    for grp in {tuple(sorted(g)) for g in groups}:
+        detector = any(isinstance(routes[i].detection, DetectorRule) for i in grp)
+        cols = [j for j, x in enumerate(inputs)
+                if (x.kind == "egress" and x.route in grp) or (x.kind == "factor" and detector)]
+        if cols:
+            _, first, inverse = np.unique(U[:, cols], axis=0, return_index=True, return_inverse=True)
+            order = np.argsort(first)                  # keep the design's row order
+            rows = first[order]
+            back = np.empty_like(order)
+            back[order] = np.arange(order.size)
+            inverse = back[inverse.reshape(-1)]
+        else:
+            rows, inverse = np.zeros(1, int), np.zeros(R, int)
+        sub = [_draws_at(draws[i], rows) for i in grp]
+        eg = assess.scenario_egress([routes[i] for i in grp], prep, {k: v[rows] for k, v in factors.items()}, sub,
+                                    named)
+        for i in grp:
+            out[routes[i].id] = eg.routes[routes[i].id].rset[inverse]
+    return out
+
+
+def _draws_at(d, rows: np.ndarray):
+    """The egress uniforms of ``d`` (an :class:`egressmargin.assess.EgressDraws`) at ``rows``."""
+    def at(x):
+        return x if x is None or np.ndim(x) == 0 else np.asarray(x)[rows]
+
+    return dataclasses.replace(d, detection=at(d.detection), alarm=at(d.alarm), premovement=at(d.premovement),
+                               occupants=at(d.occupants), flow_factor=at(d.flow_factor),
+                               speed_factor=at(d.speed_factor),
+                               parameters={k: at(v) for k, v in d.parameters.items()})
+
+
 def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, named, end_s: float, seed: int,
                      scenario_index: int, chunk: int = 4096, N: int = BASE_SAMPLES,
                      samples: int | None = None) -> dict[str, dict]:
@@ -318,12 +369,12 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
     else:
         loc_aset = np.repeat(aset.location_aset(aset.evaluate(prep, criteria, {}, 1, with_bound=False, only=used)),
                              R, axis=1)
-    eg = assess.scenario_egress(routes, prep, factors, draws, named)
     groups = _sharing_groups(routes)
+    rsets = _design_rsets(routes, groups, inputs, U, prep, factors, draws, named)
     out = {}
     for i, route in enumerate(routes):
         a = assess.route_aset(loc_aset, prep.ids, route.exposed_at)
-        rset = eg.routes[route.id].rset
+        rset = rsets[route.id]
         fail = (draw_outcomes(a, rset, end_s) != PASS).astype(float)
         a_c = np.where(np.isfinite(a), a, end_s)
         margin = a_c - np.where(np.isfinite(rset), rset, end_s)
