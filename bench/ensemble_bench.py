@@ -6,17 +6,18 @@ Run from the repository root::
     python bench/ensemble_bench.py            # 200 members x 20 locations x 1801 rows x 2000 draws
     python bench/ensemble_bench.py --quick    # 12 members x 5 locations x 301 rows x 200 draws
 
-What it measures, each in one run on the same files:
+What it measures, each in one run on the same files, ``--repeats`` pairs in turn (medians):
 
-1. **Input floor**: the time pandas needs just to read the member CSV files
-   (``pandas.read_csv`` on each, in a fresh child process, after one untimed warm-up
-   read so both sides see the files in the page cache).
-2. **Tool**: ``egressmargin run STUDY --no-pdf --jobs 1`` as a child process (wall clock,
-   start to exit, imports included), and its peak resident memory (``ru_maxrss`` of the
-   child). Progress is shown per member read.
+1. **Input floor**: the CPU (and wall) time pandas needs just to read the member CSV
+   files (``pandas.read_csv`` on each, in a fresh child process, imports not counted,
+   after one untimed warm-up read so both sides see the files in the page cache).
+2. **Tool**: ``egressmargin run STUDY --no-pdf --jobs 1`` as a child process (CPU time of
+   the child, user + system, and wall clock, start to exit, imports included), and its
+   peak resident memory (``ru_maxrss`` of the child). Progress is shown per member read
+   (on the first run).
 
 It prints both times and the ratio tool / floor (target at most 3) and the peak memory
-(target under 1 GB).
+(target under 1 GB). CPU time, because the machine may be shared.
 
 Everything the script writes is SYNTHETIC: the curves are the invented smooth growth
 curves of ``bench/bench.py`` with a growth time stretched per member, and the model
