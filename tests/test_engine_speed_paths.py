@@ -137,7 +137,8 @@ def test_sobol_design_rsets_on_distinct_rows_equal_one_run_over_every_row():
                 setattr(d, x.key, U[:, j])
     groups = si._sharing_groups(routes)
     assert any(len(g) > 1 for g in groups)                       # the demo shares elements
-    got = si._design_rsets(routes, groups, inputs, U, prep, factors, draws, study.elements)
     full = assess.scenario_egress(routes, prep, factors, draws, study.elements)
-    for r in routes:
-        np.testing.assert_array_equal(got[r.id], full.routes[r.id].rset)
+    for keys in (None, {row: k for row, (_, k) in ppfs.items()}):   # every factor; the detectors' own
+        got = si._design_rsets(routes, groups, inputs, U, prep, factors, draws, study.elements, keys)
+        for r in routes:
+            np.testing.assert_array_equal(got[r.id], full.routes[r.id].rset)

@@ -226,7 +226,22 @@ def _sharing_groups(routes) -> list[set[int]]:
     return [{j for j in range(len(routes)) if find(j) == find(i)} for i in range(len(routes))]
 
 
-def _design_rsets(routes, groups, inputs, U, prep, factors, draws, named) -> dict[str, np.ndarray]:
+def _detector_keys(routes, prep) -> set[str]:
+    """The factor keys the routes' detector rules read (:func:`egressmargin.assess.detection_times`)."""
+    from . import aset
+    from .study import DetectorRule
+
+    keys = set()
+    for route in routes:
+        rule = route.detection
+        if isinstance(rule, DetectorRule):
+            keys.add("temperature" if rule.kind == "heat"
+                     else aset.smoke_factor_key(prep.smoke_kind[prep.ids.index(rule.location)]))
+    return keys
+
+
+def _design_rsets(routes, groups, inputs, U, prep, factors, draws, named,
+                  factor_keys: dict | None = None) -> dict[str, np.ndarray]:
     """(R,) RSET of every route at the design's rows, each group of routes run on its distinct rows only.
 
     Routes that share no named element do not move each other, and a route's RSET reads
@@ -234,7 +249,9 @@ def _design_rsets(routes, groups, inputs, U, prep, factors, draws, named) -> dic
     the Saltelli design the rows A_B^(j) of an input j that a group does not read repeat
     row A for that group, so the flow model runs once per distinct row of the group's
     columns and the RSETs are copied back to every row (the flow model works draw by
-    draw: the same RSETs as one run over all rows). An ensemble's reference member reads
+    draw: the same RSETs as one run over all rows). ``factor_keys`` (table row -> factor
+    keys) narrows the factor columns to those a detector rule of the group reads; without
+    it every factor column counts for a group with a detector rule. An ensemble's reference member reads
     detection per member where the draw count matches, so its design runs in one piece.
     """
     from . import aset, assess
@@ -247,8 +264,14 @@ def _design_rsets(routes, groups, inputs, U, prep, factors, draws, named) -> dic
     out = {}
     for grp in {tuple(sorted(g)) for g in groups}:
         detector = any(isinstance(routes[i].detection, DetectorRule) for i in grp)
-        cols = [j for j, x in enumerate(inputs)
-                if (x.kind == "egress" and x.route in grp) or (x.kind == "factor" and detector)]
+        read = _detector_keys([routes[i] for i in grp], prep) if factor_keys is not None else None
+
+        def reads(x) -> bool:
+            if x.kind != "factor" or not detector:
+                return False
+            return read is None or x.key not in factor_keys or bool(set(factor_keys[x.key]) & read)
+
+        cols = [j for j, x in enumerate(inputs) if (x.kind == "egress" and x.route in grp) or reads(x)]
         if cols:
             _, first, inverse = np.unique(U[:, cols], axis=0, return_index=True, return_inverse=True)
             order = np.argsort(first)                  # keep the design's row order
@@ -370,7 +393,8 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
         loc_aset = np.repeat(aset.location_aset(aset.evaluate(prep, criteria, {}, 1, with_bound=False, only=used)),
                              R, axis=1)
     groups = _sharing_groups(routes)
-    rsets = _design_rsets(routes, groups, inputs, U, prep, factors, draws, named)
+    rsets = _design_rsets(routes, groups, inputs, U, prep, factors, draws, named,
+                          {row: keys for row, (_, keys) in factor_ppfs.items()})
     out = {}
     for i, route in enumerate(routes):
         a = assess.route_aset(loc_aset, prep.ids, route.exposed_at)
