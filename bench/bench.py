@@ -417,6 +417,103 @@ def brute_force_times(loaded, factors: dict[str, np.ndarray], S: int, scenario: 
     return out, gap
 
 
+# ----------------------------------------------------------------------------------------
+# plain per-sample reference (the yardstick of the speed target)
+# ----------------------------------------------------------------------------------------
+
+#: Runs in a fresh interpreter: reads the study's CSV files with pandas and, per scenario,
+#: loops over the draws in Python, each draw vectorised over locations and time: the
+#: corrected series, temperature and visibility crossings, the ISO 13571 asphyxiant and
+#: heat FED (trapezoidal rule) and their crossings, location ASET, route ASET (earliest of
+#: its locations) against a hand-method RSET per draw. Prints its CPU seconds (process
+#: time, imports included) and a checksum. What a competent engineer would write; it
+#: uses egressmargin's published-formula functions (egressmargin.tenability) only.
+_PLAIN_REFERENCE = r"""
+import sys, time
+t_start = time.process_time()
+from pathlib import Path
+import numpy as np
+import pandas as pd
+from egressmargin.tenability import heat, toxicity, visibility
+from egressmargin.tenability.crossing import cumulative_trapezoid, first_crossing
+folder, S = Path(sys.argv[1]), int(sys.argv[2])
+BIAS = {"temperature": (1.05, 0.10, 0.05), "co": (1.15, 0.25, 0.10), "extinction": (1.30, 0.35, 0.15)}
+rng = np.random.default_rng(1)
+total = 0.0
+for f in sorted((folder / "data").glob("fire-*.csv")):
+    df = pd.read_csv(f)
+    t = df.iloc[:, 0].to_numpy(float)
+    temp = df.iloc[:, 1::3].to_numpy(float).T          # (L, N)
+    co = df.iloc[:, 2::3].to_numpy(float).T
+    ext = df.iloc[:, 3::3].to_numpy(float).T
+    amb = temp[:, :1]
+    fac = {q: np.exp(rng.normal(-np.log(b), np.hypot(sm, se), S)) for q, (b, sm, se) in BIAS.items()}
+    rset = 60.0 + 30.0 + rng.lognormal(np.log(90.0), 0.6, S) + 45.0     # detection, alarm, premovement, travel
+    L = temp.shape[0]
+    route = [0, 1, 2]
+    for s in range(S):
+        temp_s = amb + (temp - amb) * fac["temperature"][s]
+        k_s = ext * fac["extinction"][s]
+        times = [first_crossing(t, temp_s, 60.0, "above"),
+                 first_crossing(t, visibility.visibility_from_extinction(k_s, 8.0), 10.0, "below"),
+                 first_crossing(t, cumulative_trapezoid(t, toxicity.iso13571_fed_rate(co=co * fac["co"][s])),
+                                0.3, "above"),
+                 first_crossing(t, cumulative_trapezoid(t, heat.fed_heat_rate(temperature_degc=temp_s)), 0.3,
+                                "above")]
+        loc_aset = np.fmin.reduce(np.vstack(times), axis=0)
+        a = np.nanmin(np.where(np.isnan(loc_aset[route]), np.inf, loc_aset[route]))
+        total += float(a - rset[s]) if np.isfinite(a) else 0.0
+print(time.process_time() - t_start, total)
+"""
+
+
+def plain_reference_cpu(study_folder: Path, samples: int) -> float:
+    """CPU seconds of the plain per-sample reference on the study in ``study_folder``."""
+    proc = subprocess.run([sys.executable, "-c", _PLAIN_REFERENCE, str(study_folder), str(samples)],
+                          env=child_env(), capture_output=True, text=True)
+    if proc.returncode != 0:
+        raise RuntimeError(f"plain reference failed:\n{proc.stderr}")
+    return float(proc.stdout.split()[0])
+
+
+def tool_run_cpu(study: Path, out: Path) -> float:
+    """CPU seconds (user + system of the child) of ``egressmargin run STUDY --no-pdf --jobs 1``."""
+    import resource
+
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
+    proc = subprocess.run([sys.executable, "-m", "egressmargin", "run", str(study), "--no-pdf", "--quiet",
+                           "--jobs", "1", "--out", str(out)], env=child_env(), capture_output=True, text=True)
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    if proc.returncode != 0:
+        raise RuntimeError(f"run failed:\n{proc.stderr}")
+    return (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
+
+
+def speed_target(study: Path, size: Size, out: Path, repeats: int = 3, say=print) -> dict:
+    """The speed target: the tool's whole run against the plain per-sample reference, in one run.
+
+    Tool and reference run in turn ``repeats`` times (CPU time: the machine may be shared);
+    the ratio is taken pair by pair and its median printed (target at most 0.05).
+    """
+    pairs = []
+    for _ in range(repeats):
+        tool = tool_run_cpu(study, out)
+        ref = plain_reference_cpu(study.parent, size.samples)
+        pairs.append((tool, ref, tool / ref))
+    med = sorted(pairs, key=lambda p: p[2])[len(pairs) // 2]
+    tools = sorted(p[0] for p in pairs)
+    refs = sorted(p[1] for p in pairs)
+    ratios = sorted(p[2] for p in pairs)
+    row = {"size": size.label(), "tool_cpu_s": tools[len(tools) // 2], "reference_cpu_s": refs[len(refs) // 2],
+           "ratio": ratios[len(ratios) // 2], "ratios": ratios, "pair_at_median": med}
+    say(f"0. Speed target: `run --no-pdf --jobs 1` against a plain per-sample reference ({size.label()}; "
+        f"CPU time, median of {repeats} pairs)")
+    say(f"   egressmargin run --no-pdf --jobs 1 (whole process)           {_fmt(row['tool_cpu_s'])} s")
+    say(f"   plain reference (pandas + numpy, Python loop over draws)     {_fmt(row['reference_cpu_s'])} s")
+    say(f"   ratio tool / reference: {row['ratio']:.3f} (target <= 0.05; pairs {', '.join(f'{r:.3f}' for r in ratios)})")
+    return row
+
+
 def _pct_diff(a: dict, b: dict) -> tuple[float, int]:
     """Largest |difference| of matching percentiles [s], and the count of reached/not-reached mismatches."""
     worst, mismatch = 0.0, 0
@@ -615,9 +712,13 @@ def run_benchmark(plan: Plan, work: Path, say=print) -> dict:
     say(f"cpu     : {m['cpu']}; {m['cpu_count']} CPUs, affinity {m['affinity']}; numpy threads {m['threads']}")
     say(f"python  : {m['python']}   numpy {m['numpy']}   egressmargin {m['egressmargin']}")
 
-    # 1-2: whole run and split -------------------------------------------------------
+    # 0: the speed target -------------------------------------------------------------
     main = plan.main
     study = write_study(work / "main", main)
+    figures["target"] = speed_target(study, main, work / "target-out", plan.repeats, say)
+    say("")
+
+    # 1-2: whole run and split -------------------------------------------------------
     out = work / "main-out"
     flags = run_flags()
     html_flag = "--html" in flags
@@ -833,6 +934,8 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--no-pin", action="store_true", help="do not pin the process to one CPU")
     p.add_argument("--json", type=Path, help="also write the figures as JSON to this file")
     p.add_argument("--repeats", type=int, help="repeats per timing (default 3; 1 with --quick)")
+    p.add_argument("--target", action="store_true",
+                   help="only the speed target: the whole run against the plain per-sample reference, with the ratio")
     p.add_argument("--profile", action="store_true",
                    help="instead of the tables: cProfile of load, compute and report.html on the main study")
     args = p.parse_args(argv)
@@ -841,6 +944,14 @@ def main(argv: list[str] | None = None) -> int:
     plan = QUICK if args.quick else FULL
     if args.repeats:
         plan = dataclasses.replace(plan, repeats=max(1, args.repeats))
+    if args.target:
+        with tempfile.TemporaryDirectory(prefix="egressmargin-target-") as tmp:
+            study = write_study(Path(tmp) / "main", plan.main)
+            figures = {"machine": machine(), "target": speed_target(study, plan.main, Path(tmp) / "out",
+                                                                    plan.repeats)}
+        if args.json:
+            args.json.write_text(json.dumps(figures, indent=2, default=str) + "\n", encoding="utf-8")
+        return 0
     if args.profile:
         with tempfile.TemporaryDirectory(prefix="egressmargin-profile-") as tmp:
             profile_stages(plan.main, Path(tmp))

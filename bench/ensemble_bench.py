@@ -6,17 +6,18 @@ Run from the repository root::
     python bench/ensemble_bench.py            # 200 members x 20 locations x 1801 rows x 2000 draws
     python bench/ensemble_bench.py --quick    # 12 members x 5 locations x 301 rows x 200 draws
 
-What it measures, each in one run on the same files:
+What it measures, each in one run on the same files, ``--repeats`` pairs in turn (medians):
 
-1. **Input floor**: the time pandas needs just to read the member CSV files
-   (``pandas.read_csv`` on each, in a fresh child process, after one untimed warm-up
-   read so both sides see the files in the page cache).
-2. **Tool**: ``egressmargin run STUDY --no-pdf --jobs 1`` as a child process (wall clock,
-   start to exit, imports included), and its peak resident memory (``ru_maxrss`` of the
-   child). Progress is shown per member read.
+1. **Input floor**: the CPU (and wall) time pandas needs just to read the member CSV
+   files (``pandas.read_csv`` on each, in a fresh child process, imports not counted,
+   after one untimed warm-up read so both sides see the files in the page cache).
+2. **Tool**: ``egressmargin run STUDY --no-pdf --jobs 1`` as a child process (CPU time of
+   the child, user + system, and wall clock, start to exit, imports included), and its
+   peak resident memory (``ru_maxrss`` of the child). Progress is shown per member read
+   (on the first run).
 
 It prints both times and the ratio tool / floor (target at most 3) and the peak memory
-(target under 1 GB).
+(target under 1 GB). CPU time, because the machine may be shared.
 
 Everything the script writes is SYNTHETIC: the curves are the invented smooth growth
 curves of ``bench/bench.py`` with a growth time stretched per member, and the model
@@ -90,10 +91,10 @@ import sys, time
 from pathlib import Path
 import pandas as pd
 files = sorted(Path(sys.argv[1]).glob("a-*.csv"))
-t0 = time.perf_counter()
+t0, c0 = time.perf_counter(), time.process_time()
 for f in files:
     pd.read_csv(f)
-print(time.perf_counter() - t0)
+print(time.perf_counter() - t0, time.process_time() - c0)
 """
 
 
@@ -105,48 +106,69 @@ def child_env() -> dict:
     return env
 
 
-def pandas_floor(runs: Path) -> float:
-    """Seconds pandas needs to read every member file, in a child process (imports not counted)."""
+def pandas_floor(runs: Path) -> tuple[float, float]:
+    """(wall, CPU) seconds pandas needs to read every member file, in a child process (imports not counted)."""
     out = subprocess.run([sys.executable, "-c", READ_SNIPPET, str(runs)], capture_output=True, text=True,
                          check=True, env=child_env())
-    return float(out.stdout.strip())
+    wall, cpu = out.stdout.split()
+    return float(wall), float(cpu)
 
 
-def tool_run(study: Path, out: Path) -> tuple[float, float]:
-    """(wall seconds, peak resident memory of the child [MiB]) of ``egressmargin run --no-pdf --jobs 1``."""
-    before = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+def tool_run(study: Path, out: Path, quiet: bool = False) -> tuple[float, float, float]:
+    """(wall seconds, CPU seconds, peak resident memory [MiB]) of ``egressmargin run --no-pdf --jobs 1``.
+
+    CPU is the child's user + system time (imports included). The peak is the largest child
+    so far (``ru_maxrss``); the pandas child reads far less than the run holds.
+    """
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     t0 = time.perf_counter()
     subprocess.run([sys.executable, "-m", "egressmargin", "run", str(study), "--out", str(out), "--no-pdf",
-                    "--jobs", "1"], check=True, env=child_env())
+                    "--jobs", "1", *(["--quiet"] if quiet else [])], check=True, env=child_env())
     wall = time.perf_counter() - t0
-    peak_kib = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss   # the largest child so far
-    return wall, max(peak_kib, before) / 1024.0
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
+    return wall, cpu, after.ru_maxrss / 1024.0
 
 
 def main(argv: list[str] | None = None) -> int:
     p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     p.add_argument("--quick", action="store_true", help="reduced sizes (seconds)")
+    p.add_argument("--repeats", type=int, default=3, help="pairs (floor, run) to take the median of (default 3)")
     p.add_argument("--json", type=Path, help="also write the figures as JSON to this file")
     args = p.parse_args(argv)
     members, locations, rows, samples = (12, 5, 301, 200) if args.quick else (200, 20, 1801, 2000)
+    pairs = []
     with tempfile.TemporaryDirectory(prefix="em-ens-bench-") as tmp:
         work = Path(tmp)
         print(f"writing {members} SYNTHETIC member files ({locations} locations x {rows} rows) ...", flush=True)
         study = write_ensemble_study(work, members, locations, rows, samples)
         pandas_floor(work / "runs")                       # warm-up: both sides read from the page cache
-        floor = pandas_floor(work / "runs")
-        wall, peak_mib = tool_run(study, work / "out")
+        for k in range(max(1, args.repeats)):
+            floor_wall, floor_cpu = pandas_floor(work / "runs")
+            wall, cpu, peak_mib = tool_run(study, work / "out", quiet=k > 0)   # progress shown on the first
+            pairs.append({"floor_wall": floor_wall, "floor_cpu": floor_cpu, "wall": wall, "cpu": cpu,
+                          "peak_mib": peak_mib, "ratio_cpu": cpu / floor_cpu, "ratio_wall": wall / floor_wall})
         res = json.loads((work / "out" / "results.json").read_text())
         shares = [m["draws"] for m in res["scenarios"][0]["ensemble"]]
-    ratio = wall / floor
-    row = {"members": members, "locations": locations, "rows": rows, "samples": samples,
-           "pandas_read_s": round(floor, 3), "tool_run_s": round(wall, 3), "ratio": round(ratio, 2),
-           "peak_mib": round(peak_mib, 1), "draws_per_member": [min(shares), max(shares)]}
-    print(f"ensemble {members} members x {locations} locations x {rows} rows x {samples} draws")
-    print(f"  pandas reads the {members} files: {floor:.2f} s")
-    print(f"  egressmargin run --no-pdf --jobs 1: {wall:.2f} s (imports included)")
-    print(f"  ratio tool / input floor: {ratio:.2f} x (target <= 3 x)")
-    print(f"  peak memory of the run: {peak_mib:.0f} MiB (target < 1024 MiB)")
+
+    def med(key):
+        v = sorted(x[key] for x in pairs)
+        return v[len(v) // 2]
+
+    row = {"members": members, "locations": locations, "rows": rows, "samples": samples, "repeats": len(pairs),
+           "pandas_read_cpu_s": round(med("floor_cpu"), 3), "tool_run_cpu_s": round(med("cpu"), 3),
+           "ratio_cpu": round(med("ratio_cpu"), 2), "pandas_read_wall_s": round(med("floor_wall"), 3),
+           "tool_run_wall_s": round(med("wall"), 3), "ratio_wall": round(med("ratio_wall"), 2),
+           "peak_mib": round(max(x["peak_mib"] for x in pairs), 1), "draws_per_member": [min(shares), max(shares)],
+           "pairs": pairs}
+    print(f"ensemble {members} members x {locations} locations x {rows} rows x {samples} draws "
+          f"(medians of {len(pairs)} pairs)")
+    print(f"  pandas reads the {members} files: {row['pandas_read_cpu_s']:.2f} s CPU "
+          f"({row['pandas_read_wall_s']:.2f} s wall)")
+    print(f"  egressmargin run --no-pdf --jobs 1: {row['tool_run_cpu_s']:.2f} s CPU "
+          f"({row['tool_run_wall_s']:.2f} s wall; imports included)")
+    print(f"  ratio tool / input floor: {row['ratio_cpu']:.2f} x CPU, {row['ratio_wall']:.2f} x wall (target <= 3 x)")
+    print(f"  peak memory of the run: {row['peak_mib']:.0f} MiB (target < 1024 MiB)")
     print(f"  draws per member: {min(shares)} to {max(shares)}")
     if args.json:
         args.json.write_text(json.dumps(row, indent=2) + "\n", encoding="utf-8")

@@ -364,19 +364,10 @@ def _dose_grid(prep: Prepared, criterion: Criterion, names, fac: dict, varying: 
     The grid spans the Monte Carlo samples; the sensitivity rows (medians, 5th and 95th
     percentiles) and the along-route dose fall inside that span and reuse it.
     """
-    key = (criterion.id, tuple(sorted(criterion.params.items())), rows.tobytes())
-    cached = prep.dose_grids.get(key)
+    cached = _fitting_grid(prep, criterion, names, fac, rows)
     if cached is not None:
-        grid, c_vary, c_nodes, c_fixed = cached
-        fits = True
-        for q in names:
-            lo, hi = float(fac[q].min()), float(fac[q].max())
-            if q in c_nodes:
-                fits &= c_nodes[q][0] <= lo and hi <= c_nodes[q][-1]
-            else:
-                fits &= lo == hi == c_fixed[q]
-        if fits:
-            return cached
+        return cached
+    key = (criterion.id, tuple(sorted(criterion.params.items())), rows.tobytes())
     k = len(varying)
     G = (3 if _linear_in(criterion, varying) else GRID_NODES.get(k, 4)) if k else 1
     nodes = {q: np.linspace(fac[q].min(), fac[q].max(), G) for q in varying}
@@ -388,6 +379,42 @@ def _dose_grid(prep: Prepared, criterion: Criterion, names, fac: dict, varying: 
         grid[m] = cumulative_dose(criterion, prep.t_s, corrected_inputs(prep, names, f, rows), grid.shape[1:])
     prep.dose_grids[key] = (grid, varying, nodes, fixed)
     return prep.dose_grids[key]
+
+
+def _fitting_grid(prep: Prepared, criterion: Criterion, names, fac: dict, rows: np.ndarray):
+    """The cached grid of ``rows`` (or cut from one over more locations) whose nodes span ``fac``; else None."""
+    key = (criterion.id, tuple(sorted(criterion.params.items())), rows.tobytes())
+    cached = prep.dose_grids.get(key)
+    if cached is None:
+        cached = _grid_of_superset(prep, key, rows)
+    if cached is None:
+        return None
+    grid, c_vary, c_nodes, c_fixed = cached
+    fits = True
+    for q in names:
+        lo, hi = float(fac[q].min()), float(fac[q].max())
+        if q in c_nodes:
+            fits &= c_nodes[q][0] <= lo and hi <= c_nodes[q][-1]
+        else:
+            fits &= lo == hi == c_fixed[q]
+    return cached if fits else None
+
+
+def _grid_of_superset(prep: Prepared, key: tuple, rows: np.ndarray):
+    """A cached grid of the same criterion over more locations, cut to ``rows``; None if none.
+
+    A location's curves on the grid do not depend on the other locations, so the cut is
+    the grid these rows would get at the same nodes (an evaluation of a few locations,
+    e.g. the routes' for the Sobol' design, reuses the scenario's grid).
+    """
+    for (cid, params, rb), (grid, vary, nodes, fixed) in prep.dose_grids.items():
+        if (cid, params) != key[:2] or rb == key[2]:
+            continue
+        have = np.frombuffer(rb, dtype=rows.dtype)
+        pos = np.searchsorted(have, rows)
+        if pos.size and pos.max() < have.size and np.array_equal(have[pos], rows):
+            return grid[:, pos], vary, nodes, fixed
+    return None
 
 
 def dose_field(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
@@ -687,8 +714,16 @@ def dose_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarr
         out[rows_all] = _exact_all_draws(prep, criterion, fac, rows_all, S)
         bound[rows_all] = 0.0
         return out, (bound if with_bound else None)
+    nodes = 3 if _linear_in(criterion, varying) else GRID_NODES[1]
     for start in range(0, rows_all.size, chunk):
         rows = rows_all[start:start + chunk]
+        if k == 1 and S <= nodes and _fitting_grid(prep, criterion, names, fac, rows) is None:
+            # Few draws and no grid to reuse (an ensemble member's share of the draws):
+            # integrating each draw exactly costs no more than building the grid would.
+            out[rows] = _exact_all_draws(prep, criterion, fac, rows, S)
+            bound[rows] = 0.0
+            single = False
+            continue
         fld = dose_field(prep, criterion, factors, S, rows)
         if fld.grid.shape[0] == 1:
             out[rows] = np.repeat(node_crossings(prep.t_s, fld.grid, criterion.limit), S, axis=0).T
@@ -754,8 +789,10 @@ class CriterionResult:
 
 
 def criterion_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.ndarray], S: int,
-                    with_bound: bool = True) -> CriterionResult:
+                    with_bound: bool = True, only: np.ndarray | None = None) -> CriterionResult:
     ok, missing = status(prep, criterion)
+    if only is not None:      # locations nobody asks about are left out (NaN times, not assessed)
+        ok = ok & only
     if criterion.id in DOSE_CRITERIA:
         times, bound = dose_times(prep, criterion, factors, S, ok, with_bound)
         return CriterionResult(times, ok, missing, bound, ok & partial(prep, criterion))
@@ -765,9 +802,14 @@ def criterion_times(prep: Prepared, criterion: Criterion, factors: dict[str, np.
 
 
 def evaluate(prep: Prepared, criteria: CriteriaSet, factors: dict[str, np.ndarray], S: int,
-             with_bound: bool = True) -> dict[str, CriterionResult]:
-    """Every criterion's (L, S) times for the given factor samples."""
-    return {cid: criterion_times(prep, c, factors, S, with_bound) for cid, c in criteria.items.items()}
+             with_bound: bool = True, only: np.ndarray | None = None) -> dict[str, CriterionResult]:
+    """Every criterion's (L, S) times for the given factor samples.
+
+    ``only`` (L,) bool, optional: evaluate these locations only; the others get NaN times
+    and count as not assessed (for callers that read a few locations, e.g. the routes').
+    A location's times do not depend on which other locations are evaluated.
+    """
+    return {cid: criterion_times(prep, c, factors, S, with_bound, only) for cid, c in criteria.items.items()}
 
 
 def location_aset(results: dict[str, CriterionResult]) -> np.ndarray:

@@ -267,8 +267,15 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
     line0 = DataLines(line0, blanks)
     split = [_split_header(h) for h in names]
 
+    by_name: dict[str, list[int]] = {}
+    for i, (h, (b, u)) in enumerate(zip(names, split)):
+        by_name.setdefault(h, []).append(i)
+        if u is not None and b != h:
+            by_name.setdefault(b, []).append(i)
+
     def candidates(col: str) -> list[int]:
-        return [i for i, (h, (b, u)) in enumerate(zip(names, split)) if h == col or (u is not None and b == col)]
+        """Columns named ``col``, or ``col [unit]``, in file order."""
+        return sorted(set(by_name.get(col, ())))
 
     units_line = (units_at + 1) if units_at is not None else None
     skip = [0] if units_at is None else [0, 1]
@@ -297,6 +304,8 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
 
     if num is not None:
         n = len(num)
+        num_cols = {c: j for j, c in enumerate(num.columns)}
+        num = num.to_numpy(dtype=float).T.copy()           # one row per needed column
     elif needed:
         n = len(as_text())
     else:
@@ -353,7 +362,7 @@ def read_scenario(spec: ScenarioSpec, path: Path | None = None) -> tuple[Scenari
         unit = unit_of(ref, quantity, what, i)
         if unit is None:
             return None, None
-        values = num[i].to_numpy(dtype=float) if num is not None else None
+        values = num[num_cols[i]].copy() if num is not None else None
         if values is None or not np.isfinite(values).all():
             text = as_text()[i].astype(str).str.strip()
             cleaned = text.str.replace(decimal, ".", regex=False) if decimal != "." else text

@@ -311,10 +311,13 @@ def duplicate_checks(sid: str, columns: dict[str, list[tuple[str, str]]], series
                                    f"'{uses[0][0]}'; two places rarely see the same history: check the column"))
     shared = {(lid, k) for uses in columns.values() if len({u[0] for u in uses}) > 1 for lid, k in uses}
     ids = list(series)
+    maybe = _maybe_close(series)
     for i, a in enumerate(ids):
         for b in ids[i + 1:]:
             sa, sb = series[a], series[b]
             if not sa or set(sa) != set(sb) or all((a, k) in shared and (b, k) in shared for k in sa):
+                continue
+            if not all(maybe(k, a, b) for k in sa):
                 continue
             if all(sa[k].shape == sb[k].shape and np.allclose(sa[k], sb[k], rtol=IDENTICAL_RTOL, atol=0.0)
                    for k in sa):
@@ -322,6 +325,46 @@ def duplicate_checks(sid: str, columns: dict[str, list[tuple[str, str]]], series
                                    f"every series here ({', '.join(sa)}) is identical to location '{a}''s; two "
                                    "places rarely see the same histories: check the columns mapped"))
     return out
+
+
+#: Samples of each series compared first, for all pairs of locations at once (project choice).
+_PROBES = 16
+
+
+def _maybe_close(series: dict[str, dict[str, np.ndarray]]):
+    """``maybe(key, a, b)``: False only where ``allclose(series[a][key], series[b][key])`` must be False.
+
+    The same elementwise test (:func:`numpy.isclose`, same tolerances and argument order)
+    on a few samples of every series, for every pair at once: a pair that fails on a sample
+    fails on the whole series, so only the others are compared in full (speed only; the
+    findings are those of the pairwise comparison).
+    """
+    probes = {}
+    for key in {k for s in series.values() for k in s}:
+        by_shape: dict[tuple, list[str]] = {}
+        for lid, s in series.items():
+            if key in s and np.ndim(s[key]) == 1 and len(s[key]) > 0:
+                by_shape.setdefault(np.shape(s[key]), []).append(lid)
+        for shape, lids in by_shape.items():
+            if len(lids) < 2:
+                continue
+            idx = np.unique(np.linspace(0, shape[0] - 1, _PROBES).astype(int))
+            f = np.stack([np.asarray(series[lid][key], float)[idx] for lid in lids])
+            ok = np.isclose(f[:, None, :], f[None, :, :], rtol=IDENTICAL_RTOL, atol=0.0).all(axis=-1)
+            pos = {lid: j for j, lid in enumerate(lids)}
+            probes[(key, shape)] = (pos, ok)
+
+    def maybe(key, a, b) -> bool:
+        sa, sb = series[a].get(key), series[b].get(key)
+        if sa is None or sb is None or np.shape(sa) != np.shape(sb):
+            return True                      # the full comparison decides
+        found = probes.get((key, np.shape(sa)))
+        if found is None or a not in found[0] or b not in found[0]:
+            return True
+        pos, ok = found
+        return bool(ok[pos[a], pos[b]])
+
+    return maybe
 
 
 def limit_checks(sid: str, lid: str, first_reached_s: dict[str, float]) -> list[Finding]:

@@ -43,6 +43,8 @@ analysis. Journal of Open Source Software 2(9), 97.
 
 from __future__ import annotations
 
+import dataclasses
+
 import warnings
 from dataclasses import dataclass
 
@@ -228,6 +230,80 @@ def _sharing_groups(routes) -> list[set[int]]:
     return [{j for j in range(len(routes)) if find(j) == find(i)} for i in range(len(routes))]
 
 
+def _detector_keys(routes, prep) -> set[str]:
+    """The factor keys the routes' detector rules read (:func:`egressmargin.assess.detection_times`)."""
+    from . import aset
+    from .study import DetectorRule
+
+    keys = set()
+    for route in routes:
+        rule = route.detection
+        if isinstance(rule, DetectorRule):
+            keys.add("temperature" if rule.kind == "heat"
+                     else aset.smoke_factor_key(prep.smoke_kind[prep.ids.index(rule.location)]))
+    return keys
+
+
+def _design_rsets(routes, groups, inputs, U, prep, factors, draws, named,
+                  factor_keys: dict | None = None) -> dict[str, np.ndarray]:
+    """(R,) RSET of every route at the design's rows, each group of routes run on its distinct rows only.
+
+    Routes that share no named element do not move each other, and a route's RSET reads
+    only its own egress inputs and, through a detector rule, the model-error factors. In
+    the Saltelli design the rows A_B^(j) of an input j that a group does not read repeat
+    row A for that group, so the flow model runs once per distinct row of the group's
+    columns and the RSETs are copied back to every row (the flow model works draw by
+    draw: the same RSETs as one run over all rows). ``factor_keys`` (table row -> factor
+    keys) narrows the factor columns to those a detector rule of the group reads; without
+    it every factor column counts for a group with a detector rule. An ensemble's reference member reads
+    detection per member where the draw count matches, so its design runs in one piece.
+    """
+    from . import aset, assess
+    from .study import DetectorRule
+
+    R = U.shape[0]
+    if not isinstance(prep, aset.Prepared):
+        eg = assess.scenario_egress(routes, prep, factors, draws, named, per_person=False)   # margins only
+        return {r.id: eg.routes[r.id].rset for r in routes}
+    out = {}
+    for grp in {tuple(sorted(g)) for g in groups}:
+        detector = any(isinstance(routes[i].detection, DetectorRule) for i in grp)
+        read = _detector_keys([routes[i] for i in grp], prep) if factor_keys is not None else None
+
+        def reads(x) -> bool:
+            if x.kind != "factor" or not detector:
+                return False
+            return read is None or x.key not in factor_keys or bool(set(factor_keys[x.key]) & read)
+
+        cols = [j for j, x in enumerate(inputs) if (x.kind == "egress" and x.route in grp) or reads(x)]
+        if cols:
+            _, first, inverse = np.unique(U[:, cols], axis=0, return_index=True, return_inverse=True)
+            order = np.argsort(first)                  # keep the design's row order
+            rows = first[order]
+            back = np.empty_like(order)
+            back[order] = np.arange(order.size)
+            inverse = back[inverse.reshape(-1)]
+        else:
+            rows, inverse = np.zeros(1, int), np.zeros(R, int)
+        sub = [_draws_at(draws[i], rows) for i in grp]
+        eg = assess.scenario_egress([routes[i] for i in grp], prep, {k: v[rows] for k, v in factors.items()}, sub,
+                                    named, per_person=False)     # margins only: no per-person times kept
+        for i in grp:
+            out[routes[i].id] = eg.routes[routes[i].id].rset[inverse]
+    return out
+
+
+def _draws_at(d, rows: np.ndarray):
+    """The egress uniforms of ``d`` (an :class:`egressmargin.assess.EgressDraws`) at ``rows``."""
+    def at(x):
+        return x if x is None or np.ndim(x) == 0 else np.asarray(x)[rows]
+
+    return dataclasses.replace(d, detection=at(d.detection), alarm=at(d.alarm), premovement=at(d.premovement),
+                               occupants=at(d.occupants), flow_factor=at(d.flow_factor),
+                               speed_factor=at(d.speed_factor),
+                               parameters={k: at(v) for k, v in d.parameters.items()})
+
+
 def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, named, end_s: float, seed: int,
                      scenario_index: int, chunk: int = 4096, N: int = BASE_SAMPLES,
                      samples: int | None = None, ensemble=None) -> dict[str, dict]:
@@ -315,25 +391,34 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
         else:
             setattr(d, x.key, U[:, j])
     jm = next((j for j, x in enumerate(inputs) if x.kind == "member"), None)
+    # only the locations a route is exposed at enter a margin: the others are not evaluated
+    exposed = {x for r in routes for x in r.exposed_at}
+    used = np.array([lid in exposed for lid in prep.ids], bool)
     if jm is not None:                  # each row on its own member (inverse transform of the weights)
         from .ensemble import member_at
         ens_rows = ensemble.with_members(member_at(ensemble.probabilities, U[:, jm]))
         loc_aset = aset.location_aset(ens_rows.evaluate(criteria, factors, R, with_bound=False))
         prep = prep.for_ensemble(ens_rows)          # detector rules read each row's own member
         end_s = ens_rows.end_per_draw
-    elif factors:
-        loc_aset = np.concatenate(
-            [aset.location_aset(aset.evaluate(prep, criteria, {k: v[a:a + chunk] for k, v in factors.items()},
-                                              min(chunk, R - a), with_bound=False)) for a in range(0, R, chunk)],
-            axis=1)
     else:
-        loc_aset = np.repeat(aset.location_aset(aset.evaluate(prep, criteria, {}, 1, with_bound=False)), R, axis=1)
-    eg = assess.scenario_egress(routes, prep, factors, draws, named, per_person=False)   # margins only
+        # the design reads the scenario's cached dose grids and keeps its own out of them
+        if isinstance(prep, aset.Prepared):
+            prep = dataclasses.replace(prep, dose_grids=dict(prep.dose_grids))
+        if factors:
+            loc_aset = np.concatenate(
+                [aset.location_aset(aset.evaluate(prep, criteria, {k: v[a:a + chunk] for k, v in factors.items()},
+                                                  min(chunk, R - a), with_bound=False, only=used))
+                 for a in range(0, R, chunk)], axis=1)
+        else:
+            loc_aset = np.repeat(aset.location_aset(aset.evaluate(prep, criteria, {}, 1, with_bound=False,
+                                                                  only=used)), R, axis=1)
     groups = _sharing_groups(routes)
+    rsets = _design_rsets(routes, groups, inputs, U, prep, factors, draws, named,
+                          {row: keys for row, (_, keys) in factor_ppfs.items()})
     out = {}
     for i, route in enumerate(routes):
         a = assess.route_aset(loc_aset, prep.ids, route.exposed_at)
-        rset = eg.routes[route.id].rset
+        rset = rsets[route.id]
         fail = (draw_outcomes(a, rset, end_s) != PASS).astype(float)
         a_c = np.where(np.isfinite(a), a, end_s)
         margin = a_c - np.where(np.isfinite(rset), rset, end_s)

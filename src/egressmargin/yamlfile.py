@@ -112,14 +112,34 @@ MERGE_TAG = "tag:yaml.org,2002:merge"
 TIMESTAMP_TAG = "tag:yaml.org,2002:timestamp"
 
 
+#: One safe constructor for every scalar (a scalar's value depends on its node only).
+_SCALARS = yaml.constructor.SafeConstructor()
+
+
 def _construct_scalar(node):
     if node.tag == TIMESTAMP_TAG:
         return node.value
-    loader = yaml.SafeLoader("")
     try:
-        return loader.construct_object(node, deep=True)
+        return _SCALARS.construct_object(node, deep=True)
     finally:
-        loader.dispose()
+        _SCALARS.constructed_objects.clear()
+        _SCALARS.recursive_objects.clear()
+        _SCALARS.state_generators = []
+
+
+def _compose(text: str):
+    """The document's node tree with line marks: libyaml's composer where PyYAML has it.
+
+    libyaml keeps the same line marks and tags; anything it rejects is composed again
+    by the pure-Python composer, so an error's message and place are PyYAML's own.
+    """
+    fast = getattr(yaml, "CSafeLoader", None)
+    if fast is not None:
+        try:
+            return yaml.compose(text, Loader=fast)
+        except yaml.YAMLError:
+            pass
+    return yaml.compose(text, Loader=yaml.SafeLoader)
 
 
 def load_located(path: Path) -> Located:
@@ -136,7 +156,7 @@ def load_located(path: Path) -> Located:
 
 def load_located_text(text: str, path: Path) -> Located:
     try:
-        node = yaml.compose(text, Loader=yaml.SafeLoader)
+        node = _compose(text)
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         where = f"{path}:{mark.line + 1}" if mark else str(path)
