@@ -507,13 +507,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     range_records = [{"location": r.id, **f} for r in loc_records
                      for c in r.criteria.values() for f in c.range_findings]
     _mark_bearing(range_records, routes)
-    hrr_entry = hrr_plot = None
-    if spec.id in loaded.hrr:
-        from .hrr import describe_growth
-        t_h, q_h, f_h = loaded.hrr[spec.id]
-        hrr_plot = {"t_s": t_h, "q_kw": q_h}
-        hrr_entry = {"source": (shown_path(f_h, study.base_dir) if f_h is not None else "histories"),
-                     "column": spec.hrr.column, **describe_growth(t_h, q_h)}
+    hrr_entry, hrr_plot = _design_fire_hrr(loaded, spec)
     cred, cred_plot = credibility(loaded, index, crit)
     scenario = ScenarioResult(
         id=spec.id, title=spec.title, end_s=end, histories=shown_path(data.path, study.base_dir),
@@ -526,6 +520,18 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     plot = {"t_s": data.t_s, "locations": _plot_locations(prep, crit, factors, corr, detectors) if plots else {},
             "routes": route_plots, "credibility": cred_plot, "hrr": hrr_plot}
     return scenario_json(scenario), plot
+
+
+def _design_fire_hrr(loaded: Loaded, spec) -> tuple[dict | None, dict | None]:
+    """The scenario's heat-release rate: its results.json entry and its curve for the report
+    (None, None when the scenario gives none)."""
+    if spec.id not in loaded.hrr:
+        return None, None
+    from .hrr import describe_growth
+    t_h, q_h, f_h = loaded.hrr[spec.id]
+    entry = {"source": (shown_path(f_h, loaded.study.base_dir) if f_h is not None else "histories"),
+             "column": spec.hrr.column, **describe_growth(t_h, q_h)}
+    return entry, {"t_s": t_h, "q_kw": q_h}
 
 
 def _location_records(spec, prep, data, table, crit, raw, corr, raw_aset, loc_aset, ens) -> list[LocationResult]:
