@@ -317,16 +317,12 @@ class Ensemble:
                         "parameters": dict(spec.parameters), "draws": int(len(idx))})
         return out
 
-    def annotate_locations(self, locations: list[dict], ids: list[str], loc_aset: np.ndarray) -> None:
-        """Add ``aset_by_member`` to each assessed location (raw and corrected ASET per member)."""
+    def aset_by_member(self, li: int, loc_aset: np.ndarray) -> list[dict]:
+        """results.json ``location.aset_by_member`` of location ``li``: raw and corrected ASET per member."""
         raw_asets = self.raw_loc_aset
-        for loc in locations:
-            if loc.get("role") == "detector":
-                continue
-            li = ids.index(loc["id"])
-            loc["aset_by_member"] = [{"member": spec.id, "aset_raw_s": rounded(raw_asets[m][li]),
-                                      "aset_s": summarise(loc_aset[li, self.indices(m)])}
-                                     for m, spec in enumerate(self.specs)]
+        return [{"member": spec.id, "aset_raw_s": rounded(raw_asets[m][li]),
+                 "aset_s": summarise(loc_aset[li, self.indices(m)])}
+                for m, spec in enumerate(self.specs)]
 
 
 class MemberPrep:

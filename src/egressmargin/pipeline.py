@@ -21,12 +21,13 @@ from .egress import summary as egress_summary
 from .credibility import GCI_THRESHOLD, grid_convergence, grid_flags
 from .errors import InputError, Problem
 from .histories import ScenarioData, read_scenario, sha256_of
-from .stats import rounded as _t, share, summarise
+from .stats import rounded as _t, summarise
 from .study import SERIES_KEYS, SMOKE_KEYS, Study, check_study, data_problems
 from .tenability.irritants import IRRITANT_GASES
 from .uncertainty import UncertaintyTable, factor_ppf, load_table
 from .yamlfile import load_located
 from .records import RouteResult, route_json
+from .scenario_records import CriterionAtLocation, LocationResult, ScenarioResult, location_json, scenario_json
 from .paths import relative_text, shown_path
 from .verdict import ci_method, decide, draw_outcomes, needs_more_samples, planned_looks, worst_outcome
 
@@ -388,56 +389,9 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     if ens is not None:
         end = float(ens.ends_s.max())
         prep = ensemble.MemberPrep(ens, prep)     # detector rules read each draw's own member
-    locations = []
-    governing_raw = []
-    range_warnings: list[str] = []
-    range_records: list[dict] = []
-    for li, lid in enumerate(prep.ids):
-        if spec.locations[li].role == "detector":
-            # a detection point: not assessed for tenability, and not counted as "not assessed"
-            governing_raw.append(None)
-            locations.append({"id": lid, "title": spec.locations[li].title, "role": "detector",
-                              "criteria": {}, "aset_raw_s": None,
-                              "aset_s": {"p05": None, "p50": None, "p95": None},
-                              "governing": None, "governing_raw": None, "not_assessed": []})
-            continue
-        crits, na = {}, []
-        for cid, c in crit.items.items():
-            r, rr = corr[cid], raw[cid]
-            assessed = bool(r.assessed[li])
-            entry = {"limit": _limit_value(c), "unit": c.unit,
-                     "status": "assessed" if assessed else "not assessed"}
-            if assessed:
-                times = r.times[li]
-                entry.update({"raw_s": _t(rr.times[li, 0]), "corrected_s": summarise(times),
-                              "p_reached": round(share(np.isfinite(times)), 4)})
-                if r.missing[li]:
-                    entry["missing_series"] = r.missing[li]
-                    entry["note"] = "not supplied, contributes nothing: " + ", ".join(r.missing[li])
-                if r.partial is not None and r.partial[li]:
-                    entry["partial"] = True     # a dose-raising series (CO2) is missing: time is an upper bound
-                if r.grid_bound_s is not None and np.isfinite(r.grid_bound_s[li]):
-                    entry["grid_bound_s"] = round(float(r.grid_bound_s[li]), 3)
-                flag, found = _range_findings(table, prep, data, cid, li, rr.times[li, 0], times)
-                entry["outside_validated_range"] = bool(flag)
-                if flag:
-                    entry["range_note"] = flag
-                    range_warnings.append(f"scenario {spec.id}, location {lid}, {cid}: {flag}")
-                    range_records += [{"location": lid, **f} for f in found]
-            else:
-                na.append(cid)
-                entry.update({"raw_s": None, "corrected_s": {"p05": None, "p50": None, "p95": None},
-                              "p_reached": None, "missing_series": r.missing[li]})
-            crits[cid] = entry
-        p50 = {cid: crits[cid]["corrected_s"]["p50"] for cid in crits if crits[cid]["status"] == "assessed"}
-        reached = {k: v for k, v in p50.items() if v is not None}
-        gov = min(reached, key=reached.get) if reached else None
-        raws = {cid: crits[cid]["raw_s"] for cid in crits if crits[cid].get("raw_s") is not None}
-        governing_raw.append(min(raws, key=raws.get) if raws else None)
-        locations.append({"id": lid, "title": spec.locations[li].title, "height_m": spec.locations[li].height_m,
-                          "criteria": crits,
-                          "aset_raw_s": _t(raw_aset[li]), "aset_s": summarise(loc_aset[li]),
-                          "governing": gov, "governing_raw": governing_raw[-1], "not_assessed": na})
+    loc_records = _location_records(spec, prep, data, table, crit, raw, corr, raw_aset, loc_aset, ens)
+    governing_raw = [r.governing_raw for r in loc_records]
+    locations = [location_json(r) for r in loc_records]     # what the route loop reads
     # sensitivity factor rows, evaluated once per scenario
     routes_here = [(i, r) for i, r in enumerate(study.routes) if r.scenarios is None or spec.id in r.scenarios]
     sweep = None
@@ -550,32 +504,64 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
         route_plots[route.id] = {"aset_samples": out.aset, "rset_samples": out.rset, "margin_samples": out.margin}
         if ex is not None:
             route_plots[route.id]["occupant_dose"] = exposure.person_bands(ex)
+    range_records = [{"location": r.id, **f} for r in loc_records
+                     for c in r.criteria.values() for f in c.range_findings]
     _mark_bearing(range_records, routes)
-    scenario = {"id": spec.id, "title": spec.title, "end_s": _t(end), "histories": shown_path(data.path, study.base_dir),
-                "warnings": range_warnings,
-                "range_warnings": range_records,
-                "ignition_s": data.ignition_s, "clock": data.clock_note or "times count from the histories' first time (0 s), taken as ignition",
-                "locations": locations, "routes": routes,
-                "shared_elements": egress_summary.shared_keys(egress.nodes, study.elements) if routes_here else []}
-    if spec.design_fire:
-        scenario["design_fire"] = spec.design_fire
-    if ens is not None:
-        scenario["ensemble"] = ens.results(study.base_dir)
-        ens.annotate_locations(locations, prep.ids, loc_aset)
-    hrr_plot = None
-    if spec.id in loaded.hrr:
-        from .hrr import describe_growth
-        t_h, q_h, f_h = loaded.hrr[spec.id]
-        scenario["hrr"] = {"source": (shown_path(f_h, study.base_dir) if f_h is not None else "histories"),
-                           "column": spec.hrr.column, **describe_growth(t_h, q_h)}
-        hrr_plot = {"t_s": t_h, "q_kw": q_h}
+    hrr_entry, hrr_plot = _design_fire_hrr(loaded, spec)
     cred, cred_plot = credibility(loaded, index, crit)
-    if cred is not None:
-        scenario["credibility"] = cred
+    scenario = ScenarioResult(
+        id=spec.id, title=spec.title, end_s=end, histories=shown_path(data.path, study.base_dir),
+        ignition_s=data.ignition_s, clock_note=data.clock_note, locations=loc_records, routes=routes,
+        range_warnings=range_records,
+        shared_elements=egress_summary.shared_keys(egress.nodes, study.elements) if routes_here else [],
+        design_fire=spec.design_fire or None, ensemble=ens.results(study.base_dir) if ens is not None else None,
+        hrr=hrr_entry, credibility=cred)
     detectors = {loc.id for loc in spec.locations if loc.role == "detector"}
     plot = {"t_s": data.t_s, "locations": _plot_locations(prep, crit, factors, corr, detectors) if plots else {},
             "routes": route_plots, "credibility": cred_plot, "hrr": hrr_plot}
-    return scenario, plot
+    return scenario_json(scenario), plot
+
+
+def _design_fire_hrr(loaded: Loaded, spec) -> tuple[dict | None, dict | None]:
+    """The scenario's heat-release rate: its results.json entry and its curve for the report
+    (None, None when the scenario gives none)."""
+    if spec.id not in loaded.hrr:
+        return None, None
+    from .hrr import describe_growth
+    t_h, q_h, f_h = loaded.hrr[spec.id]
+    entry = {"source": (shown_path(f_h, loaded.study.base_dir) if f_h is not None else "histories"),
+             "column": spec.hrr.column, **describe_growth(t_h, q_h)}
+    return entry, {"t_s": t_h, "q_kw": q_h}
+
+
+def _location_records(spec, prep, data, table, crit, raw, corr, raw_aset, loc_aset, ens) -> list[LocationResult]:
+    """Every location's record: each criterion's raw and corrected crossings, the validated-range
+    findings, and the location's ASET (per member for an ensemble). A detector location is not
+    assessed for tenability and holds no criteria."""
+    out = []
+    for li, lid in enumerate(prep.ids):
+        loc = spec.locations[li]
+        if loc.role == "detector":
+            out.append(LocationResult(id=lid, title=loc.title, role="detector", height_m=loc.height_m))
+            continue
+        crits = {}
+        for cid, c in crit.items.items():
+            r, rr = corr[cid], raw[cid]
+            if not r.assessed[li]:
+                crits[cid] = CriterionAtLocation(limit=c.limit, unit=c.unit, assessed=False,
+                                                 missing_series=r.missing[li])
+                continue
+            times = r.times[li]
+            note, found = _range_findings(table, prep, data, cid, li, rr.times[li, 0], times)
+            crits[cid] = CriterionAtLocation(
+                limit=c.limit, unit=c.unit, assessed=True, raw_s=float(rr.times[li, 0]), times_s=times,
+                missing_series=r.missing[li], partial=bool(r.partial is not None and r.partial[li]),
+                grid_bound_s=None if r.grid_bound_s is None else float(r.grid_bound_s[li]),
+                range_note=note or None, range_findings=found if note else [])
+        out.append(LocationResult(id=lid, title=loc.title, role=loc.role, height_m=loc.height_m, criteria=crits,
+                                  aset_raw_s=float(raw_aset[li]), aset_s=loc_aset[li],
+                                  aset_by_member=ens.aset_by_member(li, loc_aset) if ens is not None else None))
+    return out
 
 
 def _occupants(route, prep, crit, fac, S, eg, max_p_fail, s_max, schedule, ens=None):
@@ -600,10 +586,6 @@ def _mark_bearing(records: list[dict], routes: list[dict]) -> None:
                 rec["routes"].append(rt.get("id"))
                 rec["governing_crossing_s"] = t_gov
         rec["bears_on_verdict"] = bool(rec["routes"])
-
-
-def _limit_value(c):
-    return round(c.limit, 6)
 
 
 class _MoreSamples:
