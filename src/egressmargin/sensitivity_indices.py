@@ -211,6 +211,57 @@ def sobol_indices(Y, labels: list[str], seed) -> list[dict]:
     return rows
 
 
+def rows_location_aset(prep, criteria, factors: dict, S: int, needed) -> np.ndarray:
+    """(L, S) location ASET of the design's rows at the locations ``needed``, +inf elsewhere.
+
+    The same numbers as ``aset.location_aset(aset.evaluate(prep, criteria, factors, S,
+    with_bound=False))`` at those locations, for less work: a dose with two or more
+    varying factors, which :func:`egressmargin.aset.dose_times` integrates exactly for
+    every draw, is integrated exactly (:func:`egressmargin.aset.exact_dose_times`) only
+    at the locations a route passes and only up to the earliest crossing of the other
+    criteria in that draw (a later crossing cannot be the minimum; the trapezoidal
+    integral's first samples do not depend on the later ones). Every other criterion is
+    evaluated as :func:`egressmargin.aset.evaluate` does.
+
+    Parameters
+    ----------
+    prep : aset.Prepared
+    criteria : CriteriaSet
+    factors : dict
+        Factor key -> (S,) factors of the rows.
+    S : int
+        Rows.
+    needed : array_like of int
+        Indices of the locations whose ASET is wanted.
+    """
+    from . import aset
+
+    need = np.zeros(prep.n_loc, bool)
+    need[np.asarray(needed, int)] = True
+    best = np.full((prep.n_loc, S), np.inf)
+    later = []
+    for c in criteria.items.values():
+        if c.id in aset.DOSE_CRITERIA:
+            names = aset.dose_names(prep, c)
+            fac = {q: np.broadcast_to(np.asarray(factors.get(q, 1.0), float), (S,)) for q in names}
+            if sum(np.ptp(fac[q]) > 0 for q in names) >= 2:
+                later.append((c, fac))
+                continue
+        t = aset.criterion_times(prep, c, factors, S, with_bound=False).times
+        np.minimum(best, np.where(np.isnan(t), np.inf, t), out=best)
+    for c, fac in later:
+        ok, _ = aset.status(prep, c)
+        rows = np.flatnonzero(ok & need)
+        if rows.size == 0:
+            continue
+        loc = np.repeat(rows, S)
+        draw = np.tile(np.arange(S), rows.size)
+        t = aset.exact_dose_times(prep, c, fac, loc, draw, best[loc, draw])
+        best[rows] = np.minimum(best[rows], np.where(np.isnan(t), np.inf, t).reshape(rows.size, S))
+    best[~need] = np.inf
+    return best
+
+
 def _sharing_groups(routes) -> list[set[int]]:
     """Routes that share a named element, directly or through others (they can move each other)."""
     named = [{e["id"] for e in route.path if e.get("id")} for route in routes]
@@ -322,10 +373,10 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
         prep = prep.for_ensemble(ens_rows)          # detector rules read each row's own member
         end_s = ens_rows.end_per_draw
     elif factors:
+        on_routes = sorted({prep.ids.index(x) for r in routes for x in r.exposed_at})
         loc_aset = np.concatenate(
-            [aset.location_aset(aset.evaluate(prep, criteria, {k: v[a:a + chunk] for k, v in factors.items()},
-                                              min(chunk, R - a), with_bound=False)) for a in range(0, R, chunk)],
-            axis=1)
+            [rows_location_aset(prep, criteria, {k: v[a:a + chunk] for k, v in factors.items()},
+                                min(chunk, R - a), on_routes) for a in range(0, R, chunk)], axis=1)
     else:
         loc_aset = np.repeat(aset.location_aset(aset.evaluate(prep, criteria, {}, 1, with_bound=False)), R, axis=1)
     eg = assess.scenario_egress(routes, prep, factors, draws, named, per_person=False)   # margins only
