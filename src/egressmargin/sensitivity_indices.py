@@ -366,14 +366,14 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
         else:
             setattr(d, x.key, U[:, j])
     jm = next((j for j, x in enumerate(inputs) if x.kind == "member"), None)
+    on_routes = sorted({prep.ids.index(x) for r in routes for x in r.exposed_at})   # the ASET the rows need
     if jm is not None:                  # each row on its own member (inverse transform of the weights)
         from .ensemble import member_at
         ens_rows = ensemble.with_members(member_at(ensemble.probabilities, U[:, jm]))
-        loc_aset = aset.location_aset(ens_rows.evaluate(criteria, factors, R, with_bound=False))
+        loc_aset = ens_rows.evaluate(criteria, factors, R, with_bound=False, location_rows=on_routes)
         prep = prep.for_ensemble(ens_rows)          # detector rules read each row's own member
         end_s = ens_rows.end_per_draw
     elif factors:
-        on_routes = sorted({prep.ids.index(x) for r in routes for x in r.exposed_at})
         loc_aset = np.concatenate(
             [rows_location_aset(prep, criteria, {k: v[a:a + chunk] for k, v in factors.items()},
                                 min(chunk, R - a), on_routes) for a in range(0, R, chunk)], axis=1)
