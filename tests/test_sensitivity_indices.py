@@ -107,6 +107,9 @@ def test_rows_location_aset_equals_the_full_evaluation_at_the_needed_locations()
 
     for seed, names in ((3, ("temperature", "co", "co2", "o2", "heat_flux")), (4, ("co",))):
         data = _data(seed, L=4)
+        for q, x in data.series.items():          # location 0 quiet: no dose reaches its limit there
+            x[0] = 20.0 + 0.02 * (x[0] - 20.0) if q == "temperature" else (
+                0.209 - 0.02 * (0.209 - x[0]) if q == "o2" else 0.02 * x[0])
         crit = _criteria("purser")
         prep = aset.prepare(data, crit)
         rng = np.random.default_rng(seed)
@@ -116,3 +119,6 @@ def test_rows_location_aset_equals_the_full_evaluation_at_the_needed_locations()
         got = rows_location_aset(prep, crit, factors, S, [0, 2])
         assert np.array_equal(got[[0, 2]], full[[0, 2]])
         assert np.all(np.isinf(got[[1, 3]]))
+        if len(names) > 1:      # the shortcut rules the quiet location out, and only it
+            fac = {q: np.broadcast_to(factors.get(q, 1.0), (S,)) for q in aset.dose_names(prep, crit.items["fed_toxic"])}
+            assert si._never_reached(prep, crit.items["fed_toxic"], fac, np.array([0, 2])).tolist() == [True, False]

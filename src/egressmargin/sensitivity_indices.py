@@ -220,8 +220,11 @@ def rows_location_aset(prep, criteria, factors: dict, S: int, needed) -> np.ndar
     every draw, is integrated exactly (:func:`egressmargin.aset.exact_dose_times`) only
     at the locations a route passes and only up to the earliest crossing of the other
     criteria in that draw (a later crossing cannot be the minimum; the trapezoidal
-    integral's first samples do not depend on the later ones). Every other criterion is
-    evaluated as :func:`egressmargin.aset.evaluate` does.
+    integral's first samples do not depend on the later ones), and not at all at a
+    location where the dose at the rows' largest factors stays below the limit
+    (:func:`_never_reached`: the dose is nondecreasing in every factor there, so no row
+    reaches it). Every other criterion is evaluated as :func:`egressmargin.aset.evaluate`
+    does.
 
     Parameters
     ----------
@@ -252,6 +255,7 @@ def rows_location_aset(prep, criteria, factors: dict, S: int, needed) -> np.ndar
     for c, fac in later:
         ok, _ = aset.status(prep, c)
         rows = np.flatnonzero(ok & need)
+        rows = rows[~_never_reached(prep, c, fac, rows)]
         if rows.size == 0:
             continue
         loc = np.repeat(rows, S)
@@ -260,6 +264,38 @@ def rows_location_aset(prep, criteria, factors: dict, S: int, needed) -> np.ndar
         best[rows] = np.minimum(best[rows], np.where(np.isnan(t), np.inf, t).reshape(rows.size, S))
     best[~need] = np.inf
     return best
+
+
+#: Relative margin below the limit by which the dose at the largest factors must stay for
+#: :func:`_never_reached` to rule a location out (rounding of the rates; project choice).
+NEVER_REACHED_MARGIN = 1e-6
+
+
+def _never_reached(prep, criterion, fac: dict, rows: np.ndarray) -> np.ndarray:
+    """Per location of ``rows``: is it proven that no row's dose reaches the limit?
+
+    Where the dose is nondecreasing in every factor (:func:`egressmargin.aset.dose_shape`,
+    the rates' form, checked on the series), each row's dose is at every time at most
+    the dose with every factor at its largest value over the rows; if that dose stays
+    below the limit (by :data:`NEVER_REACHED_MARGIN`, relative) and finite, no row
+    reaches it, and the exact integration would give "not reached" for every row.
+    """
+    from . import aset
+
+    out = np.zeros(rows.size, bool)
+    if rows.size == 0:
+        return out
+    names = aset.dose_names(prep, criterion)
+    top = {q: float(np.max(fac[q])) for q in names}
+    varying = [q for q in names if np.ptp(fac[q]) > 0]
+    mono = aset.dose_shape(prep, criterion, varying, rows, top)[0]
+    if not mono.any():
+        return out
+    r = rows[mono]
+    N = len(prep.t_s)
+    dose = aset.cumulative_dose(criterion, prep.t_s, aset.corrected_inputs(prep, names, top, r), (r.size, N))
+    out[mono] = np.all(np.isfinite(dose), axis=1) & (dose.max(axis=1) < criterion.limit * (1.0 - NEVER_REACHED_MARGIN))
+    return out
 
 
 def _sharing_groups(routes) -> list[set[int]]:
