@@ -295,3 +295,23 @@ def test_simultaneous_groups_share_a_bottleneck_whatever_their_order():
     assert min(da[0, -1], db[0, -1]) > 229.0
     # listing the routes the other way round moves each group by at most one passing slot
     assert abs(da2[0, -1] - da[0, -1]) <= 1 / 1.3 + 1e-9 and abs(db2[0, -1] - db[0, -1]) <= 1 / 1.3 + 1e-9
+
+
+def test_free_time_by_sorting_equals_the_sum_over_every_slot():
+    """merge_priority's free time phi(x) = x - (time in slots before x) found by one sort per
+    draw equals the direct sum over every slot (the definition in its Notes), bit for bit,
+    with ties, absent persons (+inf) and capacities whose 1/c is not exact."""
+    rng = np.random.default_rng(5)
+    for _ in range(50):
+        S, M, K = rng.integers(1, 12), rng.integers(1, 30), rng.integers(1, 30)
+        c = rng.choice([1.0, 1.3, 2.7, 1 / 3])
+        arr = np.sort(np.round(rng.uniform(0, 40, (S, M)), rng.integers(0, 2)), axis=1)
+        arr[:, M - rng.integers(0, M):] = np.inf
+        p = flow.fifo_departures(arr, c)
+        slot = np.full((S, 1), 1.0 / c)
+        x = np.round(rng.uniform(-5, 60, (S, K)), rng.integers(0, 2))
+        x[:, : rng.integers(0, 3)] = np.inf
+        x = np.concatenate([x, p[:, :3], p[:, :3] - slot], axis=1)    # on the slots' ends and starts
+        got = flow._free_time(x, p, slot, p - slot, 10**6)
+        ref = flow._free_time_all(x, p, slot, p - slot, 10**6)
+        assert np.array_equal(got, ref, equal_nan=True)

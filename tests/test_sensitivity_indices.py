@@ -94,3 +94,31 @@ def test_failure_indicator_indices_name_the_input_that_decides(tmp_path):
     assert fail["premovement time"]["total"] == pytest.approx(1.0, abs=0.1)
     assert fail["occupant count"]["total"] < 0.05
     assert r["sensitivity_indices"][0]["input"] == "premovement time"
+
+
+def test_rows_location_aset_equals_the_full_evaluation_at_the_needed_locations():
+    """The Sobol' rows' shortcut (exact dose only where a route passes, only up to the other
+    criteria's earliest crossing) gives the numbers aset.evaluate gives, bit for bit, with
+    three varying factors (the dose integrated exactly for every row) and with one (grid)."""
+    from test_engine_bruteforce import _criteria, _data
+
+    from egressmargin import aset
+    from egressmargin.sensitivity_indices import rows_location_aset
+
+    for seed, names in ((3, ("temperature", "co", "co2", "o2", "heat_flux")), (4, ("co",))):
+        data = _data(seed, L=4)
+        for q, x in data.series.items():          # location 0 quiet: no dose reaches its limit there
+            x[0] = 20.0 + 0.02 * (x[0] - 20.0) if q == "temperature" else (
+                0.209 - 0.02 * (0.209 - x[0]) if q == "o2" else 0.02 * x[0])
+        crit = _criteria("purser")
+        prep = aset.prepare(data, crit)
+        rng = np.random.default_rng(seed)
+        S = 200
+        factors = {q: np.exp(0.3 * rng.standard_normal(S)) for q in names}
+        full = aset.location_aset(aset.evaluate(prep, crit, factors, S, with_bound=False))
+        got = rows_location_aset(prep, crit, factors, S, [0, 2])
+        assert np.array_equal(got[[0, 2]], full[[0, 2]])
+        assert np.all(np.isinf(got[[1, 3]]))
+        if len(names) > 1:      # the shortcut rules the quiet location out, and only it
+            fac = {q: np.broadcast_to(factors.get(q, 1.0), (S,)) for q in aset.dose_names(prep, crit.items["fed_toxic"])}
+            assert si._never_reached(prep, crit.items["fed_toxic"], fac, np.array([0, 2])).tolist() == [True, False]

@@ -239,12 +239,14 @@ class Ensemble:
             out[rid] = row
         return out
 
-    def evaluate(self, crit, factors: dict, S: int, with_bound: bool = True) -> dict:
+    def evaluate(self, crit, factors: dict, S: int, with_bound: bool = True, location_rows=None):
         """Every criterion's (L, S) times, each member evaluated on its own draws' factors.
 
         A criterion counts as assessed at a location only where every member assesses it
         (a member without the series would otherwise read as "never reached"); a proven
-        grid bound is the largest of the members'.
+        grid bound is the largest of the members'. Given ``location_rows`` (location
+        indices), only the (L, S) location ASET at those locations is returned
+        (:func:`egressmargin.sensitivity_indices.rows_location_aset`, +inf elsewhere).
         """
         from .assess import detection_times, egress_uniforms
 
@@ -258,7 +260,10 @@ class Ensemble:
             self.raw_loc_aset.append(aset.location_aset(raw)[:, 0])
             idx = self.indices(m)
             f_m = _subset(factors, idx)
-            if factors:
+            if factors and location_rows is not None:
+                from .sensitivity_indices import rows_location_aset
+                res = rows_location_aset(prep, crit, f_m, len(idx), location_rows)
+            elif factors:
                 res = aset.evaluate(prep, crit, f_m, len(idx), with_bound=with_bound)
             else:
                 res = {cid: aset.CriterionResult(np.repeat(r.times, len(idx), axis=1), r.assessed, r.missing,
@@ -268,6 +273,11 @@ class Ensemble:
             parts.append((idx, res))
             del prep, raw
         self.detection = {id(rule): (us[ri], det[ri]) for ri, rule in self.rules}
+        if location_rows is not None:
+            loc = np.full((len(self.raw_loc_aset[0]), S), np.inf)
+            for idx, res in parts:
+                loc[:, idx] = res if isinstance(res, np.ndarray) else aset.location_aset(res)
+            return loc
         out = {}
         for cid in crit.items:
             first = parts[0][1][cid]

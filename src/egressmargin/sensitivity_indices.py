@@ -213,6 +213,93 @@ def sobol_indices(Y, labels: list[str], seed) -> list[dict]:
     return rows
 
 
+def rows_location_aset(prep, criteria, factors: dict, S: int, needed) -> np.ndarray:
+    """(L, S) location ASET of the design's rows at the locations ``needed``, +inf elsewhere.
+
+    The same numbers as ``aset.location_aset(aset.evaluate(prep, criteria, factors, S,
+    with_bound=False))`` at those locations, for less work: a dose with two or more
+    varying factors, which :func:`egressmargin.aset.dose_times` integrates exactly for
+    every draw, is integrated exactly (:func:`egressmargin.aset.exact_dose_times`) only
+    at the locations a route passes and only up to the earliest crossing of the other
+    criteria in that draw (a later crossing cannot be the minimum; the trapezoidal
+    integral's first samples do not depend on the later ones), and not at all at a
+    location where the dose at the rows' largest factors stays below the limit
+    (:func:`_never_reached`: the dose is nondecreasing in every factor there, so no row
+    reaches it). Every other criterion is evaluated as :func:`egressmargin.aset.evaluate`
+    does.
+
+    Parameters
+    ----------
+    prep : aset.Prepared
+    criteria : CriteriaSet
+    factors : dict
+        Factor key -> (S,) factors of the rows.
+    S : int
+        Rows.
+    needed : array_like of int
+        Indices of the locations whose ASET is wanted.
+    """
+    from . import aset
+
+    need = np.zeros(prep.n_loc, bool)
+    need[np.asarray(needed, int)] = True
+    best = np.full((prep.n_loc, S), np.inf)
+    later = []
+    for c in criteria.items.values():
+        if c.id in aset.DOSE_CRITERIA:
+            names = aset.dose_names(prep, c)
+            fac = {q: np.broadcast_to(np.asarray(factors.get(q, 1.0), float), (S,)) for q in names}
+            if sum(np.ptp(fac[q]) > 0 for q in names) >= 2:
+                later.append((c, fac))
+                continue
+        t = aset.criterion_times(prep, c, factors, S, with_bound=False, only=need).times
+        np.minimum(best, np.where(np.isnan(t), np.inf, t), out=best)
+    for c, fac in later:
+        ok, _ = aset.status(prep, c)
+        rows = np.flatnonzero(ok & need)
+        rows = rows[~_never_reached(prep, c, fac, rows)]
+        if rows.size == 0:
+            continue
+        loc = np.repeat(rows, S)
+        draw = np.tile(np.arange(S), rows.size)
+        t = aset.exact_dose_times(prep, c, fac, loc, draw, best[loc, draw])
+        best[rows] = np.minimum(best[rows], np.where(np.isnan(t), np.inf, t).reshape(rows.size, S))
+    best[~need] = np.inf
+    return best
+
+
+#: Relative margin below the limit by which the dose at the largest factors must stay for
+#: :func:`_never_reached` to rule a location out (rounding of the rates; project choice).
+NEVER_REACHED_MARGIN = 1e-6
+
+
+def _never_reached(prep, criterion, fac: dict, rows: np.ndarray) -> np.ndarray:
+    """Per location of ``rows``: is it proven that no row's dose reaches the limit?
+
+    Where the dose is nondecreasing in every factor (:func:`egressmargin.aset.dose_shape`,
+    the rates' form, checked on the series), each row's dose is at every time at most
+    the dose with every factor at its largest value over the rows; if that dose stays
+    below the limit (by :data:`NEVER_REACHED_MARGIN`, relative) and finite, no row
+    reaches it, and the exact integration would give "not reached" for every row.
+    """
+    from . import aset
+
+    out = np.zeros(rows.size, bool)
+    if rows.size == 0:
+        return out
+    names = aset.dose_names(prep, criterion)
+    top = {q: float(np.max(fac[q])) for q in names}
+    varying = [q for q in names if np.ptp(fac[q]) > 0]
+    mono = aset.dose_shape(prep, criterion, varying, rows, top)[0]
+    if not mono.any():
+        return out
+    r = rows[mono]
+    N = len(prep.t_s)
+    dose = aset.cumulative_dose(criterion, prep.t_s, aset.corrected_inputs(prep, names, top, r), (r.size, N))
+    out[mono] = np.all(np.isfinite(dose), axis=1) & (dose.max(axis=1) < criterion.limit * (1.0 - NEVER_REACHED_MARGIN))
+    return out
+
+
 def _sharing_groups(routes) -> list[set[int]]:
     """Routes that share a named element, directly or through others (they can move each other)."""
     named = [{e["id"] for e in route.path if e.get("id")} for route in routes]
@@ -392,12 +479,13 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
             setattr(d, x.key, U[:, j])
     jm = next((j for j, x in enumerate(inputs) if x.kind == "member"), None)
     # only the locations a route is exposed at enter a margin: the others are not evaluated
-    exposed = {x for r in routes for x in r.exposed_at}
-    used = np.array([lid in exposed for lid in prep.ids], bool)
+    on_routes = sorted({prep.ids.index(x) for r in routes for x in r.exposed_at})   # the ASET the rows need
+    used = np.zeros(len(prep.ids), bool)
+    used[on_routes] = True
     if jm is not None:                  # each row on its own member (inverse transform of the weights)
         from .ensemble import member_at
         ens_rows = ensemble.with_members(member_at(ensemble.probabilities, U[:, jm]))
-        loc_aset = aset.location_aset(ens_rows.evaluate(criteria, factors, R, with_bound=False))
+        loc_aset = ens_rows.evaluate(criteria, factors, R, with_bound=False, location_rows=on_routes)
         prep = prep.for_ensemble(ens_rows)          # detector rules read each row's own member
         end_s = ens_rows.end_per_draw
     else:
@@ -406,9 +494,8 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
             prep = dataclasses.replace(prep, dose_grids=dict(prep.dose_grids))
         if factors:
             loc_aset = np.concatenate(
-                [aset.location_aset(aset.evaluate(prep, criteria, {k: v[a:a + chunk] for k, v in factors.items()},
-                                                  min(chunk, R - a), with_bound=False, only=used))
-                 for a in range(0, R, chunk)], axis=1)
+                [rows_location_aset(prep, criteria, {k: v[a:a + chunk] for k, v in factors.items()},
+                                    min(chunk, R - a), on_routes) for a in range(0, R, chunk)], axis=1)
         else:
             loc_aset = np.repeat(aset.location_aset(aset.evaluate(prep, criteria, {}, 1, with_bound=False,
                                                                   only=used)), R, axis=1)

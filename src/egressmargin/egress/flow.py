@@ -319,35 +319,98 @@ def merge_priority(priority: list[np.ndarray], others: list[np.ndarray], capacit
     with np.errstate(invalid="ignore"):
         slot_start = p - slot
         g = slot_start - np.arange(n_p, dtype=float)[None, :] * slot   # free time at slot starts
-    step = max(1, chunk_elements // max(1, n_p * n_o))
-
-    def free_time(x):
-        phi = np.empty_like(x)
-        for lo in range(0, S, step):        # chunks of draws bound the memory; not a per-draw loop
-            sl = slice(lo, lo + step)
-            a = x[sl][:, :, None]
-            w = slot[sl][:, :, None]
-            with np.errstate(invalid="ignore"):
-                done = (p[sl][:, None, :] <= a).sum(axis=2)
-                inside = np.where(p[sl][:, None, :] > a,
-                                  np.clip(a - slot_start[sl][:, None, :], 0.0, w), 0.0).sum(axis=2)
-                phi[sl] = x[sl] - done * slot[sl] - inside
-        return phi
-
-    phi = free_time(o_sorted)
+    phi = _free_time(o_sorted, p, slot, slot_start, chunk_elements)
     if o_spans is None:
         f = fifo_departures(phi, c)
     else:                                   # a joining person's span measured in free time
         with np.errstate(invalid="ignore"):
-            free_span = phi - free_time(o_sorted - o_spans)
+            free_span = phi - _free_time(o_sorted - o_spans, p, slot, slot_start, chunk_elements)
         f = fifo_departures(phi, c, np.where(np.isfinite(free_span), free_span, 0.0))
-    out = np.empty_like(o_sorted)
-    for lo in range(0, S, step):
-        sl = slice(lo, lo + step)
-        n = (g[sl][:, None, :] < f[sl][:, :, None]).sum(axis=2)
-        out[sl] = f[sl] + n * slot[sl]
+    out = f + _count_before(g, f, strict=True) * slot        # n(f): slots starting at free time below f
     out = np.where(np.isfinite(o_sorted), out, np.inf)
     return _unmerged(p, p_order, p_sizes), _unmerged(out, o_order, o_sizes)
+
+
+def _count_before(ref: np.ndarray, x: np.ndarray, strict: bool) -> np.ndarray:
+    """Per draw, how many of ``ref`` lie below each ``x``: #(ref < x) if ``strict``, else #(ref <= x).
+
+    ``ref`` (S, M) and ``x`` (S, K) in any order along axis 1; one stable sort of each
+    draw's M + K values, O((M + K) log(M + K)) per draw instead of the M K comparisons.
+    A NaN ``x`` gets some count (the callers' results are NaN there whatever it is).
+    """
+    S, m = ref.shape
+    k = x.shape[1]
+    # ties: the value placed first in the concatenation sorts first (stable sort)
+    joined = np.concatenate((x, ref) if strict else (ref, x), axis=1)
+    order = np.argsort(joined, axis=1, kind="stable")
+    is_ref = (order >= k) if strict else (order < m)
+    below = np.cumsum(is_ref, axis=1)                  # refs at or before each sorted position
+    out = np.empty((S, k), dtype=below.dtype)
+    pos_x = ~is_ref
+    cols = order[pos_x].reshape(S, k) - (0 if strict else m)
+    np.put_along_axis(out, cols, below[pos_x].reshape(S, k), axis=1)
+    return out
+
+
+def _free_time(x, p, slot, slot_start, chunk_elements):
+    """Free time phi(x) = x - (time in the slots [p_i - 1/c, p_i] before x), per draw.
+
+    Parameters
+    ----------
+    x : numpy.ndarray
+        Clock times [s], shape (S, K).
+    p, slot_start : numpy.ndarray
+        Ends and starts [s] of the priority persons' slots, shape (S, M), ascending.
+    slot : numpy.ndarray
+        Slot length 1/c [s], shape (S, 1).
+
+    Notes
+    -----
+    phi = x - done/c - inside, with done = #(p_i <= x) and inside the part of the
+    slots not yet ended that lies before x, sum over p_i > x of clip(x - start_i, 0,
+    1/c). The slots follow one another (p_i - p_(i-1) >= 1/c), so only the first one
+    or two not ended (i = done, done + 1, the second by rounding) can hold a part of
+    it: those two are summed; draws where a later slot starts before x as well are
+    summed over all slots (the general rule). The result is bit for bit that of the
+    sum over all slots (a sum of zeros and at most two terms).
+    """
+    S, M = p.shape
+    if M == 0 or x.shape[1] == 0:
+        return _free_time_all(x, p, slot, slot_start, chunk_elements)
+    with np.errstate(invalid="ignore"):
+        done = _count_before(p, x, strict=False)
+        rows = np.arange(S)[:, None]
+        inside = np.zeros(x.shape)
+        for off in (0, 1):
+            i = done + off
+            ok = i < M
+            st = slot_start[rows, np.minimum(i, M - 1)]
+            part = np.clip(x - st, 0.0, slot)
+            inside = inside + np.where(ok & (p[rows, np.minimum(i, M - 1)] > x), part, 0.0)
+        i = done + 2                                 # a third slot starting before x: general rule
+        late = (i < M) & (slot_start[rows, np.minimum(i, M - 1)] < x)
+        bad = np.flatnonzero(late.any(axis=1) | ~np.isfinite(slot[:, 0]))
+        phi = x - done * slot - inside
+    if bad.size:
+        phi[bad] = _free_time_all(x[bad], p[bad], slot[bad], slot_start[bad], chunk_elements)
+    return phi
+
+
+def _free_time_all(x, p, slot, slot_start, chunk_elements):
+    """:func:`_free_time` summed over every slot (chunks of draws bound the memory)."""
+    S = x.shape[0]
+    step = max(1, chunk_elements // max(1, p.shape[1] * x.shape[1]))
+    phi = np.empty_like(x)
+    for lo in range(0, S, step):        # chunks of draws bound the memory; not a per-draw loop
+        sl = slice(lo, lo + step)
+        a = x[sl][:, :, None]
+        w = slot[sl][:, :, None]
+        with np.errstate(invalid="ignore"):
+            done = (p[sl][:, None, :] <= a).sum(axis=2)
+            inside = np.where(p[sl][:, None, :] > a,
+                              np.clip(a - slot_start[sl][:, None, :], 0.0, w), 0.0).sum(axis=2)
+            phi[sl] = x[sl] - done * slot[sl] - inside
+    return phi
 
 
 def density_for_flow(k, specific_flow_p_s_m, max_specific_flow=None) -> np.ndarray:
