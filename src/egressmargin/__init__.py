@@ -1,3 +1,3 @@
 """egressmargin: compare available and required safe egress times with model uncertainty."""
 
-__version__ = "0.2.0"
+__version__ = "0.3.0"
