@@ -320,11 +320,18 @@ class Ensemble:
             n = max(len(idx), 1)
             with np.errstate(invalid="ignore"):
                 margin = a[idx] - r[idx]
-            out.append({"member": spec.id, "weight": round(float(p), 6),
-                        "p_fail": round(float(np.count_nonzero((o == FAIL) | (o == UNKNOWN))) / n, 6),
-                        "p_fail_low": round(float(np.count_nonzero(o == FAIL)) / n, 6),
-                        "aset_p50": summarise(a[idx])["p50"], "margin_s": summarise(margin),
-                        "parameters": dict(spec.parameters), "draws": int(len(idx))})
+            entry = {"member": spec.id, "weight": round(float(p), 6),
+                     "p_fail": round(float(np.count_nonzero((o == FAIL) | (o == UNKNOWN))) / n, 6),
+                     "p_fail_low": round(float(np.count_nonzero(o == FAIL)) / n, 6),
+                     "aset_p50": summarise(a[idx])["p50"], "margin_s": summarise(margin),
+                     "parameters": dict(spec.parameters), "draws": int(len(idx))}
+            censored = ~np.isfinite(a[idx])
+            if censored.any():
+                # no limit reached within the member's data: the margin is at least the time left
+                # (the member's end standing for ASET), as the route's margin_at_least_s
+                with np.errstate(invalid="ignore"):
+                    entry["margin_at_least_s"] = summarise(np.where(censored, end, a[idx]) - r[idx])
+            out.append(entry)
         return out
 
     def aset_by_member(self, li: int, loc_aset: np.ndarray) -> list[dict]:

@@ -785,7 +785,8 @@ def ensemble_figure(members: Sequence[Mapping[str, Any]], routes: Sequence[Mappi
     Notes
     -----
     A margin percentile not reached within the member's data (no limit reached) is drawn
-    as an open marker at the top of the axis with an arrow: "beyond the data".
+    from ``margin_at_least_s``: the lower bound (the member's end of data standing for
+    ASET) as an open marker with a caret up, and a dotted bar: "at least this".
     """
     matplotlib, plt = _plt()
     names = [str(m.get("member")) for m in members]
@@ -805,14 +806,24 @@ def ensemble_figure(members: Sequence[Mapping[str, Any]], routes: Sequence[Mappi
             colour, _, marker = SERIES_STYLES[k % len(SERIES_STYLES)]
             by = {str(b.get("member")): b for b in rt.get("by_member") or []}
             xs = x + (k - (nr - 1) / 2) * width
-            p50 = np.array([_val((by.get(n) or {}).get("margin_s") or {}, "p50") for n in names], float)
-            p05 = np.array([_val((by.get(n) or {}).get("margin_s") or {}, "p05") for n in names], float)
-            p95 = np.array([_val((by.get(n) or {}).get("margin_s") or {}, "p95") for n in names], float)
-            vals += [v for v in np.concatenate([p05, p50, p95]) if np.isfinite(v)]
-            for xi, lo, mid, hi in zip(xs, p05, p50, p95):
+            def pct(key, q):
+                return np.array([_val((by.get(n) or {}).get(key) or {}, q) for n in names], float)
+
+            p05, p50, p95 = (pct("margin_s", q) for q in ("p05", "p50", "p95"))
+            # where no limit is reached within the member's data the margin is only bounded below:
+            # the lower bound (the member's end standing for ASET) is drawn open, with an arrow up
+            b05, b50, b95 = (pct("margin_at_least_s", q) for q in ("p05", "p50", "p95"))
+            lo_all = np.where(np.isfinite(p05), p05, b05)
+            hi_all = np.where(np.isfinite(p95), p95, b95)
+            vals += [v for v in np.concatenate([lo_all, p50, b50, hi_all]) if np.isfinite(v)]
+            for xi, lo, hi, bounded in zip(xs, lo_all, hi_all, ~np.isfinite(p95)):
                 if np.isfinite(lo) and np.isfinite(hi):
-                    ax.plot([xi, xi], [lo, hi], color=colour, lw=1.0)
+                    ax.plot([xi, xi], [lo, hi], color=colour, lw=1.0, ls=":" if bounded else "-")
             ax.plot(xs, p50, ls="none", marker=marker, color=colour, ms=5, label=_plain(f"route {rt.get('id')}"))
+            open_ = ~np.isfinite(p50) & np.isfinite(b50)
+            if open_.any():
+                ax.plot(xs[open_], b50[open_], ls="none", marker=marker, mfc="white", mec=colour, ms=5)
+                ax.plot(xs[open_], b50[open_], ls="none", marker=6, color=colour, ms=7)   # a caret up: "at least"
         ax.axhline(0.0, color=LIMIT, ls="--", lw=0.9, label="margin 0 (ASET = RSET)")
         ax.set_xticks(x)
         ax.set_xticklabels(labels, fontsize=6.5)

@@ -467,7 +467,9 @@ def _ensemble_view(sc: Mapping[str, Any], routes_in: Sequence[Mapping[str, Any]]
         fig = figs.add("ensemble_figure",
                        f"Scenario {sc.get('id')}: margin (ASET - RSET) by ensemble member, p50 with the p05-p95 range "
                        "over the member's draws, against the member's parameters. Below the dashed line the "
-                       "member's median draw fails.",
+                       "member's median draw fails. Where no limit is reached within the member's data the margin "
+                       "is only bounded below: an open marker with a caret up is that bound (the end of the data "
+                       "standing for ASET; dotted bar: its p05-p95).",
                        members=[{"member": m.get("member"), "parameters": dict(m.get("parameters") or {}),
                                  "share_of_draws": m.get("share_of_draws")} for m in members],
                        routes=routes, uid=f"ens-{sc.get('id')}")
