@@ -1028,9 +1028,11 @@ def assumptions(loaded: Loaded) -> list[str]:
         "time on the file's clock; detection, alarm and pre-movement count from the same instant.",
         "Per draw, a route fails when a limit is reached within the histories before its occupants are out, "
         "passes when they are out within the histories no later than that, and is undecided otherwise; "
-        "p_fail counts undecided draws as failures. A route passes only when the upper end of the 95 % "
-        "interval on p_fail is within the acceptance limit, fails only when the lower end of the interval on "
-        "p_fail without the undecided draws exceeds it, and is indeterminate otherwise.",
+        "p_fail counts undecided draws as failures. A route passes only when the upper end of the interval on "
+        "p_fail is within the acceptance limit, fails only when the lower end of the interval on p_fail without "
+        "the undecided draws exceeds it, and is indeterminate otherwise; where more draws are taken the interval "
+        "is widened for the number of planned looks (Clopper-Pearson at 1 - 0.05/K), so that over all looks "
+        "together a wrong pass and a wrong fail each stay at or below 2.5 %.",
         "A limit is first reached at the first crossing, interpolated linearly between the bracketing samples; "
         "doses are integrated with the trapezoidal rule on the histories' own time grid.",
         "A gas series that is not supplied contributes nothing to a dose: its term is zero and any multiplier "
