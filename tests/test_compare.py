@@ -302,14 +302,14 @@ def test_shift_of_a_visibility_limit_in_closed_form(tmp_path, cli, monkeypatch):
 
 
 def test_changed_cells_note_the_signed_change():
-    """A changed time notes its shift in whole seconds, a changed p_fail its signed shift."""
+    """A changed time notes its shift in whole seconds, a changed p_fail its signed shift in percentage points."""
     from egressmargin.report.compare_render import _cell
     from egressmargin.report.format import MINUS, NBSP
 
     t = _cell("aset_p50_s", 287.4, 1200.0, {"changed": True, "delta": -12.6, "direction": "earlier"}, {})
     assert t["note"] == f"{MINUS}13{NBSP}s" and t["worse"] and t["changed"]
     p = _cell("p_fail", 0.0623, 1200.0, {"changed": True, "delta": 0.0123, "direction": "higher"}, {})
-    assert p["note"] == "+0.0123" and p["worse"]
+    assert p["note"] == f"+1.23{NBSP}pp" and p["worse"]          # percentage points, as p_fail reads in percent
     m = _cell("margin_p05_s", 40.0, 1200.0, {"changed": True, "delta": 7.0, "direction": "larger"}, {})
     assert m["note"] == f"+7{NBSP}s" and not m["worse"]
 

@@ -630,7 +630,7 @@ def build_comparison(runs: list[Run], allow_different_titles: bool = False) -> d
         "study": {"title": _title(base), "reference": study.get("reference"), "paper": study.get("paper") or "A4"},
         "rules": {"time_step_s": TIME_STEP_S, "p_step": P_STEP,
                   "text": f"a change is a time or margin moved by at least {TIME_STEP_S} s, a probability moved "
-                          f"by at least {P_STEP}, or a different word; a time not reached by the end of the "
+                          f"by at least {P_STEP} ({100 * P_STEP:g} percentage points), or a different word; a time not reached by the end of the "
                           "histories counts as later than any reached time"},
         "runs": [{"label": r.label, "path": str(r.path), "sha256": r.sha256, "version": r.data.get("version"),
                   "study_title": _title(r), "criteria": r.data["criteria"].get("name"),

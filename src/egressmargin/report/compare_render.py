@@ -39,8 +39,13 @@ COMPARE_CAUTION = ("The comparison shows how the results of the listed runs diff
 
 
 def _signed(delta: float) -> str:
-    """A change of a probability, signed (a time's change is :func:`fmt_time` with ``signed``)."""
-    return f"{'+' if delta > 0 else MINUS}{fmt_num(abs(delta), 3)}"
+    """A change of a probability in percentage points, signed, as the page writes probabilities
+    in percent (a time's change is :func:`fmt_time` with ``signed``).
+
+    >>> _signed(0.0123), _signed(-0.0005)
+    ('+1.23\xa0pp', '−0.05\xa0pp')
+    """
+    return f"{'+' if delta > 0 else MINUS}{100 * abs(delta):.3g}{NBSP}pp"
 
 
 def _show(key: str, value: Any, end_s: Any, extras: Mapping[str, Any]) -> str:

@@ -372,6 +372,8 @@ def build_context(results: Mapping[str, Any], plotdata: Mapping[str, Any] | None
             "hrr": hrr_view,
             "anchor": f"sc{i + 1}", "id": sid, "name": _named(sc), "title": sc.get("title"),
             "end_s": end_s, "histories": sc.get("histories"), "ignition_s": sc.get("ignition_s"),
+            "members": [{"member": m.get("member"), "histories": m.get("histories"),
+                         "probability": m.get("probability")} for m in sc.get("ensemble") or []],
             "design_fire": [(DESIGN_FIRE_LABELS.get(k, str(k)), _given(v))
                             for k, v in _ordered_design_fire(sc.get("design_fire"))],
             "routes": routes, "matrix": matrix, "matrix_unused": matrix_unused,
