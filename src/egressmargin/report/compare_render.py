@@ -17,7 +17,7 @@ from typing import Any, Mapping
 
 from .. import outputs
 from ..errors import InputError, Problem
-from .format import MINUS, NBSP, fmt_num, fmt_prob, fmt_prob_ci, fmt_time, fmt_verdict
+from .format import MINUS, NBSP, fmt_prob, fmt_prob_ci, fmt_time, fmt_verdict
 from .render import CRITERION_LABELS, _environment, page_size, templates_dir, write_pdf
 
 #: Column heads of the route table, in the order of ``compare.ROUTE_VALUES``.
