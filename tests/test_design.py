@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 import yaml
 
-from egressmargin.design import Counts, route_design, weighted_interval
+from egressmargin.design import Counts, design_interval, guaranteed_interval, route_design, weighted_interval
 from engine_helpers import results_for, write_study
 
 ONLY_T = {"base": "general-2m", "only": ["temperature"]}
@@ -56,7 +56,14 @@ def test_certain_and_never_failing_fires_weighted_01_09_give_design_p_fail_01(tm
     ph, pc = (n + 1) / (n + 2), 1 / (n + 2)
     centre = 0.1 * ph + 0.9 * pc
     half = Z * math.sqrt(0.01 * ph * (1 - ph) / (n + 2) + 0.81 * pc * (1 - pc) / (n + 2))
-    assert r["p_fail_ci95"] == [pytest.approx(centre - half, abs=1e-6), pytest.approx(centre + half, abs=1e-6)]
+    # and the guaranteed interval: Clopper-Pearson at 1 - 0.05/2 per scenario (scipy's beta
+    # quantiles, Clopper & Pearson 1934), weighted sums of the ends; the design uses the union
+    from scipy.stats import beta
+    a = 0.05 / 2
+    cp_lo = 0.1 * beta.ppf(a / 2, n, 1) + 0.9 * 0.0                     # hot: n of n fail; cool: 0 of n
+    cp_hi = 0.1 * 1.0 + 0.9 * beta.ppf(1 - a / 2, 1, n)
+    lo, hi = min(centre - half, cp_lo), max(centre + half, cp_hi)
+    assert r["p_fail_ci95"] == [pytest.approx(lo, abs=1e-6), pytest.approx(hi, abs=1e-6)]
     assert r["p_fail_ci95"][0] < 0.1 < r["p_fail_ci95"][1]
     assert r["verdict"] == "fail"           # 0.1 is above the default limit of 0.05
     assert r["absent_from"] == []
@@ -186,3 +193,29 @@ def test_design_reason_writes_the_estimate_with_its_interval_never_at_most():
         assert "at most" not in text and "at least" not in text and "100.0 %" not in text
     assert "0.075 %" in passing["verdict_reason"]          # 0.5 x 3/2000, distinct from its interval
     assert "50.0 %" in failing["verdict_reason"]
+
+
+@pytest.mark.parametrize("p, w, n", [
+    ([0.02, 0.0], [0.2, 0.8], 2000),          # Price & Bonett alone errs low-side 3.8 % here
+    ([0.005], [1.0], 2000),
+    ([0.001, 0.5], [0.9, 0.1], 200),
+])
+def test_design_interval_one_sided_errors_at_most_2_5_percent(p, w, n):
+    """The verdict promises each wrong decision at most 2.5 % (issue 21): each one-sided error
+    of the design-level interval, counted over 20000 simulated studies (numpy binomial draws),
+    is at most 2.5 % plus three binomial standard deviations. The union with the guaranteed
+    interval (Bonferroni over Clopper-Pearson intervals) holds it where Price & Bonett's
+    interval alone does not (checked in the first case, so the test can fail)."""
+    rng = np.random.default_rng(11)
+    reps = 20000
+    k = rng.binomial(n, np.array(p), size=(reps, len(p)))
+    nn = np.full(k.shape, n)
+    truth = float(np.dot(w, p))
+    tol = 0.025 + 3 * math.sqrt(0.025 * 0.975 / reps)
+    lo, hi = design_interval(k, nn, w)
+    assert np.mean(lo > truth) <= tol and np.mean(hi < truth) <= tol
+    glo, ghi = guaranteed_interval(k, nn, w)
+    assert np.mean(glo > truth) <= 0.025 and np.mean(ghi < truth) <= 0.025
+    if p == [0.02, 0.0]:
+        plo, _ = weighted_interval(k, nn, w)
+        assert np.mean(plo > truth) > tol
