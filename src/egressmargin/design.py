@@ -84,6 +84,14 @@ def counts_from_outcomes(outcomes, deterministic: bool = False, assessed: bool =
                   bool(deterministic), bool(assessed))
 
 
+def _split(k, n, w, exact):
+    """Arrays of the counts, the sampled scenarios (mask and number) and the exact ones' weighted share."""
+    k, n, w = np.asarray(k, float), np.asarray(n, float), np.asarray(w, float)
+    exact = np.zeros(w.shape, bool) if exact is None else np.asarray(exact, bool)
+    point_exact = np.sum(np.where(exact, w * k / np.where(n > 0, n, 1.0), 0.0), axis=-1)
+    return k, n, w, ~exact, int(np.count_nonzero(~exact)), point_exact
+
+
 def weighted_interval(k, n, w, exact=None, z: float = Z_95):
     """95 % interval on sum_s w_s k_s/n_s for independent binomial counts.
 
@@ -116,13 +124,7 @@ def weighted_interval(k, n, w, exact=None, z: float = Z_95):
     >>> [round(float(x), 5) for x in weighted_interval([0], [2000], [1.0])]
     [0.0, 0.00238]
     """
-    k = np.asarray(k, float)
-    n = np.asarray(n, float)
-    w = np.asarray(w, float)
-    exact = np.zeros(w.shape, bool) if exact is None else np.asarray(exact, bool)
-    sampled = ~exact
-    m = int(np.count_nonzero(sampled))
-    point_exact = np.sum(np.where(exact, w * k / np.where(n > 0, n, 1.0), 0.0), axis=-1)
+    k, n, w, sampled, m, point_exact = _split(k, n, w, exact)
     if m == 0:
         return point_exact, point_exact
     add_k, add_n = 2.0 / m, 4.0 / m
@@ -159,16 +161,10 @@ def guaranteed_interval(k, n, w, exact=None, alpha: float = 0.05):
     >>> [round(float(x), 5) for x in guaranteed_interval([0], [2000], [1.0])]
     [0.0, 0.00184]
     """
-    k = np.asarray(k, float)
-    n = np.asarray(n, float)
-    w = np.asarray(w, float)
-    exact = np.zeros(w.shape, bool) if exact is None else np.asarray(exact, bool)
-    sampled = ~exact
-    m = int(np.count_nonzero(sampled))
-    nn = np.where(n > 0, n, 1.0)
-    point_exact = np.sum(np.where(exact, w * k / nn, 0.0), axis=-1)
+    k, n, w, sampled, m, point_exact = _split(k, n, w, exact)
     if m == 0:
         return point_exact, point_exact
+    nn = np.where(n > 0, n, 1.0)
     lo, hi = clopper_pearson(k, nn, level=1.0 - alpha / m)
     return (np.clip(point_exact + np.sum(np.where(sampled, w * lo, 0.0), axis=-1), 0.0, 1.0),
             np.clip(point_exact + np.sum(np.where(sampled, w * hi, 0.0), axis=-1), 0.0, 1.0))
