@@ -614,6 +614,18 @@ def _int(ck, value, kp, low, what):
     return value
 
 
+def _optional_unit(ck, value: dict, kp, quantity: str) -> tuple[str | None, bool]:
+    """The optional ``unit:`` of a mapping, checked for ``quantity``: (unit text or None, ok)."""
+    unit = value.get("unit")
+    if unit is None:
+        return None, True
+    msg = check_unit(str(unit), quantity)
+    if msg:
+        ck.err(kp + ("unit",), msg)
+        return None, False
+    return str(unit), True
+
+
 def _series_ref(ck, key, value, kp) -> SeriesRef | None:
     where = ck.doc.where(kp)
     if isinstance(value, str) and value.strip():
@@ -625,14 +637,9 @@ def _series_ref(ck, key, value, kp) -> SeriesRef | None:
         if not isinstance(col, str) or not col.strip():
             ck.err(kp, f"missing 'column' for '{key}'; expected {{column: <CSV column name>, unit: <unit>}}")
             return None
-        unit = value.get("unit")
-        if unit is not None:
-            quantity = "time" if key == "time" else key
-            msg = check_unit(str(unit), quantity)
-            if msg:
-                ck.err(kp + ("unit",), msg)
-                return None
-            unit = str(unit)
+        unit, ok = _optional_unit(ck, value, kp, "time" if key == "time" else key)
+        if not ok:
+            return None
         return SeriesRef(key, col.strip(), unit, where)
     ck.err(kp, f"found {_show(value)}; expected a column name or {{column: ..., unit: ...}}")
     return None
@@ -992,13 +999,9 @@ def _hrr(ck, value, kp, base: Path) -> HrrRef | None:
     if not isinstance(col, str) or not col.strip():
         ck.err(kp, f"missing 'column'; expected the heat-release-rate column, e.g. {{column: HRR, unit: kW}}")
         return None
-    unit = value.get("unit")
-    if unit is not None:
-        msg = check_unit(str(unit), "hrr")
-        if msg:
-            ck.err(kp + ("unit",), msg)
-            return None
-        unit = str(unit)
+    unit, ok = _optional_unit(ck, value, kp, "hrr")
+    if not ok:
+        return None
     where = ck.doc.where(kp)
     if "file" not in value:
         if "time" in value:
@@ -1080,13 +1083,9 @@ def _profile(ck, value, kp) -> ProfileRef | None:
         ck.err(kp + ("heights",), f"found heights {heights}; expected strictly increasing heights between the "
                f"floor and the ceiling ({value['ceiling']})")
         return None
-    unit = value.get("unit")
-    if unit is not None:
-        msg = check_unit(str(unit), "temperature")
-        if msg:
-            ck.err(kp + ("unit",), msg)
-            return None
-        unit = str(unit)
+    unit, ok = _optional_unit(ck, value, kp, "temperature")
+    if not ok:
+        return None
     return ProfileRef([c.strip() for c in cols], hs, ceiling, unit, ck.doc.where(kp))
 
 
