@@ -591,8 +591,10 @@ def occupants_json(ce: CriterionExposure, ex: OccupantExposure, rset_s: np.ndarr
     from .stats import summarise
 
     out = criterion_outcomes(ce)
+    # only p_fail and its interval are read here (a descriptive 95 % interval on P(any occupant
+    # exceeds), one look); the acceptance limit decide() needs plays no part in them
     v = _decide(out, _signature([ce.worst, ce.share_exceeding, ce.worst_order.astype(float)]), rset_s, ex.end_s,
-                0.05)
+                max_p_fail=1.0)
     share = ce.share_exceeding
     block = {
         "max": summarise(ce.worst, 4 if ce.kind == "dose" else 1),
@@ -670,19 +672,6 @@ def _worst_words(ex: OccupantExposure) -> str:
 
     return f"Most often exceeded: {cid} (in {percent(p)} of draws); most exposed: {me['words']}."
 
-
-def unsettled(v, max_p_fail: float) -> bool:
-    """True when more draws could settle an occupant verdict: indeterminate by sampling alone
-    (not because draws the data cannot decide straddle the limit, nor with no evidence)."""
-    if v is None or v.verdict != "indeterminate" or v.deterministic:
-        return False
-    if v.share_unknown > 0 and v.p_fail_low <= max_p_fail < v.p_fail:
-        return False
-    return v.ci95[0] <= max_p_fail < v.ci95[1] or v.ci95_low[0] <= max_p_fail < v.ci95_low[1]
-
-
-#: The bases a route's verdict may follow (study key ``acceptance.basis``; contract, turn 3).
-BASES = ("route-aset", "occupants", "both")
 
 _RANK = {"fail": 2, "indeterminate": 1, "pass": 0}
 

@@ -29,7 +29,7 @@ from .yamlfile import load_located
 from .records import RouteResult, route_json
 from .scenario_records import CriterionAtLocation, LocationResult, ScenarioResult, location_json, scenario_json
 from .paths import relative_text, shown_path
-from .verdict import ci_method, decide, draw_outcomes, needs_more_samples, planned_looks, worst_outcome
+from .verdict import ci_method, could_settle, decide, draw_outcomes, needs_more_samples, planned_looks, worst_outcome
 
 #: Samples used to draw the corrected p05-p95 band on the report's time plots.
 BAND_SAMPLES = 200
@@ -450,7 +450,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
             if occupants_count:
                 ex, v_occ = _occupants(route, prep, crit, fac_r, n, eg, study.max_p_fail, s_max, schedule, ens_r)
             more_needed = (needs_more_samples(out.aset, out.rset, end_r, study.max_p_fail, looks=len(schedule))
-                           or (occupants_count and ex.assessed and exposure.unsettled(v_occ, study.max_p_fail)))
+                           or (occupants_count and ex.assessed and could_settle(v_occ, study.max_p_fail)))
             if look == len(schedule) - 1 or not more_needed:
                 break
         s_used = n

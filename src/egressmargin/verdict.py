@@ -358,11 +358,19 @@ def needs_more_samples(aset_s, rset_s, end_s: float, max_p_fail: float, *, looks
         return False
     out = draw_outcomes(aset_s, rset_s, end_s) if outcomes is None else np.asarray(outcomes)
     _, p_low, p_high, ci, ci_low, _ = _intervals(out, False, looks)
+    return _sampling_could_settle(p_low, p_high, ci, ci_low, max_p_fail)
+
+
+def could_settle(v: "Verdict", max_p_fail: float) -> bool:
+    """True when more draws could settle the verdict ``v`` (decided by :func:`decide`): the
+    same test as :func:`needs_more_samples`, read off the verdict's own numbers."""
+    return not v.deterministic and _sampling_could_settle(v.p_fail_low, v.p_fail, v.ci95, v.ci95_low, max_p_fail)
+
+
+def _sampling_could_settle(p_low, p_high, ci, ci_low, max_p_fail: float) -> bool:
     if p_low <= max_p_fail < p_high:      # the undecided draws decide: more draws cannot settle it
         return False
-    if ci[1] <= max_p_fail or ci_low[0] > max_p_fail:   # already settled
-        return False
-    return True
+    return not (ci[1] <= max_p_fail or ci_low[0] > max_p_fail)   # not already settled
 
 
 def sequential(schedule, draw_at, end_s: float, max_p_fail: float):
