@@ -460,13 +460,9 @@ def check_study(path: str | Path, criteria_override: str | None = None
                            + ", ".join(ACCEPTANCE_BASES) + did_you_mean(b, ACCEPTANCE_BASES))
                 else:
                     acceptance_basis = b
-            if "max_p_fail" in acc:
-                v = acc["max_p_fail"]
-                if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 <= v < 1:
-                    ck.err(("acceptance", "max_p_fail"), f"found {_show(v)}; expected a probability in [0, 1)")
-                else:
-                    max_p_fail = float(v)
-            max_design_p_fail = _max_design_p_fail(ck, acc)
+            limit = _acceptance_limit(ck, acc, "max_p_fail")
+            max_p_fail = max_p_fail if limit is None else limit
+            max_design_p_fail = _acceptance_limit(ck, acc, "max_design_p_fail")
     max_grid_change = 0.10
     max_gci = 0.10
     if "credibility" in data:
@@ -517,13 +513,14 @@ def check_study(path: str | Path, criteria_override: str | None = None
                  max_design_p_fail=max_design_p_fail, basis=basis, sign_off=sign_off), scenarios, ck.problems
 
 
-def _max_design_p_fail(ck, acc) -> float | None:
-    """``acceptance.max_design_p_fail``: the limit on the design-level p_fail (None: not given)."""
-    if "max_design_p_fail" not in acc:
+def _acceptance_limit(ck, acc, key: str) -> float | None:
+    """``acceptance.<key>`` (``max_p_fail``, or ``max_design_p_fail``: the limit on the
+    design-level p_fail), a probability in [0, 1); None when not given or wrong (error recorded)."""
+    if key not in acc:
         return None
-    v = acc["max_design_p_fail"]
+    v = acc[key]
     if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 <= v < 1:
-        ck.err(("acceptance", "max_design_p_fail"), f"found {_show(v)}; expected a probability in [0, 1)")
+        ck.err(("acceptance", key), f"found {_show(v)}; expected a probability in [0, 1)")
         return None
     return float(v)
 
