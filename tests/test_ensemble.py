@@ -110,6 +110,11 @@ def test_glob_with_side_table_gives_equal_weights_and_parameters(tmp_path):
     assert [(m["member"], m["weight"], m["parameters"]) for m in ens] == [
         ("a-1", 1.0, {"growth_kw_s2": 0.047}), ("a-2", 1.0, {"growth_kw_s2": 0.012})]
     assert res["scenarios"][0]["routes"][0]["p_fail"] == 0.5
+    # the side table is a file read, so its SHA-256 is among the inputs (hashlib, independently)
+    import hashlib
+    [entry] = [i for i in res["inputs"] if i["role"].startswith("ensemble parameters")]
+    assert entry["path"] == "runs/params.csv"
+    assert entry["sha256"] == hashlib.sha256((runs / "params.csv").read_bytes()).hexdigest()
 
 
 def test_validate_names_the_member_file_and_the_column_that_differs(tmp_path, cli):

@@ -904,6 +904,10 @@ def build_results(loaded: Loaded, options: RunOptions):
                            "rows": d.rows, "t_start_s": float(d.t_s[0]), "t_end_s": float(d.t_s[-1]),
                            "columns": [{"column": c.column, "series": c.series, "location": c.location,
                                         "unit_as_read": c.unit_as_read} for c in d.columns]})
+    for spec in study.scenarios:
+        if spec.ensemble_table is not None:
+            inputs.append({"path": shown_path(spec.ensemble_table, base), "sha256": sha256_of(spec.ensemble_table),
+                           "role": f"ensemble parameters ({spec.id})"})
     for sid, (_, _, f_h) in loaded.hrr.items():
         if f_h is not None and shown_path(f_h, base) not in {i["path"] for i in inputs}:
             inputs.append({"path": shown_path(f_h, base), "sha256": sha256_of(f_h),
@@ -1064,6 +1068,7 @@ def run(study_path: Path, options: RunOptions) -> Path:
     inputs += [d.path for d in loaded.data.values()]
     inputs += [d.path for runs in loaded.resolutions.values() for _, d in runs]
     inputs += [d.path for ms in loaded.members.values() for d in ms]
+    inputs += [spec.ensemble_table for spec in study.scenarios if spec.ensemble_table is not None]
     inputs += [f for _, _, f in loaded.hrr.values() if f is not None]
     try:
         with outputs.claim(out, inputs, force=options.force, purpose="run") as target:

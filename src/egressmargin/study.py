@@ -133,6 +133,8 @@ class ScenarioSpec:
     #: Heat-release-rate curve of the design fire (`design_fire: {hrr: ...}`), or None.
     hrr: "HrrRef | None" = None
     where: str = ""
+    #: The side table of an ensemble given by `glob` (CSV: file, name, value), or None.
+    ensemble_table: Path | None = None
 
 
 @dataclass
@@ -731,6 +733,9 @@ def _scenarios(ck, value, base: Path) -> list[ScenarioSpec]:
                                 design_fire, ignition_s=ignition, hrr=hrr))
         out[-1].delimiter, out[-1].decimal = _csv_format(ck, sc, kp)
         out[-1].ensemble = members
+        table = sc["ensemble"].get("parameters") if members and isinstance(sc.get("ensemble"), dict) else None
+        if isinstance(table, str) and (base / table).is_file():
+            out[-1].ensemble_table = base / table       # a file read: hashed into the results' inputs
     return out
 
 
