@@ -67,6 +67,9 @@ class Loaded:
     members: dict[str, list[ScenarioData]] = field(default_factory=dict)
     #: Design-fire heat-release rate per scenario id: (times from ignition [s], kW, file or None).
     hrr: dict = field(default_factory=dict)
+    #: Per scenario id, the prepared series and the raw (uncorrected) results the screen made
+    #: (:func:`screen`), so that assessing the scenario does not prepare and evaluate them again.
+    raw: dict = field(default_factory=dict)
 
 
 def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
@@ -146,10 +149,17 @@ def load(study_path: Path, options: RunOptions | None = None) -> Loaded:
     problems.extend(data_problems(study, data, options.samples))   # what only the data can tell (memory, detectors)
     if any(not p.warning for p in problems):
         raise InputError(problems + [w for w in warnings if w.warning])
-    findings = screen(study, data)
+    prepared = {spec.id: _prepare_raw(spec, data[spec.id], study.criteria) for spec in study.scenarios}
+    findings = screen(study, data, prepared)
     warnings.extend(p for p, (_, acknowledged) in zip(_finding_problems(study, data, findings), findings)
                     if not acknowledged)
-    return Loaded(study, table, data, res, warnings, findings=findings, members=members, hrr=hrr)
+    return Loaded(study, table, data, res, warnings, findings=findings, members=members, hrr=hrr, raw=prepared)
+
+
+def _prepare_raw(spec, data: ScenarioData, crit) -> tuple:
+    """A scenario's prepared series and its raw (uncorrected, one-draw) results."""
+    prep = aset.prepare(data, crit, spec.ambient_temperature_c, spec.ambient_o2)
+    return prep, aset.evaluate(prep, crit, {}, 1)
 
 
 def _rough_rset_s(study: Study, sid: str) -> float | None:
@@ -168,9 +178,10 @@ def _rough_rset_s(study: Study, sid: str) -> float | None:
     return min(out) if out else None
 
 
-def screen(study: Study, data: dict[str, ScenarioData]) -> list[tuple[Finding, bool]]:
+def screen(study: Study, data: dict[str, ScenarioData], prepared: dict | None = None) -> list[tuple[Finding, bool]]:
     """The plausibility screen (:mod:`egressmargin.plausibility`) of every scenario, with whether a
-    location acknowledged each finding (``accept_warnings``)."""
+    location acknowledged each finding (``accept_warnings``). ``prepared``: each scenario's
+    (prepared series, raw results) of :func:`_prepare_raw`, made here where not given."""
     from .units import same_unit
     out = []
     for spec in study.scenarios:
@@ -180,8 +191,7 @@ def screen(study: Study, data: dict[str, ScenarioData]) -> list[tuple[Finding, b
         columns = {(c.location, c.series): (c.column, c.unit_as_read) for c in d.columns
                    if c.series not in ("time", "temperature_profile")}
         time_col = next(((c.column, c.unit_as_read) for c in d.columns if c.series == "time"), None)
-        prep = aset.prepare(d, study.criteria, spec.ambient_temperature_c, spec.ambient_o2)
-        raw = aset.evaluate(prep, study.criteria, {}, 1, with_bound=False)
+        prep, raw = (prepared or {}).get(spec.id) or _prepare_raw(spec, d, study.criteria)
         first = {lid: {cid: float(r.times[li, 0]) for cid, r in raw.items() if r.assessed[li]}
                  for li, lid in enumerate(d.location_ids) if spec.locations[li].role != "detector"}
         smoke = {k: prep.extinction for k in ("optical_density", "soot") if prep.extinction is not None}
@@ -372,8 +382,7 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
     spec = study.scenarios[index]
     data = loaded.data[spec.id]
     crit = study.criteria
-    prep = aset.prepare(data, crit, spec.ambient_temperature_c, spec.ambient_o2)
-    raw = aset.evaluate(prep, crit, {}, 1)
+    prep, raw = loaded.raw.get(spec.id) or _prepare_raw(spec, data, crit)     # made once, at load
     raw_aset = aset.location_aset(raw)[:, 0]
     factors = draw_scenario_factors(table, prep, S, seed, index) if table else {}
     ens = ensemble.build(spec, loaded.members.get(spec.id), crit, S, seed, index, study.routes)   # None: one run
