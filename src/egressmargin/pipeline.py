@@ -624,12 +624,6 @@ class _MoreSamples:
         return self.ensembles.get(S) if self.ens is not None else None
 
 
-def _outside_range(table, prep, data, cid, li, raw_t, times, factors) -> str | None:
-    """The range warning in words (see :func:`_range_findings`), or None."""
-    text, _ = _range_findings(table, prep, data, cid, li, raw_t, times)
-    return text
-
-
 def _range_findings(table, prep, data, cid, li, raw_t, times) -> tuple[str | None, list[dict]]:
     """A warning, in words, where predictions that matter lie outside the table's validated range.
 
@@ -1095,7 +1089,9 @@ def write_outputs(results: dict, plots: dict, out: Path, options: RunOptions,
     """Write results.json (and the report) into a staging folder beside ``out``, then put it in place.
 
     ``target`` is the claimed output folder; without it, ``out`` is checked and claimed here
-    (its inputs taken from ``results["inputs"]``). An OS error that is the user's situation
+    (its inputs taken from ``results["inputs"]``, whose paths are relative to the study file:
+    they guard an ``out`` only when the current folder is the study's; :func:`run` claims with
+    the inputs' own paths). An OS error that is the user's situation
     (disk full, no permission) is an InputError naming the path.
     """
     if target is None:
