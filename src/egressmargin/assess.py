@@ -546,6 +546,33 @@ def _what_if(label: str, key: str, fraction: float, kind: str = "scale") -> Swee
     return SweepSetting(label, f"-{pct}", f"+{pct}", kind, key, 1 - fraction, 1 + fraction, WHAT_IF)
 
 
+def _movement_inputs(route: RouteSpec) -> list[tuple[str, str, object]]:
+    """(label, stream key, specification) of the movement inputs: occupant count, walking speed, flow."""
+    return [("occupant count", "occupants", route.occupants_dist or {"fixed": 1.0}),
+            ("walking speed", "speed_factor", route.speed_factor),
+            ("flow capacity", "flow_factor", route.flow_factor)]
+
+
+def uncertain_egress_inputs(route: RouteSpec) -> list[tuple[str, str]]:
+    """(label, stream key) of each of the route's egress inputs given as a distribution, in a
+    fixed order: detection and alarm times (a detector rule is not one), pre-movement (one time
+    for everyone) and each uncertain parameter of it (``premovement.<parameter>``), occupant
+    count, walking speed, flow capacity. The inputs the one-at-a-time sweep moves p05-p95
+    (:func:`sweep_settings`) and the Sobol' design's egress columns
+    (:func:`egressmargin.sensitivity_indices.uncertain_inputs`)."""
+    out = []
+    for name, spec in (("detection", route.detection), ("alarm", route.alarm)):
+        if not isinstance(spec, DetectorRule) and not dist.is_fixed(spec):
+            out.append((f"{name} time", name))
+    params = dist.parameter_specs(route.premovement)
+    plain = dist.with_parameters(route.premovement, {p: dist.median(sub) for p, sub in params.items()})
+    if not route.premovement_across and not dist.is_fixed(plain):
+        out.append(("premovement time", "premovement"))
+    out += [(f"premovement {p}", f"premovement.{p}") for p, sub in params.items() if not dist.is_fixed(sub)]
+    out += [(label, key) for label, key, spec in _movement_inputs(route) if not dist.is_fixed(spec)]
+    return out
+
+
 def sweep_settings(route: RouteSpec) -> list[SweepSetting]:
     """The route's egress inputs swept one at a time, in the table's order before sorting.
 
@@ -559,34 +586,21 @@ def sweep_settings(route: RouteSpec) -> list[SweepSetting]:
     capacity, and the effective width of the route's controlling element, by +/-10 %
     (:data:`SWEEP_FRACTION`).
     """
-    scaled, swept, what_if = [], [], []
+    swept = uncertain_egress_inputs(route)
+    keys = {key for _, key in swept}
+    what_if = []
     for name, spec in (("detection", route.detection), ("alarm", route.alarm)):
         if isinstance(spec, DetectorRule):
             what_if.append(_what_if("smoke detector threshold (extinction coefficient)" if spec.kind == "smoke"
                                     else "heat detector activation (temperature rise above ambient)",
                                     name, WHAT_IF_FRACTION))
-        elif dist.is_fixed(spec):
+        elif name not in keys:
             what_if.append(_what_if(f"{name} time", name, WHAT_IF_FRACTION))
-        else:
-            swept.append((f"{name} time", name))
-    pre_plain = dist.with_parameters(route.premovement, {p: dist.median(sub) for p, sub in
-                                                         dist.parameter_specs(route.premovement).items()})
-    n_pre = len(swept)
-    if not route.premovement_across and not dist.is_fixed(pre_plain):
-        swept.append(("premovement time", "premovement"))
-    for p, sub in dist.parameter_specs(route.premovement).items():
-        if not dist.is_fixed(sub):
-            swept.append((f"premovement {p}", f"premovement.{p}"))
-    if len(swept) == n_pre:          # no uncertain pre-movement: the what-if range
-        what_if.append(_what_if("premovement across occupants (scaled)" if route.premovement_across
+    if not any(key == "premovement" or key.startswith("premovement.") for key in keys):
+        what_if.append(_what_if("premovement across occupants (scaled)" if route.premovement_across   # fixed
                                 else "premovement time", "premovement", WHAT_IF_FRACTION))
-    for label, key, spec in (("occupant count", "occupants", route.occupants_dist or {"fixed": 1.0}),
-                             ("walking speed", "speed_factor", route.speed_factor),
-                             ("flow capacity", "flow_factor", route.flow_factor)):
-        if dist.is_fixed(spec):
-            scaled.append(_what_if(label, key, SWEEP_FRACTION))
-        else:
-            swept.append((label, key))
+    scaled = [_what_if(label, key, SWEEP_FRACTION) for label, key, spec in _movement_inputs(route)
+              if dist.is_fixed(spec)]
     ctrl = int(np.argmin([element_properties(e)["capacity_p_s"] for e in route.path]))
     width = _what_if(f"effective width of element {ctrl + 1} ({route.path[ctrl]['type']})",
                      _node(route, ctrl, route.path[ctrl]), SWEEP_FRACTION, "width")

@@ -116,26 +116,12 @@ def uncertain_inputs(routes, factor_ppfs: dict, labels: dict) -> list[UncertainI
     labels : dict
         Table row -> words.
     """
-    from .egress import distributions as dist
-    from .study import DetectorRule
+    from .assess import uncertain_egress_inputs
 
     out = [UncertainInput(labels.get(k, k), "factor", k) for k, (f, _) in factor_ppfs.items()
            if float(f(0.95)) != float(f(0.05))]
     for i, route in enumerate(routes):
-        own = []
-        for key, spec in (("detection", route.detection), ("alarm", route.alarm)):
-            if not isinstance(spec, DetectorRule) and not dist.is_fixed(spec):
-                own.append((f"{key} time", key))
-        params = dist.parameter_specs(route.premovement)
-        plain = dist.with_parameters(route.premovement, {p: dist.median(sub) for p, sub in params.items()})
-        if not route.premovement_across and not dist.is_fixed(plain):
-            own.append(("premovement time", "premovement"))
-        own += [(f"premovement {p}", f"premovement.{p}") for p, sub in params.items() if not dist.is_fixed(sub)]
-        for label, key, spec in (("occupant count", "occupants", route.occupants_dist or {"fixed": 1.0}),
-                                 ("walking speed", "speed_factor", route.speed_factor),
-                                 ("flow capacity", "flow_factor", route.flow_factor)):
-            if not dist.is_fixed(spec):
-                own.append((label, key))
+        own = uncertain_egress_inputs(route)
         out += [UncertainInput(label, "egress", key, i) for label, key in own]
     return out
 
