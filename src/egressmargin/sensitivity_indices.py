@@ -416,9 +416,10 @@ def scenario_indices(routes, prep, criteria, factor_ppfs: dict, labels: dict, na
 
     Notes
     -----
-    One batched evaluation of the N (D + 2) rows: ASET of every location
-    (:func:`egressmargin.aset.evaluate`, in chunks of ``chunk`` rows) and the RSET of
-    every route (:func:`egressmargin.assess.scenario_egress`, one flow run). The
+    One batched evaluation of the N (D + 2) rows: ASET of the locations the routes pass
+    (:func:`rows_location_aset`, in chunks of ``chunk`` rows) and the RSET of every route
+    (:func:`_design_rsets`: one flow run per group of routes sharing elements, on its
+    distinct rows). The
     margin's output is min(ASET, end) - RSET: a draw in which no limit is reached by the
     end has the end time for its ASET (a lower bound on its margin), and a draw in which
     the fire is never detected has the end time for its RSET. The failure indicator is
