@@ -17,8 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-#: Ambient oxygen volume fraction of dry air [-] (20.9 %; common practice).
-O2_AMBIENT = 0.209
+from .histories import O2_AMBIENT      # dry air, 20.9 % (common practice): the one constant
 #: An O2 series starting below this fraction [-] (1 %) where ambient air is expected is
 #: read as a fraction (0.209) labelled percent: no occupied space starts a fire at 1 % O2
 #: (common practice).
