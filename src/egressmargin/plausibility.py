@@ -159,8 +159,7 @@ def co_checks(sid: str, lid: str, column: str | None, co, co_unit: str | None, c
         out.append(Finding(sid, lid, "co", column, "start-co-nonzero",
                            f"CO at ignition is {_ppm(co[0])}, above {_ppm(CO_START_MAX)} (background air); check "
                            "the column, the unit and the ignition time"))
-    if co2 is not None and co_unit is not None and co_unit.strip().lower() in ("ppm", "ppmv", "ppm(v)", "ppm vol",
-                                                                                "ppb", "ppbv", "ppb(v)"):
+    if co2 is not None and co_unit is not None and _in_ppm_or_ppb(co_unit):
         co2 = np.asarray(co2, float)
         k = int(np.argmax(co2))
         rise = co2[k] - co2[0]
@@ -170,6 +169,15 @@ def co_checks(sid: str, lid: str, column: str | None, co, co_unit: str | None, c
                                f"{co[k] / co2[k]:.2g}, below the {CO_CO2_RATIO_MIN:g} that combustion gives; likely "
                                f"CO in percent labelled {co_unit}: check the unit"))
     return out
+
+
+def _in_ppm_or_ppb(unit: str) -> bool:
+    """True when ``unit`` is ppm or ppb in any spelling the tool reads (:func:`egressmargin.units.same_unit`)."""
+    from .units import UnitProblem, same_unit
+    try:
+        return same_unit(unit, "ppm", "co") or same_unit(unit, "ppb", "co")
+    except (UnitProblem, ValueError):      # not a CO unit at all: the reader has refused it already
+        return False
 
 
 def temperature_checks(sid: str, lid: str, column: str | None, temp_c, ambient_c: float | None) -> list[Finding]:
