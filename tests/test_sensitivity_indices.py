@@ -122,3 +122,15 @@ def test_rows_location_aset_equals_the_full_evaluation_at_the_needed_locations()
         if len(names) > 1:      # the shortcut rules the quiet location out, and only it
             fac = {q: np.broadcast_to(factors.get(q, 1.0), (S,)) for q in aset.dose_names(prep, crit.items["fed_toxic"])}
             assert si._never_reached(prep, crit.items["fed_toxic"], fac, np.array([0, 2])).tolist() == [True, False]
+
+
+def test_every_random_stream_has_its_own_entropy_word():
+    """The model-error streams are seeded (seed, scenario index); every other stream adds a word
+    of its own. Two streams with the same word would draw the same numbers (the Sobol' design
+    and the ensemble's member assignment once did)."""
+    from egressmargin.assess import EGRESS_STREAM_TAG
+    from egressmargin.ensemble import ENSEMBLE_STREAM_TAG
+    from egressmargin.sensitivity_indices import SOBOL_STREAM_TAG
+
+    words = [EGRESS_STREAM_TAG, ENSEMBLE_STREAM_TAG, SOBOL_STREAM_TAG]
+    assert len(set(words)) == len(words)

@@ -255,7 +255,7 @@ class Ensemble:
         det = {ri: np.full(S, np.inf) for ri, _ in self.rules}
         self.raw_loc_aset, self.crit = [], crit
         for m, d in enumerate(self.data):
-            prep = aset.prepare(d, crit, self.scenario.ambient_temperature_c, self.scenario.ambient_o2)
+            prep = self._prepared(d, crit)
             raw = aset.evaluate(prep, crit, {}, 1)
             self.raw_loc_aset.append(aset.location_aset(raw)[:, 0])
             idx = self.indices(m)

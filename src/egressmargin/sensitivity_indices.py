@@ -74,8 +74,9 @@ BOOTSTRAP_RESAMPLES = 100
 #: project choice).
 U_EPS = 1e-9
 #: Entropy word that keeps the Sobol' design apart from the Monte Carlo streams (project
-#: choice, like assess.EGRESS_STREAM_TAG).
-SOBOL_STREAM_TAG = 104729
+#: choice, like assess.EGRESS_STREAM_TAG; it must differ from every other stream's word,
+#: ensemble.ENSEMBLE_STREAM_TAG among them, which a test checks).
+SOBOL_STREAM_TAG = 130363
 
 METHOD = ("first-order (Saltelli et al. 2010) and total (Jansen 1999) Sobol' indices from a Saltelli design "
           "of N (D + 2) evaluations on scrambled Sobol' points, with bootstrap 95 % intervals, by SALib")
