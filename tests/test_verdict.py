@@ -3,8 +3,7 @@
 Histories are synthetic ramps written in each test (invented numbers with closed-form
 crossing times, not measurements). The interval on p_fail is checked against
 scipy.stats.binomtest(...).proportion_ci(method="exact"), an implementation outside
-the project of Clopper & Pearson (1934); ``wilson_interval`` (kept as a helper) against
-method="wilson" (Wilson 1927).
+the project of Clopper & Pearson (1934).
 """
 
 from __future__ import annotations
@@ -14,7 +13,7 @@ import pytest
 from scipy import stats
 
 from egressmargin.verdict import (FAIL, PASS, UNKNOWN, Z_95, decide, draw_outcomes, look_level, needs_more_samples,
-                                  planned_looks, wilson_interval)
+                                  planned_looks)
 from engine_helpers import results_for, write_study
 
 
@@ -35,13 +34,6 @@ def test_draw_outcomes_follow_the_contract():
 def test_z_95_is_the_two_sided_normal_quantile():
     # Phi^-1(0.975), scipy.stats.norm.ppf: the z of a two-sided 95 % interval
     assert Z_95 == pytest.approx(stats.norm.ppf(0.975), rel=1e-15)
-
-
-@pytest.mark.parametrize("k,n", [(0, 2000), (96, 2000), (100, 2000), (2000, 2000), (7, 50)])
-def test_wilson_interval_matches_scipy(k, n):
-    ref = stats.binomtest(k, n).proportion_ci(confidence_level=0.95, method="wilson")
-    lo, hi = wilson_interval(k, n)
-    assert lo == pytest.approx(ref.low, abs=1e-9) and hi == pytest.approx(ref.high, abs=1e-9)
 
 
 def test_histories_ending_before_rset_are_not_a_pass(tmp_path):

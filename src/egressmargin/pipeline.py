@@ -29,7 +29,7 @@ from .yamlfile import load_located
 from .records import RouteResult, route_json
 from .scenario_records import CriterionAtLocation, LocationResult, ScenarioResult, location_json, scenario_json
 from .paths import relative_text, shown_path
-from .verdict import ci_method, could_settle, decide, draw_outcomes, needs_more_samples, planned_looks, worst_outcome
+from .verdict import ci_method, could_settle, decide, draw_outcomes, planned_looks, sequential, worst_outcome
 
 #: Samples used to draw the corrected p05-p95 band on the report's time plots.
 BAND_SAMPLES = 200
@@ -450,19 +450,15 @@ def assess_scenario(loaded: Loaded, index: int, S: int, seed: int, plots: bool =
                     bigger[n] = egress_at(n, fac_n, prep if ens_n is None else prep.for_ensemble(ens_n))
                 eg_n = bigger[n]
             o = assess.outcome(route, prep, loc_n, raw_aset, governing_raw, eg_n.routes[route.id])
-            return o, eg_n, fac_n, ens_n
-
-        ex = v_occ = None
-        for look, n in enumerate(schedule):
-            out, eg, fac_r, ens_r = draw_at(n)
-            end_r = end_v if ens_r is None else ens_r.end_per_draw
+            end_n = end_v if ens_n is None else ens_n.end_per_draw
+            ex_n = v_n = None
             if occupants_count:
-                ex, v_occ = _occupants(route, prep, crit, fac_r, n, eg, study.max_p_fail, s_max, schedule, ens_r)
-            more_needed = (needs_more_samples(out.aset, out.rset, end_r, study.max_p_fail, looks=len(schedule))
-                           or (occupants_count and ex.assessed and could_settle(v_occ, study.max_p_fail)))
-            if look == len(schedule) - 1 or not more_needed:
-                break
-        s_used = n
+                ex_n, v_n = _occupants(route, prep, crit, fac_n, n, eg_n, study.max_p_fail, s_max, schedule, ens_n)
+            return o.aset, o.rset, None, o, eg_n, fac_n, ens_n, end_n, ex_n, v_n
+
+        s_used, (_, _, _, out, eg, fac_r, ens_r, end_r, ex, v_occ) = sequential(
+            schedule, draw_at, lambda got: got[7], study.max_p_fail,
+            more=lambda got: got[8] is not None and got[8].assessed and could_settle(got[9], study.max_p_fail))
         if ex is None and route.along_route:
             ex, v_occ = _occupants(route, prep, crit, fac_r, s_used, eg, study.max_p_fail, s_max, schedule, ens_r)
         margin_raw = out.aset_raw - float(egress_med.routes[route.id].rset[0])

@@ -54,9 +54,9 @@ import numpy as np
 from .probability_text import percent
 from .probability_text import probability as prob
 
-__all__ = ["FAIL", "PASS", "UNKNOWN", "Z_95", "ALPHA", "Verdict", "draw_outcomes", "wilson_interval",
+__all__ = ["FAIL", "PASS", "UNKNOWN", "Z_95", "ALPHA", "Verdict", "draw_outcomes",
            "clopper_pearson", "planned_looks", "look_level", "ci_method", "settle", "sequential",
-           "decide", "needs_more_samples"]
+           "decide", "needs_more_samples", "could_settle"]
 
 FAIL, PASS, UNKNOWN = 0, 1, 2
 
@@ -185,37 +185,6 @@ def worst_outcome(outcomes) -> np.ndarray:
     out[(o == UNKNOWN).any(axis=0)] = UNKNOWN
     out[(o == FAIL).any(axis=0)] = FAIL
     return out
-
-
-def wilson_interval(k: int, n: int, z: float = Z_95) -> tuple[float, float]:
-    """Wilson score interval for a binomial proportion k/n.
-
-    Notes
-    -----
-    With p = k/n,
-
-    .. math:: \\frac{p + z^2/(2n) \\pm z\\sqrt{p(1-p)/n + z^2/(4n^2)}}{1 + z^2/n}
-
-    (Wilson, E. B. (1927). Probable inference, the law of succession, and statistical
-    inference. J. Am. Stat. Assoc. 22(158), 209-212; Brown, Cai & DasGupta (2001),
-    Statist. Sci. 16, 101-133, eq. 4). Unlike the normal approximation it stays inside
-    [0, 1] and does not collapse to a point at p = 0 or 1.
-
-    Examples
-    --------
-    Brown, Cai & DasGupta's recommendation in numbers: 0 failures in 2000 draws still
-    leaves an upper bound of about 0.19 %:
-
-    >>> [round(x, 5) for x in wilson_interval(0, 2000)]
-    [0.0, 0.00192]
-    """
-    if n <= 0:
-        return 0.0, 1.0
-    p = k / n
-    z2 = z * z
-    centre = (p + z2 / (2 * n)) / (1 + z2 / n)
-    half = z * math.sqrt(p * (1 - p) / n + z2 / (4 * n * n)) / (1 + z2 / n)
-    return max(0.0, centre - half), min(1.0, centre + half)
 
 
 def clopper_pearson(k, n, level: float = 0.95):
@@ -373,7 +342,7 @@ def _sampling_could_settle(p_low, p_high, ci, ci_low, max_p_fail: float) -> bool
     return not (ci[1] <= max_p_fail or ci_low[0] > max_p_fail)   # not already settled
 
 
-def sequential(schedule, draw_at, end_s: float, max_p_fail: float):
+def sequential(schedule, draw_at, end_s, max_p_fail: float, more=None):
     """Run the sequential rule: draw at each planned look until the interval settles.
 
     Parameters
@@ -381,9 +350,16 @@ def sequential(schedule, draw_at, end_s: float, max_p_fail: float):
     schedule : list of int
         The planned looks (:func:`planned_looks`).
     draw_at : callable
-        ``draw_at(n) -> (aset_s, rset_s, outcomes or None)`` for ``n`` draws.
-    end_s, max_p_fail : float
+        ``draw_at(n) -> (aset_s, rset_s, outcomes or None, ...)`` for ``n`` draws.
+    end_s : float or callable
+        As for :func:`decide`; or ``end_s(got)``, the end of data of what ``draw_at``
+        returned (per draw for an ensemble, whose members are assigned again at each look).
+    max_p_fail : float
         As for :func:`decide`.
+    more : callable, optional
+        ``more(got) -> bool``: another verdict on the same draws that more draws could
+        settle (an occupant-exposure verdict that takes part in the route's), checked at
+        the same looks.
 
     Returns
     -------
@@ -393,9 +369,9 @@ def sequential(schedule, draw_at, end_s: float, max_p_fail: float):
     looks = len(schedule)
     for j, n in enumerate(schedule):
         got = draw_at(n)
-        aset_s, rset_s, outcomes = got[0], got[1], got[2]
-        if j == looks - 1 or not needs_more_samples(aset_s, rset_s, end_s, max_p_fail, looks=looks,
-                                                    outcomes=outcomes):
+        end = end_s(got) if callable(end_s) else end_s
+        if j == looks - 1 or not (needs_more_samples(got[0], got[1], end, max_p_fail, looks=looks, outcomes=got[2])
+                                  or (more is not None and more(got))):
             return n, got
     raise ValueError("no planned look")   # schedule was empty
 
