@@ -19,7 +19,6 @@ from scipy.integrate import solve_ivp
 
 from egressmargin.egress.detection import (
     activation_time,
-    optical_density_from_obscuration,
     rti_response,
 )
 
@@ -137,18 +136,6 @@ def test_activation_time_not_reached_is_nan_and_levels_broadcast():
     np.testing.assert_allclose(activation_time(t, cube, 50.0), np.tile([50.0, 25.0], (4, 1)))
     with pytest.raises(ValueError, match="above the ambient"):
         activation_time(t, rise, 0.0)
-
-
-def test_optical_density_from_obscuration():
-    # Definitions (NFPA 72 Annex B, from memory): O = 1 - I/I0 over l = 1 m,
-    # D = log10(I0/I)/l. 10 %/m -> D = -log10(0.9) = 0.04576 1/m (hand calculation).
-    assert optical_density_from_obscuration(0.10) == pytest.approx(0.045757, abs=1e-6)
-    # Round trip: an optical density of 0.1 1/m transmits 10^-0.1 over 1 m.
-    o = 1.0 - 10.0 ** -0.1
-    assert optical_density_from_obscuration(o) == pytest.approx(0.1, rel=1e-12)
-    np.testing.assert_allclose(optical_density_from_obscuration([0.0, 0.5]), [0.0, math.log10(2.0)])
-    with pytest.raises(ValueError):
-        optical_density_from_obscuration(1.0)
 
 
 def test_bad_inputs_raise():

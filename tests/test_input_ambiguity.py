@@ -439,23 +439,20 @@ def _smoke_study(kit, threshold):
 
 
 def test_obscuration_per_foot_and_per_metre():
-    """NFPA 72 Annex / SFPE Handbook (detection chapter): percent obscuration O over a path l
-    gives D = -log10(1 - O) / l [1/m] and K = ln(10) D (from memory). 3 %/ft:
-    D = -log10(0.97) / 0.3048 m = 0.043399 1/m, K = 0.09993 1/m (about 0.100, issue 12 item 12);
-    10 %/m: K = -ln(0.9) = 0.10536 1/m."""
+    """Beer-Lambert (NFPA 72 Annex / SFPE Handbook detection chapter, from memory): percent
+    obscuration O over a path l gives K = -ln(1 - O) / l [1/m]. 3 %/ft: K = -ln(0.97)/0.3048 m
+    = 0.09993 1/m (about 0.100, issue 12 item 12); 10 %/m: K = -ln(0.9) = 0.10536 1/m. The
+    conversion a detector rule uses (units.obscuration_to_extinction), against math.log."""
     import math
 
-    from egressmargin.egress.detection import optical_density_from_obscuration
-    from egressmargin.tenability.visibility import extinction_from_optical_density
-    from egressmargin.units import parse_obscuration
+    from egressmargin.units import obscuration_to_extinction, parse_obscuration
 
     frac, length = parse_obscuration("3 percent/ft")
-    k = float(extinction_from_optical_density(optical_density_from_obscuration(frac) / length))
+    k = float(obscuration_to_extinction(100 * frac, length))
     assert k == pytest.approx(-math.log(0.97) / 0.3048, rel=1e-9)
     assert k == pytest.approx(0.100, abs=0.001)
     frac, length = parse_obscuration("10 %/m")
-    assert float(extinction_from_optical_density(optical_density_from_obscuration(frac) / length)) == \
-        pytest.approx(-math.log(0.9), rel=1e-9)
+    assert float(obscuration_to_extinction(100 * frac, length)) == pytest.approx(-math.log(0.9), rel=1e-9)
 
 
 @pytest.mark.parametrize("threshold, k", [("3 percent/ft", -__import__("math").log(0.97) / 0.3048),

@@ -1441,12 +1441,10 @@ def _detection(ck, value, kp, covered, loc_ids):
                 except UnitProblem as exc:
                     ck.err(kp + (kind, k), str(exc))
                 else:
-                    from .egress.detection import optical_density_from_obscuration
-                    from .tenability.visibility import extinction_from_optical_density
-                    # Percent obscuration O over a path l: D = -log10(1 - O) / l [1/m] (NFPA 72
-                    # Annex, SFPE Handbook detection chapter: definitions -- from memory).
-                    rule.extinction_per_m = float(extinction_from_optical_density(
-                        optical_density_from_obscuration(frac) / length_m))
+                    from .units import obscuration_to_extinction
+                    # Percent obscuration O over a path l: K = -ln(1 - O) / l [1/m], Beer-Lambert
+                    # (the one conversion the series use too, units.obscuration_to_extinction)
+                    rule.extinction_per_m = float(obscuration_to_extinction(100.0 * frac, length_m))
             else:
                 v = ck.quantity(spec[k], kp + (kind, k), k, positive=True)
                 if v is not None:

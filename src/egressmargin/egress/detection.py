@@ -4,9 +4,8 @@ A thermal element (heat detector or sprinkler link) is followed through the gas
 temperature and velocity history at its location with the response time index (RTI)
 model; it activates when its temperature rise reaches the rated rise. A smoke
 detector is taken to respond when the obscuration (as optical density or extinction
-coefficient) at its location first reaches a threshold;
-:func:`optical_density_from_obscuration` turns a percent-per-metre obscuration rating
-into optical density.
+coefficient) at its location first reaches a threshold (a percent-obscuration rating is
+turned into an extinction coefficient by :func:`egressmargin.units.obscuration_to_extinction`).
 """
 
 from __future__ import annotations
@@ -15,7 +14,7 @@ import numpy as np
 
 from egressmargin.tenability.crossing import first_crossing
 
-__all__ = ["activation_time", "optical_density_from_obscuration", "rti_response"]
+__all__ = ["activation_time", "rti_response"]
 
 
 def rti_response(t_s, gas_rise, velocity_m_s, rti) -> np.ndarray:
@@ -174,43 +173,3 @@ def activation_time(t_s, link_rise, activation_rise) -> np.ndarray:
     return flat.reshape(ratio.shape[:-1])
 
 
-def optical_density_from_obscuration(obscuration_fraction_per_m) -> np.ndarray:
-    """Optical density per metre of a smoke detector's obscuration rating.
-
-    Parameters
-    ----------
-    obscuration_fraction_per_m : float or array_like
-        Light obscuration over a 1 m path as a fraction in [0, 1) [-/m], e.g. 0.10
-        for a "10 %/m" rating.
-
-    Returns
-    -------
-    numpy.ndarray or float
-        Optical density per unit path D [1/m] (base-10).
-
-    Notes
-    -----
-    Percent obscuration is O = 100 (1 - I/I0) for a beam of path length l, and the
-    optical density per unit length is D = (1/l) log10(I0/I). For l = 1 m:
-
-        D = -log10(1 - O/100)   [1/m]
-
-    The natural-log extinction coefficient is K = ln(10) D = 2.303 D [1/m].
-
-    References
-    ----------
-    NFPA 72, National Fire Alarm and Signaling Code, 2016 ed., Annex B
-    (Engineering guide for automatic fire detector spacing), smoke detector
-    response: definitions of percent obscuration and optical density -- from
-    memory, annex section not checked.
-
-    Examples
-    --------
-    >>> round(float(optical_density_from_obscuration(0.10)), 5)
-    0.04576
-    """
-    o = np.asarray(obscuration_fraction_per_m, dtype=float)
-    if np.any(~((o >= 0.0) & (o < 1.0))):
-        raise ValueError("obscuration per metre must be a fraction in [0, 1)")
-    d = -np.log10(1.0 - o)
-    return d if d.ndim else float(d)
