@@ -19,7 +19,7 @@ from .egress.flow import NetElement, NetRoute, NodeFlow, RouteFlow, quantile_pos
 from .egress.movement import element_properties, movement_time
 from .egress.placement import element_places
 from .egress.rset import compose_rset
-from .exposure import occupants_json
+from .exposure import Stay, occupants_json     # a Stay of the last occupant: arrays (S,)
 from .stats import rounded, share, summarise
 from .study import DetectorRule, RouteSpec
 from .tenability.crossing import crossing_times_for_levels
@@ -329,16 +329,6 @@ def element_locations(route: RouteSpec) -> list[tuple[str, str]]:
     else by distance along ``exposed_at``).
     """
     return [(p.walk, "at" if p.given else "assigned") for p in element_places(route)]
-
-
-@dataclass
-class Stay:
-    """The last occupant is at ``location`` from ``t_in`` to ``t_out`` (arrays (S,), s)."""
-
-    location: str
-    what: str
-    t_in: np.ndarray
-    t_out: np.ndarray
 
 
 def location_history(route: RouteSpec, egress: RouteEgress) -> list[Stay]:

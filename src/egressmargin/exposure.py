@@ -83,7 +83,8 @@ TIME_TOLERANCE_S = 1e-9
 
 @dataclass
 class Stay:
-    """One stay of every occupant: at ``location`` from ``t_in`` to ``t_out`` (S, N) [s]."""
+    """A stay at ``location`` from ``t_in`` to ``t_out`` [s]: arrays (S, N) of every occupant
+    here, (S,) of the last occupant in :func:`egressmargin.assess.location_history`."""
 
     location: str
     what: str
