@@ -68,8 +68,11 @@ BYTES_PER_SAMPLE_OCCUPANT_ELEMENT = 16
 #: the part that does not grow with the samples, 236 MB over 7 elements of 4 MB blocks,
 #: is 8.5 such arrays per element; project choice: rounded up to 10).
 EXPOSURE_ARRAYS_PER_ELEMENT = 10
-#: The sensitivity sweep draws the occupant count 10 % higher (assess.py: a +/-10 % sweep).
-OCCUPANT_SWEEP = 1.1
+#: The sensitivity sweep draws the occupant count this much higher: 1 + assess.SWEEP_FRACTION
+#: (its +/-10 % sweep; imported, so the two cannot drift apart; assess is loaded by then anyway).
+from .assess import SWEEP_FRACTION as _SWEEP_FRACTION  # noqa: E402
+
+OCCUPANT_SWEEP = 1.0 + _SWEEP_FRACTION
 #: Copies of a location's series held at once (raw, corrected, running maxima, dose
 #: curves; project choice, generous).
 SERIES_COPIES = 8
